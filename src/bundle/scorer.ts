@@ -1,0 +1,103 @@
+import { featuresOutside } from '../core/domain/envelope.js';
+import { type ForwardPass, createForwardPass } from '../core/network.js';
+import { softmaxRowsInto, topTwo } from '../core/softmax.js';
+import type { LoadedBundle } from './verify.js';
+
+export interface DomainCheck {
+  detector: string;
+  value: number;
+  threshold: number;
+  passed: boolean;
+}
+
+export interface OutsideFeature {
+  feature: string;
+  value: number;
+  low: number;
+  high: number;
+  unit: string;
+}
+
+export interface ScoreResponse {
+  request_id: string;
+  model: { name: string; version: string; sha256: string };
+  label: string;
+  probabilities: Record<string, number>;
+  margin: number;
+  review: boolean;
+  domain: { in_domain: boolean; checks: DomainCheck[]; outside: OutsideFeature[] };
+}
+
+/** What one scored row comes to, before it is given a request id. */
+export type ScoreOutcome = Omit<ScoreResponse, 'request_id' | 'model'>;
+
+export interface Scorer {
+  readonly bundle: LoadedBundle;
+  readonly featureNames: readonly string[];
+  /** Scores rows x features (row-major, raw units); results in row order. */
+  scoreRows(x: Float64Array, rows: number): ScoreOutcome[];
+}
+
+/**
+ * The scoring path shared by the service and the offline command: standardise, forward pass,
+ * softmax at the bundle's temperature, margin, and the domain checks with their reasons.
+ */
+export function createScorer(bundle: LoadedBundle): Scorer {
+  const { file } = bundle;
+  const d = file.features.length;
+  const K = file.classes.length;
+  const mean = Float64Array.from(file.preprocess.mean);
+  const invScale = Float64Array.from(file.preprocess.scale, (s) => 1 / s);
+  const env = file.domain.envelope;
+  const temperature = file.calibration.temperature;
+  const reviewMargin = file.domain.review_margin;
+  const pass: ForwardPass = createForwardPass(bundle.network);
+  let z = new Float64Array(0);
+  let p = new Float64Array(0);
+
+  return {
+    bundle,
+    featureNames: file.features.map((f) => f.name),
+    scoreRows(x, rows) {
+      if (z.length < rows * d) z = new Float64Array(rows * d);
+      if (p.length < rows * K) p = new Float64Array(rows * K);
+      for (let r = 0; r < rows; r++) {
+        const off = r * d;
+        for (let j = 0; j < d; j++) z[off + j] = ((x[off + j] as number) - (mean[j] as number)) * (invScale[j] as number);
+      }
+      const { logits } = pass.run(z, rows);
+      softmaxRowsInto(logits, rows, K, temperature, p);
+      const out: ScoreOutcome[] = new Array(rows);
+      for (let r = 0; r < rows; r++) {
+        const top = topTwo(p, r * K, K);
+        const probabilities: Record<string, number> = {};
+        for (let k = 0; k < K; k++) probabilities[file.classes[k] as string] = p[r * K + k] as number;
+        const outsideIdx = featuresOutside(env, x, r * d);
+        const outside = outsideIdx.map((j) => {
+          const f = file.features[j];
+          return {
+            feature: f?.name ?? '',
+            value: x[r * d + j] as number,
+            low: env.low[j] as number,
+            high: env.high[j] as number,
+            unit: f?.unit ?? '',
+          };
+        });
+        const checks: DomainCheck[] = [{ detector: 'envelope', value: outside.length, threshold: 0, passed: outside.length === 0 }];
+        const inDomain = checks.every((c) => c.passed);
+        out[r] = {
+          label: file.classes[top.index] as string,
+          probabilities,
+          margin: top.margin,
+          review: !inDomain || top.margin < reviewMargin,
+          domain: { in_domain: inDomain, checks, outside },
+        };
+      }
+      return out;
+    },
+  };
+}
+
+export function modelRef(bundle: LoadedBundle): ScoreResponse['model'] {
+  return { name: bundle.file.name, version: bundle.file.version, sha256: bundle.file.sha256 };
+}

@@ -1,0 +1,152 @@
+import { readFile } from 'node:fs/promises';
+import type { Network } from '../core/network.js';
+import { canonicalJson, sha256Hex } from './canonical-json.js';
+import { decodeNetwork } from './network-codec.js';
+import { type BundleBody, type BundleFile, bundleSchema } from './schema.js';
+
+export interface BundleProblem {
+  /** JSON path of the field, e.g. network.layers[1].weights; empty for the file as a whole. */
+  path: string;
+  message: string;
+}
+
+export class BundleError extends Error {
+  constructor(
+    readonly file: string,
+    readonly problems: BundleProblem[],
+  ) {
+    const shown = problems.slice(0, 5).map((p) => (p.path ? `${p.path}: ${p.message}` : p.message));
+    const more = problems.length > 5 ? `; and ${problems.length - 5} more` : '';
+    super(`bundle ${file} refused: ${shown.join('; ')}${more}`);
+    this.name = 'BundleError';
+  }
+}
+
+export interface LoadedBundle {
+  file: BundleFile;
+  network: Network;
+  /** Where it was read from, for messages. */
+  source: string;
+}
+
+export function bundleSha256(body: BundleBody): string {
+  return sha256Hex(canonicalJson(body));
+}
+
+/** The file's `sha256` is the hash of the canonical JSON of everything else (RFC 8785 form). */
+export function sealBundle(body: BundleBody): BundleFile {
+  return { ...body, sha256: bundleSha256(body) };
+}
+
+function formatPath(path: ReadonlyArray<PropertyKey>): string {
+  return path.reduce<string>((acc, key) => (typeof key === 'number' ? `${acc}[${key}]` : acc ? `${acc}.${String(key)}` : String(key)), '');
+}
+
+/** Parses, validates and verifies a bundle; throws BundleError naming the file and every bad field. */
+export function parseBundle(text: string, source: string): LoadedBundle {
+  let json: unknown;
+  try {
+    json = JSON.parse(text);
+  } catch (err) {
+    throw new BundleError(source, [{ path: '', message: `is not JSON (${(err as Error).message})` }]);
+  }
+  if (typeof json === 'object' && json !== null && 'format' in json && (json as { format: unknown }).format !== 'plumbline-bundle/1') {
+    throw new BundleError(source, [{ path: 'format', message: `is ${JSON.stringify((json as { format: unknown }).format)}, this reader takes "plumbline-bundle/1"` }]);
+  }
+  const parsed = bundleSchema.safeParse(json);
+  if (!parsed.success) {
+    throw new BundleError(
+      source,
+      parsed.error.issues.map((i) => ({ path: formatPath(i.path), message: i.message })),
+    );
+  }
+  const file = parsed.data;
+  const { sha256, ...body } = file;
+  const actual = bundleSha256(body);
+  if (actual !== sha256) {
+    throw new BundleError(source, [{ path: 'sha256', message: `is ${sha256} but the content hashes to ${actual}; the file was changed after it was written` }]);
+  }
+  const problems = checkConsistency(file);
+  let network: Network | null = null;
+  try {
+    network = decodeNetwork(file.network);
+  } catch (err) {
+    const message = (err as Error).message;
+    const space = message.indexOf(' ');
+    problems.push({ path: message.slice(0, space), message: message.slice(space + 1) });
+  }
+  if (problems.length > 0 || !network) throw new BundleError(source, problems);
+  return { file, network, source };
+}
+
+export async function readBundle(path: string): Promise<LoadedBundle> {
+  let text: string;
+  try {
+    text = await readFile(path, 'utf8');
+  } catch (err) {
+    throw new BundleError(path, [{ path: '', message: `cannot be read (${(err as NodeJS.ErrnoException).code ?? (err as Error).message})` }]);
+  }
+  return parseBundle(text, path);
+}
+
+/** Checks that the parts of a schema-valid bundle agree with each other: shapes, names, lengths. */
+export function checkConsistency(b: BundleFile): BundleProblem[] {
+  const problems: BundleProblem[] = [];
+  const add = (path: string, message: string): void => void problems.push({ path, message });
+  const d = b.features.length;
+  const K = b.classes.length;
+  const names = b.features.map((f) => f.name);
+
+  const dupFeature = names.find((n, i) => names.indexOf(n) !== i);
+  if (dupFeature !== undefined) add('features', `name ${JSON.stringify(dupFeature)} appears more than once`);
+  const dupClass = b.classes.find((c, i) => b.classes.indexOf(c) !== i);
+  if (dupClass !== undefined) add('classes', `${JSON.stringify(dupClass)} appears more than once`);
+
+  const layers = b.network.layers;
+  const first = layers[0];
+  const last = layers[layers.length - 1];
+  if (first && first.inputs !== d) add('network.layers[0].inputs', `is ${first.inputs} but the bundle lists ${d} features`);
+  if (last && last.outputs !== K) add(`network.layers[${layers.length - 1}].outputs`, `is ${last.outputs} but the bundle lists ${K} classes`);
+  if (last && last.activation !== 'identity') add(`network.layers[${layers.length - 1}].activation`, `is ${last.activation}; the last layer must be identity (it gives the logits)`);
+  layers.forEach((l, i) => {
+    const next = layers[i + 1];
+    if (next && next.inputs !== l.outputs) add(`network.layers[${i + 1}].inputs`, `is ${next.inputs} but layer ${i} gives ${l.outputs} outputs`);
+  });
+
+  const sameLength = (path: string, arr: readonly unknown[], n: number, what: string): void => {
+    if (arr.length !== n) add(path, `holds ${arr.length} values, expected ${n} (${what})`);
+  };
+  sameLength('preprocess.mean', b.preprocess.mean, d, 'one per feature');
+  sameLength('preprocess.scale', b.preprocess.scale, d, 'one per feature');
+  sameLength('domain.envelope.low', b.domain.envelope.low, d, 'one per feature');
+  sameLength('domain.envelope.high', b.domain.envelope.high, d, 'one per feature');
+  b.domain.envelope.low.forEach((lo, j) => {
+    const hi = b.domain.envelope.high[j];
+    if (hi !== undefined && lo > hi) add(`domain.envelope.low[${j}]`, `is ${lo}, above its high ${hi}`);
+  });
+
+  const ref = b.reference;
+  sameLength('reference.features', ref.features, d, 'one per feature');
+  ref.features.forEach((f, j) => {
+    const at = `reference.features[${j}]`;
+    if (f.name !== names[j]) add(`${at}.name`, `is ${JSON.stringify(f.name)} but feature ${j} is ${JSON.stringify(names[j])}`);
+    sameLength(`${at}.quantiles`, f.quantiles, ref.quantile_levels.length, 'one per quantile level');
+    sameLength(`${at}.bin_fractions`, f.bin_fractions, f.bin_edges.length + 1, 'one more than the bin edges');
+    if (f.bin_edges.some((e, i) => i > 0 && e <= (f.bin_edges[i - 1] as number))) add(`${at}.bin_edges`, 'must be strictly increasing');
+  });
+  sameLength('reference.sample.values', ref.sample.values, d, 'one column per feature');
+  ref.sample.values.forEach((col, j) => sameLength(`reference.sample.values[${j}]`, col, ref.sample.rows, 'one per sample row'));
+
+  const sameKeys = (path: string, rec: Record<string, unknown>): void => {
+    const keys = Object.keys(rec);
+    if (keys.length !== K || b.classes.some((c) => !(c in rec))) add(path, `must have exactly the classes as keys (${b.classes.join(', ')})`);
+  };
+  sameKeys('reference.class_prior', ref.class_prior);
+  sameKeys('reference.validation.predicted_fractions', ref.validation.predicted_fractions);
+  const v = b.training.metrics.validation;
+  if (v) {
+    sameKeys('training.metrics.validation.per_class', v.per_class);
+    if (v.confusion.length !== K || v.confusion.some((row) => row.length !== K)) add('training.metrics.validation.confusion', `must be ${K} x ${K}`);
+  }
+  return problems;
+}

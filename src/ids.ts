@@ -1,0 +1,41 @@
+import { randomFillSync } from 'node:crypto';
+
+let lastMs = -1;
+let counter = 0;
+const random = new Uint8Array(10);
+
+/**
+ * UUID version 7 (RFC 9562, section 5.7): 48-bit Unix milliseconds, then a 12-bit counter in
+ * rand_a (method 1 of section 6.2) so that ids made in the same millisecond still sort in the
+ * order they were made, then 62 random bits.
+ */
+export function uuidv7(now: number = Date.now()): string {
+  let ms = now;
+  if (ms <= lastMs) {
+    ms = lastMs;
+    counter++;
+    if (counter > 0xfff) {
+      // Counter exhausted within one millisecond: borrow the next millisecond (RFC 9562, 6.2).
+      ms = lastMs + 1;
+      counter = 0;
+    }
+  } else {
+    counter = 0;
+  }
+  lastMs = ms;
+  randomFillSync(random);
+  const b = new Uint8Array(16);
+  let t = ms;
+  for (let i = 5; i >= 0; i--) {
+    b[i] = t % 256;
+    t = Math.floor(t / 256);
+  }
+  b[6] = 0x70 | (counter >>> 8);
+  b[7] = counter & 0xff;
+  b[8] = 0x80 | ((random[0] as number) & 0x3f);
+  b.set(random.subarray(1, 8), 9);
+  const hex = Buffer.from(b).toString('hex');
+  return `${hex.slice(0, 8)}-${hex.slice(8, 12)}-${hex.slice(12, 16)}-${hex.slice(16, 20)}-${hex.slice(20)}`;
+}
+
+export const UUID_V7 = /^[0-9a-f]{8}-[0-9a-f]{4}-7[0-9a-f]{3}-[89ab][0-9a-f]{3}-[0-9a-f]{12}$/;

@@ -1,0 +1,46 @@
+import { describe, expect, it } from 'vitest';
+import { createScorer, modelRef } from '../../src/bundle/scorer.js';
+import { parseBundle } from '../../src/bundle/verify.js';
+import { serializeBundle } from '../../src/bundle/write.js';
+import { irisBundle } from '../helpers/bundles.js';
+
+const { bundle } = irisBundle();
+const loaded = parseBundle(serializeBundle(bundle), 'iris.bundle.json');
+const scorer = createScorer(loaded);
+const env = bundle.domain.envelope;
+
+describe('scorer', () => {
+  it('answers with probabilities over every class that sum to 1, the label of the largest and the margin', () => {
+    const [o] = scorer.scoreRows(Float64Array.of(6.0, 2.9, 4.5, 1.5), 1);
+    const p = Object.values(o!.probabilities);
+    expect(Object.keys(o!.probabilities)).toEqual(bundle.classes);
+    expect(p.reduce((a, b) => a + b, 0)).toBeCloseTo(1, 14);
+    const sorted = [...p].sort((a, b) => b - a);
+    expect(o!.probabilities[o!.label]).toBe(sorted[0]);
+    expect(o!.margin).toBeCloseTo(sorted[0]! - sorted[1]!, 15);
+  });
+
+  it('names a feature pushed outside the envelope with its value, bounds and unit', () => {
+    const x = Float64Array.of(5.8, 3.0, 4.35, 1.3);
+    x[1] = (env.high[1] as number) + 0.5;
+    const [o] = scorer.scoreRows(x, 1);
+    expect(o!.domain.in_domain).toBe(false);
+    expect(o!.review).toBe(true);
+    expect(o!.domain.outside).toEqual([{ feature: 'sepal_width', value: x[1], low: env.low[1], high: env.high[1], unit: 'cm' }]);
+    expect(o!.domain.checks).toEqual([{ detector: 'envelope', value: 1, threshold: 0, passed: false }]);
+  });
+
+  it('passes a row inside the envelope and marks it for review only when the margin is small', () => {
+    const rows = scorer.scoreRows(Float64Array.of(5.1, 3.5, 1.4, 0.2, 6.3, 2.8, 4.9, 1.6), 2);
+    for (const o of rows) {
+      expect(o.domain.in_domain).toBe(true);
+      expect(o.domain.outside).toEqual([]);
+      expect(o.review).toBe(o.margin < bundle.domain.review_margin);
+    }
+    expect(rows[0]!.review).toBe(false);
+  });
+
+  it('identifies the model by name, version and sha256', () => {
+    expect(modelRef(loaded)).toEqual({ name: 'iris', version: '1', sha256: bundle.sha256 });
+  });
+});
