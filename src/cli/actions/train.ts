@@ -1,0 +1,122 @@
+import { readFile } from 'node:fs/promises';
+import cliProgress from 'cli-progress';
+import { z } from 'zod';
+import type { ActivationName } from '../../core/activations.js';
+import type { EpochReport } from '../../core/train.js';
+import { type FeatureInfo, featureSchema, modelNameSchema, modelVersionSchema } from '../../bundle/schema.js';
+import { type TrainedBundle, trainBundle } from '../../bundle/train-bundle.js';
+import { writeBundle } from '../../bundle/write.js';
+import { indexLabels, readLabelledCsv } from '../../io/feature-table.js';
+import { type CliIo, UsageError } from '../io.js';
+import { formatMetrics } from './metrics-table.js';
+
+export interface TrainContext {
+  data: string;
+  label: string;
+  features?: string[];
+  featureInfo?: string;
+  name: string;
+  version: string;
+  out: string;
+  seed: number;
+  hidden: number[];
+  activation: ActivationName;
+  alpha?: number;
+  epochs: number;
+  batchSize: number;
+  learningRate: number;
+  weightDecay: number;
+  patience: number;
+  validationFraction: number;
+  balance: boolean;
+  tolerance: number;
+  reviewMargin: number;
+  createdAt: Date;
+}
+
+const featureInfoFile = z.record(z.string(), featureSchema.omit({ name: true }).partial());
+
+/** Units and descriptions for the features, from a JSON object keyed by feature name. */
+export async function readFeatureInfo(path: string | undefined, names: string[]): Promise<FeatureInfo[]> {
+  if (path === undefined) return names.map((name) => ({ name, unit: '', description: '' }));
+  let json: unknown;
+  try {
+    json = JSON.parse(await readFile(path, 'utf8'));
+  } catch (err) {
+    throw new UsageError(`--feature-info ${path}: ${(err as Error).message}`);
+  }
+  const parsed = featureInfoFile.safeParse(json);
+  if (!parsed.success) {
+    const issue = parsed.error.issues[0];
+    throw new UsageError(`--feature-info ${path}: ${issue?.path.join('.') ?? ''} ${issue?.message ?? 'is not valid'}`);
+  }
+  const unknown = Object.keys(parsed.data).filter((k) => !names.includes(k));
+  if (unknown.length > 0) throw new UsageError(`--feature-info ${path}: ${unknown.map((u) => JSON.stringify(u)).join(', ')} ${unknown.length === 1 ? 'is' : 'are'} not among the features (${names.join(', ')})`);
+  return names.map((name) => ({ name, unit: parsed.data[name]?.unit ?? '', description: parsed.data[name]?.description ?? '' }));
+}
+
+function progressReporter(io: CliIo): { onEpoch: (r: EpochReport) => void; stop: () => void } {
+  if (io.interactive) {
+    const bar = new cliProgress.SingleBar(
+      { stream: io.stderr, format: 'training [{bar}] epoch {value}/{total}  loss {train}  validation {val}  best epoch {best}', hideCursor: true },
+      cliProgress.Presets.shades_classic,
+    );
+    let started = false;
+    return {
+      onEpoch(r) {
+        const payload = { train: r.trainLoss.toFixed(4), val: r.validationLoss?.toFixed(4) ?? '-', best: r.bestEpoch };
+        if (!started) {
+          bar.start(r.epochs, r.epoch, payload);
+          started = true;
+        } else bar.update(r.epoch, payload);
+      },
+      stop: () => started && bar.stop(),
+    };
+  }
+  return {
+    onEpoch(r) {
+      if (r.epoch === 1 || r.epoch % 10 === 0) {
+        io.stderr.write(`epoch ${r.epoch}/${r.epochs} loss ${r.trainLoss.toFixed(4)} validation ${r.validationLoss?.toFixed(4) ?? '-'} best epoch ${r.bestEpoch}\n`);
+      }
+    },
+    stop: () => undefined,
+  };
+}
+
+/** `plumbline train`: CSV in, verified bundle out, metrics on the terminal. */
+export async function trainAction(ctx: TrainContext, io: CliIo): Promise<TrainedBundle> {
+  const name = modelNameSchema.safeParse(ctx.name);
+  if (!name.success) throw new UsageError(`--name ${JSON.stringify(ctx.name)} ${name.error.issues[0]?.message}`);
+  const version = modelVersionSchema.safeParse(ctx.version);
+  if (!version.success) throw new UsageError(`--version ${JSON.stringify(ctx.version)} ${version.error.issues[0]?.message}`);
+
+  const table = await readLabelledCsv(ctx.data, { label: ctx.label, ...(ctx.features ? { features: ctx.features } : {}) });
+  const { classes, indices } = indexLabels(table.labels);
+  if (classes.length < 2) throw new UsageError(`${ctx.data}: column ${JSON.stringify(ctx.label)} holds a single class (${classes[0]}); a classifier needs two or more`);
+  const badClass = classes.find((c) => !featureSchema.shape.name.safeParse(c).success);
+  if (badClass !== undefined) throw new UsageError(`${ctx.data}: class ${JSON.stringify(badClass)} is not a usable name (1-64 printable characters)`);
+  const features = await readFeatureInfo(ctx.featureInfo, table.featureNames);
+  const badFeature = features.find((f) => !featureSchema.shape.name.safeParse(f.name).success);
+  if (badFeature) throw new UsageError(`${ctx.data}: column ${JSON.stringify(badFeature.name)} is not a usable feature name (1-64 printable characters)`);
+
+  io.stderr.write(`read ${table.rows} rows, ${features.length} features, ${classes.length} classes from ${ctx.data}\n`);
+  const progress = progressReporter(io);
+  let trained: TrainedBundle;
+  try {
+    trained = trainBundle(
+      { features, x: table.x, rows: table.rows, labels: indices, classes },
+      {
+        ...ctx,
+        ...(ctx.alpha !== undefined ? { alpha: ctx.alpha } : {}),
+        dataSha256: table.sha256,
+        labelColumn: ctx.label,
+      },
+      progress.onEpoch,
+    );
+  } finally {
+    progress.stop();
+  }
+  await writeBundle(ctx.out, trained.bundle);
+  io.stdout.write(`${formatMetrics(trained.bundle)}\nbundle ${ctx.out}\nsha256 ${trained.bundle.sha256}\n`);
+  return trained;
+}

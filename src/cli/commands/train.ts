@@ -1,0 +1,62 @@
+import type { Command } from 'commander';
+import { ACTIVATIONS, type ActivationName } from '../../core/activations.js';
+import { DEFAULT_TRAIN_OPTIONS } from '../../core/train.js';
+import { DOMAIN_DEFAULTS } from '../../bundle/train-bundle.js';
+import { buildTime } from '../../config.js';
+import { trainAction } from '../actions/train.js';
+import { processIo } from '../io.js';
+import { integerIn, integerList, list, numberIn, oneOf } from '../options.js';
+
+interface TrainFlags {
+  data: string;
+  label: string;
+  features?: string[];
+  featureInfo?: string;
+  hidden: number[];
+  activation: ActivationName;
+  alpha?: number;
+  epochs: number;
+  batchSize: number;
+  learningRate: number;
+  weightDecay: number;
+  patience: number;
+  validationSplit: number;
+  balance: boolean;
+  seed: number;
+  tolerance: number;
+  reviewMargin: number;
+  name: string;
+  version: string;
+  out: string;
+}
+
+export function registerTrain(program: Command): void {
+  const d = DEFAULT_TRAIN_OPTIONS;
+  program
+    .command('train')
+    .description('train a classifier on a labelled CSV and write a verified bundle')
+    .requiredOption('--data <file.csv>', 'training data, RFC 4180 CSV with a header row')
+    .requiredOption('--label <column>', 'column holding the class of each row')
+    .option('--features <a,b,...>', 'feature columns in order (default: every column but the label)', list)
+    .option('--feature-info <file.json>', 'units and descriptions: {"name": {"unit": "degC", "description": "..."}}')
+    .option('--hidden <n,n,...>', 'hidden layer widths', integerList(1, 4096), d.hidden)
+    .option('--activation <name>', `hidden activation: ${ACTIVATIONS.join(', ')}`, oneOf(ACTIVATIONS), d.activation)
+    .option('--alpha <x>', 'alpha of leaky_relu (default 0.01) or elu (default 1)', numberIn(0, 100))
+    .option('--epochs <n>', 'most epochs to train; early stopping usually ends sooner', integerIn(1, 100000), d.epochs)
+    .option('--batch-size <n>', 'rows per mini-batch', integerIn(1, 65536), d.batchSize)
+    .option('--learning-rate <x>', 'Adam step size', numberIn(0, 10, { exclusiveMin: true }), d.learningRate)
+    .option('--weight-decay <x>', 'decoupled weight decay', numberIn(0, 1), d.weightDecay)
+    .option('--patience <n>', 'epochs without a better validation loss before stopping', integerIn(1, 100000), d.patience)
+    .option('--validation-split <x>', 'share of each class held out for validation and calibration', numberIn(0, 0.9), 0.2)
+    .option('--balance', 'weight classes by n / (classes x class count)', false)
+    .option('--seed <n>', 'seed of every random choice; same data, options and seed give the same bundle', integerIn(0, 4294967295), d.seed)
+    .option('--tolerance <x>', 'envelope widening, as a share of the 0.1%-99.9% range', numberIn(0, 100), DOMAIN_DEFAULTS.tolerance)
+    .option('--review-margin <x>', 'answers with a smaller margin are marked for review', numberIn(0, 1), DOMAIN_DEFAULTS.reviewMargin)
+    .requiredOption('--name <name>', 'model name, [a-z0-9][a-z0-9._-]{0,63}')
+    .option('--version <v>', 'model version, [A-Za-z0-9._-]{1,64}', '1')
+    .requiredOption('--out <file.bundle.json>', 'where to write the bundle')
+    .action(async (flags: TrainFlags) => {
+      const { validationSplit, ...rest } = flags;
+      await trainAction({ ...rest, validationFraction: validationSplit, createdAt: buildTime() }, processIo());
+    });
+}

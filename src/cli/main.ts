@@ -1,0 +1,38 @@
+#!/usr/bin/env node
+import { Command, CommanderError } from 'commander';
+import { BundleError } from '../bundle/verify.js';
+import { DataFileError } from '../io/csv.js';
+import { DataFileErrors } from '../io/feature-table.js';
+import { registerScore } from './commands/score.js';
+import { registerTrain } from './commands/train.js';
+import { UsageError } from './io.js';
+
+export function buildProgram(): Command {
+  const program = new Command('plumbline')
+    .description('scoring and audit service for feed-forward classifiers on the plant floor')
+    .showHelpAfterError('(run with --help for usage)');
+  registerTrain(program);
+  registerScore(program);
+  return program;
+}
+
+/** Errors a user can act on are printed as one message; anything else is a bug and keeps its stack. */
+function report(err: unknown): number {
+  if (err instanceof CommanderError) return err.exitCode;
+  if (err instanceof UsageError) {
+    process.stderr.write(`plumbline: ${err.message}\n`);
+    return err.exitCode;
+  }
+  if (err instanceof BundleError || err instanceof DataFileError || err instanceof DataFileErrors) {
+    process.stderr.write(`plumbline: ${err.message}\n`);
+    return 2;
+  }
+  process.stderr.write(`plumbline: unexpected error: ${err instanceof Error ? (err.stack ?? err.message) : String(err)}\n`);
+  return 70; // EX_SOFTWARE of sysexits.h
+}
+
+try {
+  await buildProgram().exitOverride().parseAsync(process.argv);
+} catch (err) {
+  process.exitCode = report(err);
+}

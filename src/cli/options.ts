@@ -1,0 +1,41 @@
+import { InvalidArgumentError } from 'commander';
+
+// Flag parsers for commander: each throws InvalidArgumentError, which commander reports with the flag's name.
+
+export function integerIn(min: number, max = Number.MAX_SAFE_INTEGER): (v: string) => number {
+  return (v) => {
+    const n = Number(v);
+    if (!/^[+-]?\d+$/.test(v.trim()) || !Number.isSafeInteger(n) || n < min || n > max) {
+      throw new InvalidArgumentError(`expected an integer in [${min}, ${max}]`);
+    }
+    return n;
+  };
+}
+
+export function numberIn(min: number, max: number, { exclusiveMin = false } = {}): (v: string) => number {
+  return (v) => {
+    const n = Number(v);
+    if (v.trim() === '' || !Number.isFinite(n) || n < min || n > max || (exclusiveMin && n === min)) {
+      throw new InvalidArgumentError(`expected a number in ${exclusiveMin ? '(' : '['}${min}, ${max}]`);
+    }
+    return n;
+  };
+}
+
+export function list(v: string): string[] {
+  const items = v.split(',').map((s) => s.trim());
+  if (items.some((s) => s === '')) throw new InvalidArgumentError('expected a comma-separated list without empty items');
+  return items;
+}
+
+export function integerList(min: number, max: number): (v: string) => number[] {
+  const one = integerIn(min, max);
+  return (v) => list(v).map(one);
+}
+
+export function oneOf<T extends string>(values: readonly T[]): (v: string) => T {
+  return (v) => {
+    if (!(values as readonly string[]).includes(v)) throw new InvalidArgumentError(`expected one of ${values.join(', ')}`);
+    return v as T;
+  };
+}

