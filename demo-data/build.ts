@@ -13,7 +13,7 @@ import { FEATURES, makeCsv } from './generator.js';
 export const DEMO_FILES = {
   'training.csv': { rows: 5000, seed: 1, scenario: {}, prefix: 'C3' },
   'traffic-normal.csv': { rows: 1000, seed: 2, scenario: {}, prefix: 'C3N' },
-  // A new resin lot: the setter raises the barrel by 7 degC to keep the parts filling.
+  // After a resin-lot change the setter raises the barrel by 7 degC; the hotter melt flashes more often.
   'traffic-drifted.csv': { rows: 1000, seed: 3, scenario: { shift: { melt_temp_c: 7 } }, prefix: 'C3D' },
   // The cushion position transducer fails and reads 0.00 mm on every shot.
   'traffic-faulted.csv': { rows: 1000, seed: 4, scenario: { stuck: { cushion_mm: 0 } }, prefix: 'C3F' },

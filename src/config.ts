@@ -1,4 +1,6 @@
 // The one place that reads the process environment; everything else takes values as arguments.
+import { readFileSync } from 'node:fs';
+import { z } from 'zod';
 
 /**
  * The build time for reproducible artefacts: SOURCE_DATE_EPOCH (seconds since the epoch, see
@@ -7,6 +9,193 @@
 export function buildTime(env: NodeJS.ProcessEnv = process.env, now: () => Date = () => new Date()): Date {
   const raw = env.SOURCE_DATE_EPOCH;
   if (raw === undefined || raw === '') return now();
-  if (!/^\d{1,12}$/.test(raw)) throw new RangeError(`SOURCE_DATE_EPOCH must be whole seconds since 1970, got ${JSON.stringify(raw)}`);
+  // 253402300799 is 9999-12-31T23:59:59Z, the last second an ISO 8601 four-digit year can write.
+  if (!/^\d{1,12}$/.test(raw) || Number(raw) > 253402300799) {
+    throw new ConfigError([`SOURCE_DATE_EPOCH = ${JSON.stringify(raw)} (environment): must be whole seconds since 1970, at most 253402300799`]);
+  }
   return new Date(Number(raw) * 1000);
+}
+
+const int = (min: number, max: number) => z.number().int().min(min).max(max);
+
+/** The service configuration. Every key has a default, so an empty file is a valid one. */
+export const configSchema = z.strictObject({
+  host: z.string().min(1).default('127.0.0.1'),
+  port: int(0, 65535).default(8080),
+  /** Directory whose *.bundle.json files are served. */
+  models_dir: z.string().min(1).default('models'),
+  /** SQLite database file of the audit log; created with its directory when missing. */
+  db: z.string().min(1).default('var/plumbline.db'),
+  logger: z
+    .strictObject({
+      level: z.enum(['fatal', 'error', 'warn', 'info', 'debug', 'trace', 'silent']).default('info'),
+    })
+    .prefault({}),
+  /** The audit log's write path (group commit). */
+  log: z
+    .strictObject({
+      /** "normal": durable across a process crash (WAL); "full": also across power loss. */
+      sync: z.enum(['normal', 'full']).default('normal'),
+      /** Wait this long for more rows before committing; 0 commits on the next turn of the event loop. */
+      flush_ms: int(0, 1000).default(0),
+      /** Commit at once when this many rows wait. */
+      flush_rows: int(1, 100_000).default(512),
+      /** Rows waiting beyond this are refused with 503 rather than held in memory. */
+      queue_rows: int(1, 10_000_000).default(50_000),
+      /** Newest rejected requests kept for inspection; older ones are pruned. */
+      rejected_rows: int(0, 10_000_000).default(100_000),
+    })
+    .prefault({}),
+  limits: z
+    .strictObject({
+      body_bytes: int(1024, 1 << 30).default(1 << 20),
+      batch_items: int(1, 100_000).default(1000),
+      tags: int(0, 256).default(16),
+      tag_key_chars: int(1, 1024).default(64),
+      tag_value_chars: int(1, 4096).default(256),
+    })
+    .prefault({}),
+});
+
+export type Config = z.infer<typeof configSchema>;
+
+/** Where a configuration value came from, for error messages. */
+type Origin = string;
+
+interface Leaf {
+  path: string[];
+  kind: 'number' | 'string' | 'boolean';
+  env: string;
+}
+
+function unwrap(schema: z.ZodType): z.ZodType {
+  let s = schema;
+  for (;;) {
+    const def = s.def as { type: string; innerType?: z.ZodType };
+    if ((def.type === 'default' || def.type === 'prefault' || def.type === 'optional') && def.innerType) s = def.innerType;
+    else return s;
+  }
+}
+
+function leavesOf(schema: z.ZodType, path: string[] = []): Leaf[] {
+  const s = unwrap(schema);
+  if (s.def.type === 'object') {
+    return Object.entries((s as z.ZodObject).shape).flatMap(([k, v]) => leavesOf(v as z.ZodType, [...path, k]));
+  }
+  const kind = s.def.type === 'number' ? 'number' : s.def.type === 'boolean' ? 'boolean' : 'string';
+  return [{ path, kind, env: `PLUMBLINE_${path.join('_').toUpperCase()}` }];
+}
+
+/** Every configuration key with the environment variable that sets it (PLUMBLINE_ + path in upper snake case). */
+export const CONFIG_KEYS: readonly Leaf[] = leavesOf(configSchema);
+
+export class ConfigError extends Error {
+  constructor(readonly problems: string[]) {
+    super(`configuration refused:\n${problems.map((p) => `  ${p}`).join('\n')}`);
+    this.name = 'ConfigError';
+  }
+}
+
+function setPath(target: Record<string, unknown>, path: string[], value: unknown): void {
+  let node = target;
+  path.slice(0, -1).forEach((k) => {
+    if (typeof node[k] !== 'object' || node[k] === null || Array.isArray(node[k])) node[k] = {};
+    node = node[k] as Record<string, unknown>;
+  });
+  node[path[path.length - 1] as string] = value;
+}
+
+function getPath(source: unknown, path: readonly PropertyKey[]): unknown {
+  return path.reduce<unknown>((node, k) => (node !== null && typeof node === 'object' ? (node as Record<PropertyKey, unknown>)[k] : undefined), source);
+}
+
+function coerce(raw: string, kind: Leaf['kind']): unknown {
+  if (kind === 'number') return raw.trim() !== '' && Number.isFinite(Number(raw)) ? Number(raw) : raw;
+  if (kind === 'boolean') return raw === 'true' ? true : raw === 'false' ? false : raw;
+  return raw;
+}
+
+export interface ConfigSources {
+  /** Path of a JSON configuration file, if any. */
+  file?: string;
+  env?: NodeJS.ProcessEnv;
+  /** Values from command-line flags, as dotted keys (e.g. {"models_dir": "demo-data/models"}). */
+  flags?: Record<string, unknown>;
+}
+
+/**
+ * Loads the configuration in labelled stages: the file, then PLUMBLINE_* environment variables,
+ * then flags (each overriding the one before), then defaults, then validation. Errors name the
+ * key, the value and where it came from.
+ */
+export function loadConfig(sources: ConfigSources): { config: Config; warnings: string[] } {
+  const merged: Record<string, unknown> = {};
+  const origin = new Map<string, Origin>();
+  const problems: string[] = [];
+  const warnings: string[] = [];
+
+  if (sources.file !== undefined) {
+    let text: string;
+    try {
+      text = readFileSync(sources.file, 'utf8');
+    } catch (err) {
+      throw new ConfigError([`config file ${sources.file} cannot be read (${(err as NodeJS.ErrnoException).code ?? (err as Error).message})`]);
+    }
+    let json: unknown;
+    try {
+      json = JSON.parse(text);
+    } catch (err) {
+      throw new ConfigError([`config file ${sources.file} is not JSON (${(err as Error).message})`]);
+    }
+    if (typeof json !== 'object' || json === null || Array.isArray(json)) throw new ConfigError([`config file ${sources.file} must hold a JSON object`]);
+    Object.assign(merged, structuredClone(json));
+    const mark = (node: unknown, path: string[]): void => {
+      if (node !== null && typeof node === 'object' && !Array.isArray(node)) {
+        for (const [k, v] of Object.entries(node)) mark(v, [...path, k]);
+      } else origin.set(path.join('.'), `config file ${sources.file}`);
+    };
+    mark(json, []);
+  }
+
+  const env = sources.env ?? {};
+  for (const leaf of CONFIG_KEYS) {
+    const raw = env[leaf.env];
+    if (raw === undefined) continue;
+    setPath(merged, leaf.path, coerce(raw, leaf.kind));
+    origin.set(leaf.path.join('.'), `environment ${leaf.env}`);
+  }
+  const known = new Set(CONFIG_KEYS.map((l) => l.env));
+  for (const name of Object.keys(env)) {
+    // A warning, not an error: secrets named by `secret_env` may share the prefix.
+    if (name.startsWith('PLUMBLINE_') && !known.has(name)) warnings.push(`environment ${name} is not a configuration key; ignored`);
+  }
+
+  for (const [key, value] of Object.entries(sources.flags ?? {})) {
+    if (value === undefined) continue;
+    setPath(merged, key.split('.'), value);
+    origin.set(key, `flag ${FLAG_NAMES[key] ?? `--${key}`}`);
+  }
+
+  const parsed = configSchema.safeParse(merged);
+  if (!parsed.success) {
+    for (const issue of parsed.error.issues) {
+      const key = issue.path.join('.');
+      if (issue.code === 'unrecognized_keys') {
+        for (const k of issue.keys) problems.push(`${[key, k].filter(Boolean).join('.')} is not a configuration key (${origin.get([key, k].filter(Boolean).join('.')) ?? 'config file'})`);
+        continue;
+      }
+      const value = getPath(merged, issue.path);
+      problems.push(`${key} = ${JSON.stringify(value)} (${origin.get(key) ?? 'default'}): ${issue.message}`);
+    }
+  }
+  if (problems.length > 0) throw new ConfigError(problems);
+  return { config: parsed.data as Config, warnings };
+}
+
+/** Flags of `plumbline serve` whose name differs from their key. */
+const FLAG_NAMES: Record<string, string> = { models_dir: '--models' };
+
+/** The process environment, for the CLI entry points (the only reader of process.env). */
+export function processEnv(): NodeJS.ProcessEnv {
+  return process.env;
 }

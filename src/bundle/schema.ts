@@ -1,5 +1,6 @@
 import { z } from 'zod';
 import { ACTIVATIONS } from '../core/activations.js';
+import { TEMPERATURE_RANGE } from '../core/calibration.js';
 
 export const BUNDLE_FORMAT = 'plumbline-bundle/1';
 
@@ -18,15 +19,17 @@ const labelText = z
   .string()
   .min(1)
   .max(64)
-  .regex(/^[^\s\u0000-\u001f\u007f](?:[^\u0000-\u001f\u007f]*[^\s\u0000-\u001f\u007f])?$/, 'must be 1-64 printable characters without leading or trailing spaces');
+  .regex(/^[^\s\u0000-\u001f\u007f](?:[^\u0000-\u001f\u007f]*[^\s\u0000-\u001f\u007f])?$/, 'must be 1-64 printable characters without leading or trailing spaces')
+  // Names become object keys in answers; this one would set the prototype instead.
+  .refine((s) => s !== '__proto__', 'must not be __proto__');
 
-export const featureSchema = z.object({
+export const featureSchema = z.strictObject({
   name: labelText,
   unit: z.string().max(32),
   description: z.string().max(500),
 });
 
-export const layerSchema = z.object({
+export const layerSchema = z.strictObject({
   inputs: z.number().int().min(1).max(65536),
   outputs: z.number().int().min(1).max(65536),
   activation: z.enum(ACTIVATIONS),
@@ -35,17 +38,17 @@ export const layerSchema = z.object({
   bias: z.string(),
 });
 
-const metricsSchema = z.object({
+const metricsSchema = z.strictObject({
   accuracy: probability,
   macro_f1: probability,
   per_class: z.record(
     z.string(),
-    z.object({ precision: probability, recall: probability, f1: probability, support: count }),
+    z.strictObject({ precision: probability, recall: probability, f1: probability, support: count }),
   ),
   confusion: z.array(z.array(count)),
 });
 
-export const featureReferenceSchema = z.object({
+export const featureReferenceSchema = z.strictObject({
   name: labelText,
   min: finite,
   max: finite,
@@ -56,52 +59,52 @@ export const featureReferenceSchema = z.object({
   bin_fractions: z.array(probability),
 });
 
-export const referenceSchema = z.object({
+export const referenceSchema = z.strictObject({
   rows: count,
   quantile_levels: z.array(probability),
   features: z.array(featureReferenceSchema),
-  sample: z.object({
+  sample: z.strictObject({
     rows: count,
     subsampled: z.boolean(),
     /** Column-major: values[j][i] is feature j of sample row i; every column has `rows` values. */
     values: z.array(z.array(finite)),
   }),
   class_prior: z.record(z.string(), probability),
-  validation: z.object({
+  validation: z.strictObject({
     rows: count,
     predicted_fractions: z.record(z.string(), probability),
     margins: z.array(probability),
   }),
 });
 
-export const envelopeSchema = z.object({
+export const envelopeSchema = z.strictObject({
   tolerance: finite.min(0),
   low: z.array(finite),
   high: z.array(finite),
 });
 
-export const domainSchema = z.object({
+export const domainSchema = z.strictObject({
   review_margin: probability,
   envelope: envelopeSchema,
 });
 
-export const trainingSchema = z.object({
-  source: z.object({
+export const trainingSchema = z.strictObject({
+  source: z.strictObject({
     kind: z.enum(['csv']),
     data_sha256: sha256,
     label_column: z.string(),
   }),
-  rows: z.object({ total: count, train: count, validation: count }),
+  rows: z.strictObject({ total: count, train: count, validation: count }),
   seed: count,
   options: z.record(z.string(), z.unknown()),
   epochs_run: count,
   best_epoch: count,
   stopped_early: z.boolean(),
-  metrics: z.object({
+  metrics: z.strictObject({
     train_loss: finite,
     validation_loss: finite.nullable(),
     validation: metricsSchema.nullable(),
-    calibration: z.object({
+    calibration: z.strictObject({
       temperature: finite.positive(),
       bins: z.number().int().positive(),
       ece_before: finite.nullable(),
@@ -110,16 +113,17 @@ export const trainingSchema = z.object({
   }),
 });
 
-export const bundleSchema = z.object({
+export const bundleSchema = z.strictObject({
   format: z.literal(BUNDLE_FORMAT),
   name: modelNameSchema,
   version: modelVersionSchema,
   created_at: z.iso.datetime(),
   features: z.array(featureSchema).min(1).max(4096),
   classes: z.array(labelText).min(2).max(1000),
-  preprocess: z.object({ mean: z.array(finite), scale: z.array(finite.positive()) }),
-  network: z.object({ layers: z.array(layerSchema).min(1).max(64) }),
-  calibration: z.object({ temperature: finite.positive() }),
+  // scale >= 1e-30 keeps (x - mean) / scale finite for every accepted input (|x| <= 1e15).
+  preprocess: z.strictObject({ mean: z.array(finite), scale: z.array(finite.min(1e-30)) }),
+  network: z.strictObject({ layers: z.array(layerSchema).min(1).max(64) }),
+  calibration: z.strictObject({ temperature: finite.min(TEMPERATURE_RANGE.min).max(TEMPERATURE_RANGE.max) }),
   domain: domainSchema,
   reference: referenceSchema,
   training: trainingSchema,

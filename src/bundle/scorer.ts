@@ -28,13 +28,21 @@ export interface ScoreResponse {
   domain: { in_domain: boolean; checks: DomainCheck[]; outside: OutsideFeature[] };
 }
 
+/** The network gave a non-finite logit for a row: its values are too extreme to score. */
+export class ScoreOverflowError extends Error {
+  constructor(readonly row: number) {
+    super(`row ${row}: the network overflows on these values (a logit is not finite)`);
+    this.name = 'ScoreOverflowError';
+  }
+}
+
 /** What one scored row comes to, before it is given a request id. */
 export type ScoreOutcome = Omit<ScoreResponse, 'request_id' | 'model'>;
 
 export interface Scorer {
   readonly bundle: LoadedBundle;
   readonly featureNames: readonly string[];
-  /** Scores rows x features (row-major, raw units); results in row order. */
+  /** Scores rows x features (row-major, raw units); results in row order. Throws ScoreOverflowError. */
   scoreRows(x: Float64Array, rows: number): ScoreOutcome[];
 }
 
@@ -66,6 +74,8 @@ export function createScorer(bundle: LoadedBundle): Scorer {
         for (let j = 0; j < d; j++) z[off + j] = ((x[off + j] as number) - (mean[j] as number)) * (invScale[j] as number);
       }
       const { logits } = pass.run(z, rows);
+      // Never answer NaN: a value that overflows the network is refused, not guessed at.
+      for (let i = 0; i < rows * K; i++) if (!Number.isFinite(logits[i] as number)) throw new ScoreOverflowError(Math.floor(i / K));
       softmaxRowsInto(logits, rows, K, temperature, p);
       const out: ScoreOutcome[] = new Array(rows);
       for (let r = 0; r < rows; r++) {

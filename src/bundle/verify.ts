@@ -2,7 +2,7 @@ import { readFile } from 'node:fs/promises';
 import type { Network } from '../core/network.js';
 import { canonicalJson, sha256Hex } from './canonical-json.js';
 import { decodeNetwork } from './network-codec.js';
-import { type BundleBody, type BundleFile, bundleSchema } from './schema.js';
+import { type BundleBody, type BundleFile, REFERENCE_QUANTILE_LEVELS, bundleSchema } from './schema.js';
 
 export interface BundleProblem {
   /** JSON path of the field, e.g. network.layers[1].weights; empty for the file as a whole. */
@@ -61,8 +61,9 @@ export function parseBundle(text: string, source: string): LoadedBundle {
     );
   }
   const file = parsed.data;
-  const { sha256, ...body } = file;
-  const actual = bundleSha256(body);
+  // Hash what the file holds, not what the schema kept, so that nothing can be slipped in.
+  const { sha256, ...raw } = json as Record<string, unknown>;
+  const actual = sha256Hex(canonicalJson(raw));
   if (actual !== sha256) {
     throw new BundleError(source, [{ path: 'sha256', message: `is ${sha256} but the content hashes to ${actual}; the file was changed after it was written` }]);
   }
@@ -126,10 +127,13 @@ export function checkConsistency(b: BundleFile): BundleProblem[] {
   });
 
   const ref = b.reference;
+  if (canonicalJson(ref.quantile_levels) !== canonicalJson(REFERENCE_QUANTILE_LEVELS)) add('reference.quantile_levels', `must be ${REFERENCE_QUANTILE_LEVELS.join(', ')}`);
   sameLength('reference.features', ref.features, d, 'one per feature');
   ref.features.forEach((f, j) => {
     const at = `reference.features[${j}]`;
     if (f.name !== names[j]) add(`${at}.name`, `is ${JSON.stringify(f.name)} but feature ${j} is ${JSON.stringify(names[j])}`);
+    if (f.min > f.max) add(`${at}.min`, `is ${f.min}, above max ${f.max}`);
+    if (f.quantiles.some((q, i) => i > 0 && q < (f.quantiles[i - 1] as number))) add(`${at}.quantiles`, 'must not decrease');
     sameLength(`${at}.quantiles`, f.quantiles, ref.quantile_levels.length, 'one per quantile level');
     sameLength(`${at}.bin_fractions`, f.bin_fractions, f.bin_edges.length + 1, 'one more than the bin edges');
     if (f.bin_edges.some((e, i) => i > 0 && e <= (f.bin_edges[i - 1] as number))) add(`${at}.bin_edges`, 'must be strictly increasing');
@@ -139,9 +143,10 @@ export function checkConsistency(b: BundleFile): BundleProblem[] {
 
   const sameKeys = (path: string, rec: Record<string, unknown>): void => {
     const keys = Object.keys(rec);
-    if (keys.length !== K || b.classes.some((c) => !(c in rec))) add(path, `must have exactly the classes as keys (${b.classes.join(', ')})`);
+    if (keys.length !== K || b.classes.some((c) => !Object.hasOwn(rec, c))) add(path, `must have exactly the classes as keys (${b.classes.join(', ')})`);
   };
   sameKeys('reference.class_prior', ref.class_prior);
+  sameLength('reference.validation.margins', ref.validation.margins, ref.validation.rows, 'one per validation row');
   sameKeys('reference.validation.predicted_fractions', ref.validation.predicted_fractions);
   const v = b.training.metrics.validation;
   if (v) {

@@ -22,3 +22,10 @@ export class UsageError extends Error {
     this.name = 'UsageError';
   }
 }
+
+/** A file the user named cannot be opened: say which flag, which file and why, without a stack. */
+export function fileProblem(flag: string, path: string, err: unknown): Error {
+  const code = (err as NodeJS.ErrnoException).code;
+  if (code && /^E[A-Z]+$/.test(code)) return new UsageError(`${flag} ${path}: cannot be written (${code})`);
+  return err as Error;
+}

@@ -1,6 +1,9 @@
 #!/usr/bin/env node
 import { Command, CommanderError } from 'commander';
+import { RegistryError } from '../bundle/registry.js';
 import { BundleError } from '../bundle/verify.js';
+import { ConfigError } from '../config.js';
+import { MigrationError } from '../store/migrate.js';
 import { DataFileError } from '../io/csv.js';
 import { DataFileErrors } from '../io/feature-table.js';
 import { registerScore } from './commands/score.js';
@@ -10,7 +13,9 @@ import { UsageError } from './io.js';
 export function buildProgram(): Command {
   const program = new Command('plumbline')
     .description('scoring and audit service for feed-forward classifiers on the plant floor')
-    .showHelpAfterError('(run with --help for usage)');
+    .showHelpAfterError('(run with --help for usage)')
+    // Before the commands are added, so that they inherit it and errors reach report().
+    .exitOverride();
   registerTrain(program);
   registerScore(program);
   return program;
@@ -18,12 +23,13 @@ export function buildProgram(): Command {
 
 /** Errors a user can act on are printed as one message; anything else is a bug and keeps its stack. */
 function report(err: unknown): number {
-  if (err instanceof CommanderError) return err.exitCode;
+  // commander has printed its message; help and version exit 0, every usage error exits 2.
+  if (err instanceof CommanderError) return err.exitCode === 0 ? 0 : 2;
   if (err instanceof UsageError) {
     process.stderr.write(`plumbline: ${err.message}\n`);
     return err.exitCode;
   }
-  if (err instanceof BundleError || err instanceof DataFileError || err instanceof DataFileErrors) {
+  if (err instanceof BundleError || err instanceof DataFileError || err instanceof DataFileErrors || err instanceof ConfigError || err instanceof RegistryError || err instanceof MigrationError) {
     process.stderr.write(`plumbline: ${err.message}\n`);
     return 2;
   }
@@ -32,7 +38,7 @@ function report(err: unknown): number {
 }
 
 try {
-  await buildProgram().exitOverride().parseAsync(process.argv);
+  await buildProgram().parseAsync(process.argv);
 } catch (err) {
   process.exitCode = report(err);
 }

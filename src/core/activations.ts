@@ -38,7 +38,8 @@ export function activateInPlace(name: ActivationName, alpha: number, values: Flo
     case 'identity':
       return;
     case 'relu':
-      for (let i = start; i < end; i++) if (!((values[i] as number) > 0)) values[i] = 0;
+      // `< 0`, not `!(> 0)`: a NaN must stay NaN so that the scorer sees it, not turn into 0.
+      for (let i = start; i < end; i++) if ((values[i] as number) < 0) values[i] = 0;
       return;
     case 'leaky_relu':
       for (let i = start; i < end; i++) {

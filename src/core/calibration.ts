@@ -47,7 +47,9 @@ export function fitTemperature(logits: Float64Array, rows: number, classes: numb
   if (rows === 0) return 1;
   let lo = 1 / TEMPERATURE_RANGE.max;
   let hi = 1 / TEMPERATURE_RANGE.min;
-  const [gLo] = nllDerivatives(logits, rows, classes, labels, lo);
+  const [gLo, hLo] = nllDerivatives(logits, rows, classes, labels, lo);
+  // Every row's logits equal: the NLL does not depend on T at all, so leave it at 1.
+  if (hLo === 0) return 1;
   if (gLo >= 0) return 1 / lo;
   const [gHi] = nllDerivatives(logits, rows, classes, labels, hi);
   if (gHi <= 0) return 1 / hi;

@@ -115,11 +115,18 @@ export function forward(net: Network, x: Float64Array, rows: number): ForwardRes
   return { logits: res.logits.slice(), hidden: res.hidden.slice() };
 }
 
+/**
+ * Largest feature magnitude accepted anywhere (requests, CSV files). No process value comes near
+ * it, and below it a network with float32 weights stays far from float64 overflow.
+ */
+export const MAX_FEATURE_MAGNITUDE = 1e15;
+
 /** Rounds every parameter to float32, the precision the bundle stores. */
 export function roundToFloat32(net: Network): Network {
   return {
     layers: net.layers.map((l) => ({
       ...l,
+      alpha: Math.fround(l.alpha),
       weights: Float64Array.from(Float32Array.from(l.weights)),
       bias: Float64Array.from(Float32Array.from(l.bias)),
     })),

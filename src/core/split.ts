@@ -7,7 +7,8 @@ export interface Split {
 
 /**
  * Stratified split: each class gives round(fraction * its count) rows to validation (at least one
- * and at most all but one, when the class has two rows or more), chosen by a seeded shuffle.
+ * and at most all but one when it has two rows or more; none when it has one), chosen by a seeded
+ * shuffle.
  * Both index lists come back in ascending order so that the split does not reorder the data.
  */
 export function stratifiedSplit(labels: ArrayLike<number>, classes: number, fraction: number, rng: Rng): Split {
@@ -18,7 +19,8 @@ export function stratifiedSplit(labels: ArrayLike<number>, classes: number, frac
   const validation: number[] = [];
   for (const members of byClass) {
     shuffleInPlace(members, rng);
-    let take = Math.round(fraction * members.length);
+    // A class with one row trains; with two or more, each side gets at least one.
+    let take = members.length < 2 ? 0 : Math.round(fraction * members.length);
     if (fraction > 0 && members.length >= 2) take = Math.min(Math.max(take, 1), members.length - 1);
     validation.push(...members.slice(0, take));
     train.push(...members.slice(take));

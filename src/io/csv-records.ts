@@ -17,8 +17,9 @@ export class CsvSyntaxError extends Error {
   }
 }
 
-/** Longest field accepted; anything longer is garbage, not a process value. */
+/** Longest field and widest record accepted; anything beyond is garbage, not process data. */
 export const MAX_FIELD_CHARS = 1 << 20;
+export const MAX_FIELDS = 1 << 16;
 
 const QUOTE = 0x22;
 const COMMA = 0x2c;
@@ -49,17 +50,21 @@ export async function* parseCsvRecords(chunks: AsyncIterable<Buffer | string>): 
   let first = true;
   let quotedFrom = 0;
   let quotedCR = false;
+  let wasQuoted = false;
   const out: CsvRecord[] = [];
 
   const endField = (): void => {
     if (field.length > MAX_FIELD_CHARS) throw new CsvSyntaxError(recordLine, `a field is longer than ${MAX_FIELD_CHARS} characters`);
+    if (fields.length >= MAX_FIELDS) throw new CsvSyntaxError(recordLine, `a record has more than ${MAX_FIELDS} fields`);
     fields.push(field);
     field = '';
   };
   const endRecord = (): void => {
+    const blank = fields.length === 0 && field === '' && !wasQuoted; // "" is a record of one empty field
     endField();
-    if (!(fields.length === 1 && fields[0] === '')) out.push({ line: recordLine, fields });
+    if (!blank) out.push({ line: recordLine, fields });
     fields = [];
+    wasQuoted = false;
   };
 
   const consume = (text: string): void => {
@@ -78,6 +83,7 @@ export async function* parseCsvRecords(chunks: AsyncIterable<Buffer | string>): 
       switch (state) {
         case State.FieldStart:
           if (fields.length === 0 && field === '') recordLine = line;
+          wasQuoted = c === QUOTE;
           if (c === QUOTE) {
             state = State.Quoted;
             quotedFrom = line;

@@ -21,14 +21,17 @@ export type CsvRow = CsvRecord;
 
 export interface CsvSource {
   header: string[];
+  /** Line of the header row (after any blank lines). */
+  headerLine: number;
   rows: AsyncIterable<CsvRow>;
   /** sha256 of every byte read, complete once rows has been iterated to the end. */
   sha256(): string;
 }
 
 /**
- * A CSV file with a header row (RFC 4180, see csv-records.ts), streamed. A row whose field count
- * differs from the header's is an error naming its line; so is any syntax error.
+ * A CSV file with a header row (RFC 4180, see csv-records.ts), streamed. A syntax error ends the
+ * stream with an error naming its line; rows of the wrong width are passed on for the reader to
+ * report (parseFeatures does), so that one short row does not stop a long file.
  */
 export async function openCsv(input: string | Readable, name = typeof input === 'string' ? input : 'input'): Promise<CsvSource> {
   const stream = typeof input === 'string' ? createReadStream(input) : input;
@@ -65,12 +68,7 @@ export async function openCsv(input: string | Readable, name = typeof input === 
 
   async function* rows(): AsyncGenerator<CsvRow> {
     try {
-      for await (const record of records) {
-        if (record.fields.length !== header.length) {
-          throw new DataFileError(name, record.line, null, `has ${record.fields.length} field${record.fields.length === 1 ? '' : 's'}, the header has ${header.length}`);
-        }
-        yield record;
-      }
+      yield* records;
     } catch (err) {
       throw translate(err);
     } finally {
@@ -80,7 +78,7 @@ export async function openCsv(input: string | Readable, name = typeof input === 
   }
 
   let digest: string | null = null;
-  return { header, rows: rows(), sha256: () => (digest ??= hash.digest('hex')) };
+  return { header, headerLine, rows: rows(), sha256: () => (digest ??= hash.digest('hex')) };
 }
 
 // A plain decimal number: no hex, no "Infinity", no empty string or padding that Number() would accept.

@@ -1,37 +1,44 @@
+import { MAX_FEATURE_MAGNITUDE } from '../core/network.js';
 import { type CsvSource, DataFileError, openCsv, parseDecimal } from './csv.js';
 
 export interface ColumnPlan {
   featureNames: string[];
   featureIndex: number[];
   labelIndex: number | null;
+  /** Fields every row must have: the header's count. */
+  width: number;
 }
 
 /**
  * Picks the feature columns by name: the given list in its order, or every column but the label.
  * Columns not picked (ids, timestamps, the label when scoring) are ignored.
  */
-export function planColumns(header: string[], file: string, options: { features?: string[]; label?: string }): ColumnPlan {
+export function planColumns(header: string[], file: string, options: { features?: string[]; label?: string }, headerLine = 1): ColumnPlan {
   const index = (name: string, role: string): number => {
     const i = header.indexOf(name);
-    if (i < 0) throw new DataFileError(file, 1, name, `${role} column not found; the header has ${header.map((h) => JSON.stringify(h)).join(', ')}`);
+    if (i < 0) throw new DataFileError(file, headerLine, name, `${role} column not found; the header has ${header.map((h) => JSON.stringify(h)).join(', ')}`);
     return i;
   };
   const labelIndex = options.label !== undefined ? index(options.label, 'label') : null;
   const featureNames = options.features ?? header.filter((_, i) => i !== labelIndex);
-  if (featureNames.length === 0) throw new DataFileError(file, 1, null, 'has no feature columns');
+  if (featureNames.length === 0) throw new DataFileError(file, headerLine, null, 'has no feature columns');
   const dup = featureNames.find((f, i) => featureNames.indexOf(f) !== i);
   if (dup !== undefined) throw new DataFileError(file, null, dup, 'feature listed twice');
   if (options.label !== undefined && featureNames.includes(options.label)) {
-    throw new DataFileError(file, 1, options.label, 'is both the label and a feature');
+    throw new DataFileError(file, headerLine, options.label, 'is both the label and a feature');
   }
-  return { featureNames, featureIndex: featureNames.map((f) => index(f, 'feature')), labelIndex };
+  return { featureNames, featureIndex: featureNames.map((f) => index(f, 'feature')), labelIndex, width: header.length };
 }
 
 /** Parses the picked fields of one row into out[offset..]; throws DataFileError at the first bad one. */
 export function parseFeatures(fields: string[], line: number, plan: ColumnPlan, file: string, out: Float64Array, offset: number): void {
+  if (fields.length !== plan.width) {
+    throw new DataFileError(file, line, null, `has ${fields.length} field${fields.length === 1 ? '' : 's'}, the header has ${plan.width}`);
+  }
   for (let j = 0; j < plan.featureIndex.length; j++) {
     const v = parseDecimal(fields[plan.featureIndex[j] as number] ?? '');
     if (typeof v === 'string') throw new DataFileError(file, line, plan.featureNames[j] as string, v);
+    if (Math.abs(v) > MAX_FEATURE_MAGNITUDE) throw new DataFileError(file, line, plan.featureNames[j] as string, `is ${v}, beyond the accepted magnitude of ${MAX_FEATURE_MAGNITUDE}`);
     out[offset + j] = v;
   }
 }
@@ -64,7 +71,7 @@ export class DataFileErrors extends Error {
  */
 export async function readLabelledCsv(path: string, options: { label: string; features?: string[] }): Promise<LabelledCsv> {
   const csv: CsvSource = await openCsv(path);
-  const plan = planColumns(csv.header, path, options);
+  const plan = planColumns(csv.header, path, options, csv.headerLine);
   const d = plan.featureNames.length;
   let x = new Float64Array(1024 * d);
   const labels: string[] = [];

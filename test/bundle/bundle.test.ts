@@ -140,6 +140,27 @@ describe('bundle file', () => {
     expect(err.message).toMatch(/must be identity/);
   });
 
+  it('refuses a field it does not know, whether or not the hash was recomputed', () => {
+    const added = JSON.parse(text) as Record<string, unknown>;
+    (added.calibration as Record<string, unknown>).note = 'tuned by hand';
+    expect(problemsOf(() => parseBundle(JSON.stringify(added), 'b.json')).message).toMatch(/calibration: Unrecognized key: "note"/);
+    const sealed = resealed((b) => void ((b as unknown as Record<string, unknown>).extra = 1));
+    expect(problemsOf(() => parseBundle(sealed, 'b.json')).message).toMatch(/Unrecognized key: "extra"/);
+  });
+
+  it('refuses NaN or infinite float32 weights, a temperature outside [0.01, 100] and a __proto__ class', () => {
+    const nan = resealed((b) => {
+      const w = Buffer.from(b.network.layers[1]!.weights, 'base64');
+      w.writeFloatLE(Number.NaN, 8);
+      b.network.layers[1]!.weights = w.toString('base64');
+    });
+    expect(problemsOf(() => parseBundle(nan, 'b.json')).message).toMatch(/network\.layers\[1\]\.weights: value 2 is NaN/);
+    const cold = resealed((b) => void (b.calibration.temperature = 5e-324));
+    expect(problemsOf(() => parseBundle(cold, 'b.json')).problems[0]!.path).toBe('calibration.temperature');
+    const proto = resealed((b) => void (b.classes[0] = '__proto__'));
+    expect(problemsOf(() => parseBundle(proto, 'b.json')).message).toMatch(/classes\[0\]: must not be __proto__/);
+  });
+
   it('refuses other formats, text that is not JSON and files that cannot be read', async () => {
     expect(problemsOf(() => parseBundle(resealed((b) => void ((b as { format: string }).format = 'plumbline-bundle/9')), 'b.json')).message).toMatch(/format: is "plumbline-bundle\/9"/);
     expect(problemsOf(() => parseBundle(text.slice(0, 100), 'cut.json')).message).toMatch(/cut\.json refused: is not JSON/);

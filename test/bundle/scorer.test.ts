@@ -1,5 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { createScorer, modelRef } from '../../src/bundle/scorer.js';
+import { ScoreOverflowError, createScorer, modelRef } from '../../src/bundle/scorer.js';
 import { parseBundle } from '../../src/bundle/verify.js';
 import { serializeBundle } from '../../src/bundle/write.js';
 import { irisBundle } from '../helpers/bundles.js';
@@ -38,6 +38,22 @@ describe('scorer', () => {
       expect(o.review).toBe(o.margin < bundle.domain.review_margin);
     }
     expect(rows[0]!.review).toBe(false);
+  });
+
+  it('refuses to answer when the network overflows, naming the row, rather than returning NaN', () => {
+    const huge = { ...loaded, network: { layers: loaded.network.layers.map((l, i) => (i < 2 ? { ...l, weights: l.weights.map(() => 1e300) } : l)) } };
+    const s = createScorer(huge);
+    // row 0 standardises to a negative sum, which the ReLU zeroes; row 1 overflows to Infinity
+    const err = (() => {
+      try {
+        s.scoreRows(Float64Array.of(5, 3, 1, 0.2, 1e6, 1e6, 1e6, 1e6), 2);
+      } catch (e) {
+        return e;
+      }
+      return null;
+    })();
+    expect(err).toBeInstanceOf(ScoreOverflowError);
+    expect((err as ScoreOverflowError).row).toBe(1);
   });
 
   it('identifies the model by name, version and sha256', () => {

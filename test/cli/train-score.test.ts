@@ -85,20 +85,44 @@ describe('plumbline train, then plumbline score', () => {
     const summary = await scoreAction({ bundle: shared, data, batchSize: 1024 }, t);
     expect(summary).toEqual({ scored: 2, rejected: 0, outOfDomain: 0 });
     const [first] = t.out.text().trim().split('\n').map((l) => JSON.parse(l) as Record<string, unknown>);
-    expect(Object.keys(first!)).toEqual(['request_id', 'model', 'label', 'probabilities', 'margin', 'review', 'domain']);
+    // the service's response shape, plus the CSV line of the row
+    expect(Object.keys(first!)).toEqual(['request_id', 'model', 'label', 'probabilities', 'margin', 'review', 'domain', 'line']);
+    expect(first!.line).toBe(2);
     expect(first!.request_id).toMatch(UUID_V7);
     expect(first!.label).toBe('setosa');
     expect(first!.domain).toMatchObject({ in_domain: true, outside: [] });
   });
 
-  it('score reports a bad row by line and column, scores the rest and counts it', async () => {
+  it('score reports bad rows by line and column, scores the rest and counts them', async () => {
     const bundle = shared;
-    const data = tmp.file('bad.csv', 'sepal_length,sepal_width,petal_length,petal_width\n5.1,3.5,1.4,0.2\n5.0,n/a,1.4,0.2\n\n6.7,3.0,5.2,2.3\n');
+    const data = tmp.file(
+      'bad.csv',
+      'sepal_length,sepal_width,petal_length,petal_width\n5.1,3.5,1.4,0.2\n5.0,n/a,1.4,0.2\n\n6.7,3.0\n6.7,3.0,5.2,2.3\n5,3,1,1e16\n',
+    );
     const t = io();
     const summary = await scoreAction({ bundle, data, batchSize: 1 }, t);
-    expect(summary).toMatchObject({ scored: 2, rejected: 1 });
+    expect(summary).toMatchObject({ scored: 2, rejected: 3 });
     expect(t.err.text()).toContain(`${data}, line 3, column "sepal_width": is "n/a", not a number`);
-    expect(t.out.text().trim().split('\n')).toHaveLength(2);
+    expect(t.err.text()).toContain(`${data}, line 5: has 2 fields, the header has 4`);
+    expect(t.err.text()).toContain(`${data}, line 7, column "petal_width": is 10000000000000000, beyond the accepted magnitude of 1000000000000000`);
+    const lines = t.out.text().trim().split('\n').map((l) => (JSON.parse(l) as { line: number }).line);
+    expect(lines).toEqual([2, 6]);
+  });
+
+  it('score and train name an output path that cannot be written, without a stack trace', async () => {
+    const missing = `${tmp.dir}/no/such/dir/out.jsonl`;
+    await expect(scoreAction({ bundle: shared, data: irisData, out: missing, batchSize: 8 }, io())).rejects.toThrow(`--out ${missing}: cannot be written (ENOENT)`);
+    await expect(trainAction(trainContext(irisData, tmp.dir, { epochs: 2 }), io())).rejects.toThrow(/--out .*: cannot be written \(E(ISDIR|EXIST)\)/);
+  });
+
+  it('train warns when a class has too few rows for its metrics to mean much', async () => {
+    const rows = irisCsv().trim().split('\n');
+    const data = tmp.file('rare.csv', `${[...rows, '5.0,3.0,3.0,1.0,hybrid'].join('\n')}\n`);
+    const t = io();
+    const { bundle } = await trainAction(trainContext(data, tmp.file('rare.bundle.json'), { epochs: 5 }), t);
+    expect(t.err.text()).toContain('warning: class "hybrid" has only 1 row; its validation metrics are unreliable');
+    // a one-row class is trained on, not held out
+    expect(bundle.training.metrics.validation?.per_class.hybrid?.support).toBe(0);
   });
 
   it('score names a missing feature column', async () => {
@@ -107,7 +131,7 @@ describe('plumbline train, then plumbline score', () => {
     await expect(scoreAction({ bundle, data, batchSize: 8 }, io())).rejects.toThrow(/column "petal_width": feature column not found/);
   });
 
-  it('the command line exits 2 with a one-line message for a bad flag, a bad file or a bad bundle', async () => {
+  it('the command line exits 2 for a bad flag, a bad file or a bad bundle, with the message on stderr', async () => {
     const cli = ['--import', 'tsx', 'src/cli/main.ts'];
     const fail = async (args: string[]): Promise<{ code: number; stderr: string }> => {
       try {
@@ -120,7 +144,7 @@ describe('plumbline train, then plumbline score', () => {
     };
     const badEpochs = await fail(['train', '--data', 'x.csv', '--label', 'y', '--name', 'n', '--out', 'o', '--epochs', 'many']);
     expect(badEpochs.stderr).toMatch(/option '--epochs <n>' argument 'many' is invalid\. expected an integer in \[1, 100000\]/);
-    expect(badEpochs.code).not.toBe(0);
+    expect(badEpochs.code).toBe(2);
     const missing = await fail(['score', '--bundle', tmp.file('nope.bundle.json'), '--data', 'x.csv']);
     expect(missing.code).toBe(2);
     expect(missing.stderr).toMatch(/^plumbline: bundle .*nope\.bundle\.json refused: cannot be read \(ENOENT\)\n$/);

@@ -27,6 +27,12 @@ describe('temperature scaling (Guo et al. 2017)', () => {
   });
 });
 
+describe('temperature scaling on logits that carry no information', () => {
+  it('leaves T at 1 when every row has equal logits, since the NLL does not depend on T', () => {
+    expect(fitTemperature(Float64Array.of(2, 2, 2, -1, -1, -1), 2, 3, [0, 2])).toBe(1);
+  });
+});
+
 describe('expected calibration error', () => {
   reference.temperature.forEach((c, i) => {
     it(`matches the numpy reference before and after scaling, case ${i + 1}`, () => {

@@ -24,6 +24,16 @@ describe('stratified split', () => {
     expect(s.train.filter((i) => i >= 8)).toHaveLength(1);
   });
 
+  it('trains on a class with a single row rather than holding it out', () => {
+    const s = stratifiedSplit([0, 0, 0, 0, 1], 2, 0.5, createRng(1));
+    expect(s.train).toContain(4);
+    expect(s.validation).not.toContain(4);
+  });
+
+  it('holds out nothing when the fraction is 0', () => {
+    expect(stratifiedSplit([0, 0, 1, 1], 2, 0, createRng(1))).toEqual({ train: [0, 1, 2, 3], validation: [] });
+  });
+
   it('takes the rows of a row-major matrix', () => {
     expect(Array.from(takeRows(Float64Array.of(1, 2, 3, 4, 5, 6), 2, [2, 0]))).toEqual([5, 6, 1, 2]);
   });

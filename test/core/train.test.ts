@@ -4,7 +4,7 @@ import { forward } from '../../src/core/network.js';
 import { createRng } from '../../src/core/rng.js';
 import { take, takeRows } from '../../src/core/split.js';
 import { fitStandardizer, standardize } from '../../src/core/standardize.js';
-import { DEFAULT_TRAIN_OPTIONS, classWeightsFor, trainClassifier } from '../../src/core/train.js';
+import { DEFAULT_TRAIN_OPTIONS, classWeightsFor, createWorkspace, initNetwork, lossAndGradients, trainClassifier, zeroGradients } from '../../src/core/train.js';
 import { irisRows, stratifiedFolds } from '../helpers/datasets.js';
 
 const rows = irisRows();
@@ -61,6 +61,33 @@ describe('training', () => {
     );
     expect(res.stoppedEarly).toBe(true);
     expect(res.epochsRun).toBe(res.bestEpoch + 10);
+  });
+
+  it('takes Adam steps with decoupled weight decay: the first moves each weight by lr g / (|g| + eps) after shrinking it by lr wd (Kingma & Ba 2015, Algorithm 1; Loshchilov & Hutter 2019)', () => {
+    const rng = createRng(9);
+    const n = 12;
+    const x = Float64Array.from({ length: n * 3 }, () => rng.normal());
+    const y = Int32Array.from({ length: n }, (_, i) => i % 3);
+    const options = { ...DEFAULT_TRAIN_OPTIONS, hidden: [4], epochs: 1, batchSize: n, learningRate: 0.01, weightDecay: 0.1, seed: 4 };
+    // The same initial network trainClassifier starts from (its first use of the seed).
+    const start = initNetwork([3, 4, 3], 'relu', 0, createRng(4));
+    const ws = createWorkspace(start, n);
+    ws.input.set(x);
+    const grads = zeroGradients(start);
+    lossAndGradients(start, ws, y, new Float64Array(n).fill(1), n, grads);
+    const after = trainClassifier({ x, labels: y, rows: n }, null, 3, [1, 1, 1], options).network;
+    start.layers.forEach((layer, l) => {
+      layer.weights.forEach((w0, i) => {
+        const g = grads.weights[l]![i]!;
+        // bias-corrected m = g and v = g^2 after one step
+        const expected = w0 * (1 - 0.01 * 0.1) - (0.01 * g) / (Math.abs(g) + 1e-8);
+        expect(after.layers[l]!.weights[i]).toBeCloseTo(expected, 12);
+      });
+      layer.bias.forEach((b0, i) => {
+        const g = grads.bias[l]![i]!;
+        expect(after.layers[l]!.bias[i]).toBeCloseTo(b0 - (0.01 * g) / (Math.abs(g) + 1e-8), 12);
+      });
+    });
   });
 
   it('weights classes by n / (K n_k) when balancing', () => {

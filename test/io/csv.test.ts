@@ -1,7 +1,7 @@
 import { Readable } from 'node:stream';
 import { describe, expect, it } from 'vitest';
-import { DataFileError, openCsv, parseDecimal } from '../../src/io/csv.js';
-import { DataFileErrors, indexLabels, planColumns, readLabelledCsv } from '../../src/io/feature-table.js';
+import { openCsv, parseDecimal } from '../../src/io/csv.js';
+import { DataFileErrors, indexLabels, parseFeatures, planColumns, readLabelledCsv } from '../../src/io/feature-table.js';
 import { tempDir } from '../helpers/datasets.js';
 
 async function rowsOf(text: string): Promise<{ header: string[]; rows: Array<{ line: number; fields: string[] }> }> {
@@ -54,9 +54,19 @@ describe('CSV reader (RFC 4180)', () => {
     ]);
   });
 
-  it('reports a row with the wrong number of fields by its line', async () => {
-    await expect(rowsOf('a,b\n1,2\n3\n')).rejects.toThrow(DataFileError);
-    await expect(rowsOf('a,b\n1,2\n3\n')).rejects.toThrow(/test\.csv, line 3: has 1 field, the header has 2/);
+  it('passes a row of the wrong width on, for parseFeatures to report by its line', async () => {
+    const { header, rows } = await rowsOf('a,b\n1,2\n3\n4,5\n');
+    expect(rows.map((r) => r.fields)).toEqual([['1', '2'], ['3'], ['4', '5']]);
+    const plan = planColumns(header, 'test.csv', {});
+    expect(() => parseFeatures(rows[1]!.fields, rows[1]!.line, plan, 'test.csv', new Float64Array(2), 0)).toThrow(/^test\.csv, line 3: has 1 field, the header has 2$/);
+  });
+
+  it('keeps a record that is one quoted empty field, unlike a blank line', async () => {
+    const { rows } = await rowsOf('a\n""\n\nx\n');
+    expect(rows).toEqual([
+      { line: 2, fields: [''] },
+      { line: 4, fields: ['x'] },
+    ]);
   });
 
   it('reports an unclosed quote at the line where it opens', async () => {
@@ -92,7 +102,7 @@ describe('decimal fields', () => {
 describe('feature table', () => {
   it('picks feature columns by name and ignores the rest', () => {
     const plan = planColumns(['id', 'b', 'a', 'label'], 'f.csv', { features: ['a', 'b'], label: 'label' });
-    expect(plan).toEqual({ featureNames: ['a', 'b'], featureIndex: [2, 1], labelIndex: 3 });
+    expect(plan).toEqual({ featureNames: ['a', 'b'], featureIndex: [2, 1], labelIndex: 3, width: 4 });
   });
 
   it('names a missing column and lists what the header has', () => {

@@ -5,9 +5,10 @@ import type { ActivationName } from '../../core/activations.js';
 import type { EpochReport } from '../../core/train.js';
 import { type FeatureInfo, featureSchema, modelNameSchema, modelVersionSchema } from '../../bundle/schema.js';
 import { type TrainedBundle, trainBundle } from '../../bundle/train-bundle.js';
-import { writeBundle } from '../../bundle/write.js';
+import { BundleError, parseBundle } from '../../bundle/verify.js';
+import { serializeBundle, writeBundle } from '../../bundle/write.js';
 import { indexLabels, readLabelledCsv } from '../../io/feature-table.js';
-import { type CliIo, UsageError } from '../io.js';
+import { type CliIo, UsageError, fileProblem } from '../io.js';
 import { formatMetrics } from './metrics-table.js';
 
 export interface TrainContext {
@@ -100,6 +101,11 @@ export async function trainAction(ctx: TrainContext, io: CliIo): Promise<Trained
   if (badFeature) throw new UsageError(`${ctx.data}: column ${JSON.stringify(badFeature.name)} is not a usable feature name (1-64 printable characters)`);
 
   io.stderr.write(`read ${table.rows} rows, ${features.length} features, ${classes.length} classes from ${ctx.data}\n`);
+  const counts = classes.map((_, k) => indices.filter((i) => i === k).length);
+  classes.forEach((c, k) => {
+    // Fewer than 10 rows leave one or two for validation: its metrics say little.
+    if ((counts[k] as number) < 10) io.stderr.write(`warning: class ${JSON.stringify(c)} has only ${counts[k]} row${counts[k] === 1 ? '' : 's'}; its validation metrics are unreliable\n`);
+  });
   const progress = progressReporter(io);
   let trained: TrainedBundle;
   try {
@@ -116,7 +122,18 @@ export async function trainAction(ctx: TrainContext, io: CliIo): Promise<Trained
   } finally {
     progress.stop();
   }
-  await writeBundle(ctx.out, trained.bundle);
+  // Read back what is about to be written: a bundle that would be refused is never written.
+  try {
+    parseBundle(serializeBundle(trained.bundle), ctx.out);
+  } catch (err) {
+    if (err instanceof BundleError) throw new UsageError(`the trained bundle does not verify, so it was not written: ${err.message}`);
+    throw err;
+  }
+  try {
+    await writeBundle(ctx.out, trained.bundle);
+  } catch (err) {
+    throw fileProblem('--out', ctx.out, err);
+  }
   io.stdout.write(`${formatMetrics(trained.bundle)}\nbundle ${ctx.out}\nsha256 ${trained.bundle.sha256}\n`);
   return trained;
 }

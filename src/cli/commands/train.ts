@@ -49,7 +49,7 @@ export function registerTrain(program: Command): void {
     .option('--patience <n>', 'epochs without a better validation loss before stopping', integerIn(1, 100000), d.patience)
     .option('--validation-split <x>', 'share of each class held out for validation and calibration', numberIn(0, 0.9), 0.2)
     .option('--balance', 'weight classes by n / (classes x class count)', false)
-    .option('--seed <n>', 'seed of every random choice; same data, options and seed give the same bundle', integerIn(0, 4294967295), d.seed)
+    .option('--seed <n>', 'seed of every random choice; same data, options, seed and SOURCE_DATE_EPOCH give the same bundle', integerIn(0, 4294967295), d.seed)
     .option('--tolerance <x>', 'envelope widening, as a share of the 0.1%-99.9% range', numberIn(0, 100), DOMAIN_DEFAULTS.tolerance)
     .option('--review-margin <x>', 'answers with a smaller margin are marked for review', numberIn(0, 1), DOMAIN_DEFAULTS.reviewMargin)
     .requiredOption('--name <name>', 'model name, [a-z0-9][a-z0-9._-]{0,63}')

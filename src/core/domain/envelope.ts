@@ -21,11 +21,32 @@ export function fitEnvelope(x: Float64Array, rows: number, cols: number, toleran
     const sorted = sortedCopy(column(x, rows, cols, j));
     const qLo = quantileSorted(sorted, ENVELOPE_LEVELS.low);
     const qHi = quantileSorted(sorted, ENVELOPE_LEVELS.high);
-    const widen = tolerance * (qHi - qLo);
-    low.push(qLo - widen);
-    high.push(qHi + widen);
+    const range = qHi - qLo;
+    const widen = tolerance * range;
+    const [lo, hi] = roundOutward(qLo - widen, qHi + widen, range);
+    low.push(lo);
+    high.push(hi);
   }
   return { tolerance, low, high };
+}
+
+/**
+ * Rounds the bounds outwards to 5 significant digits of the range, so that a person reads
+ * 2.025 rather than 2.0250000000000004; the envelope only grows (by under 0.01% of R), apart from
+ * the float noise beyond 12 significant digits that is dropped first.
+ * An integer divided by a power of ten is the double nearest that decimal, which prints short.
+ */
+export function roundOutward(low: number, high: number, range: number): [number, number] {
+  if (!(range > 0) || !Number.isFinite(range)) return [low, high];
+  const digits = 4 - Math.floor(Math.log10(range));
+  // toPrecision(12) first drops float noise, so that 9880.000000000001 does not floor a step down.
+  const clean = (v: number): number => Number(v.toPrecision(12));
+  if (digits <= 0) {
+    const step = 10 ** -digits;
+    return [Math.floor(clean(low / step)) * step, Math.ceil(clean(high / step)) * step];
+  }
+  const scale = 10 ** digits;
+  return [Math.floor(clean(low * scale)) / scale, Math.ceil(clean(high * scale)) / scale];
 }
 
 /** Indices of the features of one row that lie outside the envelope (NaN counts as outside). */
