@@ -1,0 +1,127 @@
+import type { ModelEntry, ModelRegistry } from '../bundle/registry.js';
+import { type ScoreResponse, ScoreOverflowError, modelRef } from '../bundle/scorer.js';
+import { type FieldError, ProblemError, pointer } from '../errors.js';
+import { uuidv7 } from '../ids.js';
+import { LogBackpressureError, LogClosedError, type RequestLog, type ScoredRow } from '../store/request-log.js';
+
+export interface ScoreItem {
+  features: Record<string, number> | number[];
+  tags?: Record<string, string> | undefined;
+}
+
+export interface CallContext {
+  /** Id of the HTTP request (the service log's reqId). */
+  requestId: string;
+  /** Unix ms when the request arrived. */
+  receivedAt: number;
+  /** Milliseconds since the request arrived, read when the answer is ready. */
+  elapsedMs: () => number;
+}
+
+export interface ScoringService {
+  scoreOne(model: string, item: ScoreItem, ctx: CallContext): Promise<ScoreResponse>;
+  scoreBatch(model: string, items: ScoreItem[], ctx: CallContext): Promise<ScoreResponse[]>;
+}
+
+function findModel(registry: ModelRegistry, name: string): ModelEntry {
+  const entry = registry.get(name);
+  if (!entry) {
+    const known = registry.list().map((e) => e.name);
+    throw new ProblemError('unknown-model', `no model named ${JSON.stringify(name)} is loaded; loaded: ${known.length ? known.join(', ') : 'none'}`);
+  }
+  return entry;
+}
+
+/**
+ * Puts one item's features into out[offset..] in the bundle's order, or lists what is wrong:
+ * by name, exactly the bundle's features; as an array, exactly as many values, in its order.
+ */
+export function placeFeatures(entry: ModelEntry, item: ScoreItem, at: Array<string | number>, out: Float64Array, offset: number): FieldError[] {
+  const names = entry.scorer.featureNames;
+  const errors: FieldError[] = [];
+  const f = item.features;
+  if (Array.isArray(f)) {
+    if (f.length !== names.length) {
+      errors.push({ pointer: pointer([...at, 'features']), detail: `holds ${f.length} values; ${entry.name} takes ${names.length}, in this order: ${names.join(', ')}` });
+      return errors;
+    }
+    for (let j = 0; j < f.length; j++) out[offset + j] = f[j] as number;
+    return errors;
+  }
+  for (let j = 0; j < names.length; j++) {
+    const v = f[names[j] as string];
+    if (v === undefined) errors.push({ pointer: pointer([...at, 'features', names[j] as string]), detail: `is missing; ${entry.name} needs every one of: ${names.join(', ')}` });
+    else out[offset + j] = v;
+  }
+  for (const key of Object.keys(f)) {
+    if (!names.includes(key)) errors.push({ pointer: pointer([...at, 'features', key]), detail: `is not a feature of ${entry.name}` });
+  }
+  return errors;
+}
+
+function toProblem(err: unknown): never {
+  if (err instanceof LogBackpressureError) {
+    throw new ProblemError('log-backpressure', `${err.message}; nothing of this request was scored or logged`, undefined, { 'retry-after': '1' });
+  }
+  if (err instanceof LogClosedError) throw new ProblemError('not-ready', 'the service is shutting down; nothing of this request was scored or logged', undefined, {}, err);
+  throw new ProblemError('log-unavailable', 'the audit log could not be written, so this answer was withheld; nothing of it is logged', undefined, {}, err);
+}
+
+/**
+ * Scores and logs. An answer is returned only after its audit rows are committed; a request
+ * with any bad item is refused whole, before anything is scored or logged.
+ */
+export function createScoringService(registry: ModelRegistry, log: RequestLog): ScoringService {
+  const run = async (name: string, items: ScoreItem[], ctx: CallContext, batch: boolean): Promise<ScoreResponse[]> => {
+    const entry = findModel(registry, name);
+    const d = entry.scorer.featureNames.length;
+    const x = new Float64Array(items.length * d);
+    const errors = items.flatMap((item, i) => placeFeatures(entry, item, batch ? ['items', i] : [], x, i * d));
+    if (errors.length > 0) {
+      const first = batch ? ` (first at item ${/^#\/items\/(\d+)/.exec(errors[0]?.pointer ?? '')?.[1]})` : '';
+      throw new ProblemError('invalid-request', `the features do not match model ${entry.name}${first}; nothing was scored`, errors);
+    }
+    let outcomes;
+    try {
+      outcomes = entry.scorer.scoreRows(x, items.length);
+    } catch (err) {
+      if (!(err instanceof ScoreOverflowError)) throw err;
+      const at = pointer(batch ? ['items', err.row, 'features'] : ['features']);
+      throw new ProblemError('invalid-request', 'these values overflow the network; nothing was scored', [{ pointer: at, detail: 'the network gives a non-finite logit for these values' }]);
+    }
+    const model = modelRef(entry.bundle);
+    const latencyUs = ctx.elapsedMs() * 1000;
+    const classes = entry.bundle.file.classes;
+    const responses: ScoreResponse[] = [];
+    const rows: ScoredRow[] = outcomes.map((o, i) => {
+      const requestId = batch ? uuidv7() : ctx.requestId;
+      responses.push({ request_id: requestId, model, ...o });
+      const tags = items[i]?.tags;
+      return {
+        requestId,
+        batchId: batch ? ctx.requestId : null,
+        receivedAt: ctx.receivedAt,
+        model,
+        features: x.subarray(i * d, i * d + d),
+        tags: tags && Object.keys(tags).length > 0 ? tags : null,
+        label: o.label,
+        probabilities: classes.map((c) => o.probabilities[c] as number),
+        margin: o.margin,
+        inDomain: o.domain.in_domain,
+        review: o.review,
+        domain: { checks: o.domain.checks, outside: o.domain.outside },
+        latencyUs,
+      };
+    });
+    try {
+      await log.append(rows);
+    } catch (err) {
+      toProblem(err);
+    }
+    return responses;
+  };
+  return {
+    scoreOne: async (name, item, ctx) => (await run(name, [item], ctx, false))[0] as ScoreResponse,
+    scoreBatch: (name, items, ctx) => run(name, items, ctx, true),
+  };
+}

@@ -1,0 +1,257 @@
+import type { Database, Statement } from 'better-sqlite3';
+import { toFloat64Blob } from './float64-blob.js';
+
+export interface ScoredRow {
+  requestId: string;
+  batchId: string | null;
+  receivedAt: number;
+  model: { sha256: string; name: string; version: string };
+  features: ArrayLike<number>;
+  tags: Record<string, string> | null;
+  label: string;
+  probabilities: ArrayLike<number>;
+  margin: number;
+  inDomain: boolean;
+  review: boolean;
+  domain: { checks: unknown[]; outside: unknown[] };
+  latencyUs: number;
+}
+
+export interface RejectedRow {
+  requestId: string;
+  receivedAt: number;
+  method: string;
+  route: string;
+  modelName: string | null;
+  status: number;
+  problemType: string;
+  bodyBytes: number | null;
+}
+
+export interface WriterOptions {
+  /** Wait this long for more rows before committing; 0 commits on the next turn of the event loop. */
+  flushMs: number;
+  /** Rows per transaction at most; reaching it commits without waiting. */
+  flushRows: number;
+  /** Rows allowed to wait; beyond it append() refuses at once. */
+  queueRows: number;
+  /** Newest rejected rows kept. */
+  rejectedRows: number;
+}
+
+/** The queue is full: the caller should answer 503 and ask the client to retry. */
+export class LogBackpressureError extends Error {
+  constructor(readonly waiting: number) {
+    super(`the audit log has ${waiting} rows waiting to be written`);
+    this.name = 'LogBackpressureError';
+  }
+}
+
+/** The rows could not be committed; they are not in the log and must not be acknowledged. */
+export class LogWriteError extends Error {
+  constructor(cause: unknown) {
+    super(`the audit log could not be written: ${(cause as Error).message ?? String(cause)}`, { cause });
+    this.name = 'LogWriteError';
+  }
+}
+
+export class LogClosedError extends Error {
+  constructor() {
+    super('the audit log is closed');
+    this.name = 'LogClosedError';
+  }
+}
+
+interface Pending {
+  rows: ScoredRow[];
+  resolve: () => void;
+  reject: (err: Error) => void;
+}
+
+export interface LogStats {
+  committedRows: number;
+  failedRows: number;
+  transactions: number;
+  waitingRows: number;
+  lastError: string | null;
+}
+
+export interface RequestLog {
+  /**
+   * Queues the rows of one request; resolves once they are committed, in one transaction and in
+   * the order given. Rejects with LogBackpressureError, LogWriteError or LogClosedError, in which
+   * case none of the rows is in the log.
+   */
+  append(rows: ScoredRow[]): Promise<void>;
+  /** Records a refused request; best effort, never delays or fails the caller. */
+  appendRejected(row: RejectedRow): void;
+  /** Commits whatever waits, now. */
+  flush(): void;
+  stats(): LogStats;
+  /** Commits what waits and refuses further rows. */
+  close(): void;
+}
+
+/**
+ * Group commit: requests queue their rows and a single writer commits everything waiting in one
+ * transaction, on the next turn of the event loop (or after flushMs), so that one commit serves
+ * many requests. A request is answered only after its rows are committed. If a transaction fails,
+ * each request's rows are retried alone so that one bad request cannot fail the others.
+ */
+export function createRequestLog(db: Database, options: WriterOptions): RequestLog {
+  const insertScored: Statement = db.prepare(`INSERT INTO scored_requests
+    (request_id, batch_id, received_at, model_sha256, model_name, model_version, features, tags, label,
+     probabilities, margin, in_domain, review, domain, latency_us)
+    VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`);
+  const insertRejected: Statement = db.prepare(`INSERT INTO rejected_requests
+    (request_id, received_at, method, route, model_name, status, problem_type, body_bytes)
+    VALUES (?, ?, ?, ?, ?, ?, ?, ?)`);
+  const pruneRejected: Statement = db.prepare('DELETE FROM rejected_requests WHERE seq <= (SELECT MAX(seq) FROM rejected_requests) - ?');
+
+  let queue: Pending[] = [];
+  let rejected: RejectedRow[] = [];
+  let waiting = 0;
+  let timer: NodeJS.Timeout | NodeJS.Immediate | null = null;
+  let closed = false;
+  let rejectedSincePrune = 0;
+  const stats: LogStats = { committedRows: 0, failedRows: 0, transactions: 0, waitingRows: 0, lastError: null };
+
+  const writeScored = (r: ScoredRow): void => {
+    insertScored.run(
+      r.requestId,
+      r.batchId,
+      r.receivedAt,
+      r.model.sha256,
+      r.model.name,
+      r.model.version,
+      toFloat64Blob(r.features),
+      r.tags ? JSON.stringify(r.tags) : null,
+      r.label,
+      toFloat64Blob(r.probabilities),
+      r.margin,
+      r.inDomain ? 1 : 0,
+      r.review ? 1 : 0,
+      JSON.stringify(r.domain),
+      Math.round(r.latencyUs),
+    );
+  };
+  const writeRejected = (r: RejectedRow): void => {
+    insertRejected.run(r.requestId, r.receivedAt, r.method, r.route, r.modelName, r.status, r.problemType, r.bodyBytes);
+  };
+  const commitGroup = db.transaction((group: Pending[], refused: RejectedRow[]) => {
+    for (const p of group) for (const r of p.rows) writeScored(r);
+    for (const r of refused) writeRejected(r);
+  });
+  const commitOne = db.transaction((p: Pending) => {
+    for (const r of p.rows) writeScored(r);
+  });
+
+  const settle = (group: Pending[]): void => {
+    try {
+      commitGroup(group, []);
+      stats.transactions++;
+      for (const p of group) {
+        stats.committedRows += p.rows.length;
+        p.resolve();
+      }
+      return;
+    } catch (err) {
+      stats.lastError = (err as Error).message;
+      if (group.length === 1) {
+        stats.failedRows += (group[0] as Pending).rows.length;
+        (group[0] as Pending).reject(new LogWriteError(err));
+        return;
+      }
+    }
+    // The group failed: find the culprit by committing each request on its own.
+    for (const p of group) {
+      try {
+        commitOne(p);
+        stats.transactions++;
+        stats.committedRows += p.rows.length;
+        p.resolve();
+      } catch (err) {
+        stats.failedRows += p.rows.length;
+        stats.lastError = (err as Error).message;
+        p.reject(new LogWriteError(err));
+      }
+    }
+  };
+
+  const flush = (): void => {
+    timer = null;
+    const pending = queue;
+    const refused = rejected;
+    queue = [];
+    rejected = [];
+    waiting = 0;
+    // Transactions of at most flushRows rows, whole requests only.
+    let group: Pending[] = [];
+    let rows = 0;
+    for (const p of pending) {
+      if (rows > 0 && rows + p.rows.length > options.flushRows) {
+        settle(group);
+        group = [];
+        rows = 0;
+      }
+      group.push(p);
+      rows += p.rows.length;
+    }
+    if (group.length > 0) settle(group);
+    if (refused.length > 0) {
+      try {
+        commitGroup([], refused);
+        rejectedSincePrune += refused.length;
+        if (rejectedSincePrune >= 1000) {
+          pruneRejected.run(options.rejectedRows);
+          rejectedSincePrune = 0;
+        }
+      } catch (err) {
+        stats.lastError = (err as Error).message;
+      }
+    }
+  };
+
+  let timerImmediate = false;
+  const cancel = (): void => {
+    if (timer === null) return;
+    if (timerImmediate) clearImmediate(timer as NodeJS.Immediate);
+    else clearTimeout(timer as NodeJS.Timeout);
+    timer = null;
+  };
+  const schedule = (): void => {
+    const urgent = options.flushMs === 0 || waiting >= options.flushRows;
+    if (timer !== null && (timerImmediate || !urgent)) return;
+    cancel();
+    timer = urgent ? setImmediate(flush) : setTimeout(flush, options.flushMs);
+    timerImmediate = urgent;
+  };
+
+  return {
+    append(rows) {
+      if (closed) return Promise.reject(new LogClosedError());
+      if (waiting + rows.length > options.queueRows) return Promise.reject(new LogBackpressureError(waiting));
+      return new Promise<void>((resolve, reject) => {
+        queue.push({ rows, resolve, reject });
+        waiting += rows.length;
+        schedule();
+      });
+    },
+    appendRejected(row) {
+      if (closed) return;
+      // Bounded: under a flood of garbage, refusals beyond the queue bound go unrecorded; scored rows never do.
+      if (rejected.length < options.queueRows) rejected.push(row);
+      schedule();
+    },
+    flush() {
+      cancel();
+      flush();
+    },
+    stats: () => ({ ...stats, waitingRows: waiting }),
+    close() {
+      if (closed) return;
+      this.flush();
+      closed = true;
+    },
+  };
+}

@@ -1,0 +1,140 @@
+import type { Database } from 'better-sqlite3';
+import type { DomainCheck, OutsideFeature } from '../bundle/scorer.js';
+import { fromFloat64Blob } from './float64-blob.js';
+import { createModelCache } from './models-table.js';
+
+export interface RequestFilter {
+  model?: string;
+  /** Unix ms, inclusive. */
+  from?: number;
+  /** Unix ms, exclusive. */
+  to?: number;
+  inDomain?: boolean;
+  label?: string;
+  /** Every pair must be among the row's tags. */
+  tags?: Array<[string, string]>;
+}
+
+export interface LoggedRequest {
+  request_id: string;
+  batch_id: string | null;
+  received_at: string;
+  model: { name: string; version: string; sha256: string };
+  features: Record<string, number>;
+  tags: Record<string, string>;
+  label: string;
+  probabilities: Record<string, number>;
+  margin: number;
+  review: boolean;
+  in_domain: boolean;
+  domain: { checks: DomainCheck[]; outside: OutsideFeature[] };
+  latency_ms: number;
+}
+
+export interface RequestPage {
+  items: LoggedRequest[];
+  next_cursor: string | null;
+}
+
+export class CursorError extends Error {
+  constructor() {
+    super('is not a cursor this service gave out');
+    this.name = 'CursorError';
+  }
+}
+
+interface Row {
+  seq: number;
+  request_id: string;
+  batch_id: string | null;
+  received_at: number;
+  model_sha256: string;
+  model_name: string;
+  model_version: string;
+  features: Buffer;
+  tags: string | null;
+  label: string;
+  probabilities: Buffer;
+  margin: number;
+  in_domain: number;
+  review: number;
+  domain: string;
+  latency_us: number;
+}
+
+// Opaque to clients: "r1." + the last seq seen, base64url. The prefix lets the format change later.
+function encodeCursor(seq: number): string {
+  return Buffer.from(`r1.${seq}`).toString('base64url');
+}
+
+function decodeCursor(cursor: string): number {
+  const text = Buffer.from(cursor, 'base64url').toString('utf8');
+  const m = /^r1\.(\d{1,16})$/.exec(text);
+  if (!m || Buffer.from(text).toString('base64url') !== cursor) throw new CursorError();
+  return Number(m[1]);
+}
+
+/** Pages through the audit log, newest first; the cursor continues where the last page ended. */
+export function createRequestQuery(db: Database): (filter: RequestFilter, limit: number, cursor?: string) => RequestPage {
+  const model = createModelCache(db);
+  return (filter, limit, cursor) => {
+    const where: string[] = [];
+    const args: unknown[] = [];
+    if (cursor !== undefined) {
+      where.push('seq < ?');
+      args.push(decodeCursor(cursor));
+    }
+    if (filter.model !== undefined) {
+      where.push('model_name = ?');
+      args.push(filter.model);
+    }
+    if (filter.from !== undefined) {
+      where.push('received_at >= ?');
+      args.push(filter.from);
+    }
+    if (filter.to !== undefined) {
+      where.push('received_at < ?');
+      args.push(filter.to);
+    }
+    if (filter.inDomain !== undefined) {
+      where.push('in_domain = ?');
+      args.push(filter.inDomain ? 1 : 0);
+    }
+    if (filter.label !== undefined) {
+      where.push('label = ?');
+      args.push(filter.label);
+    }
+    for (const [k, v] of filter.tags ?? []) {
+      where.push("EXISTS (SELECT 1 FROM json_each(scored_requests.tags) AS t WHERE t.key = ? AND t.value = ? AND t.type = 'text')");
+      args.push(k, v);
+    }
+    const sql = `SELECT * FROM scored_requests ${where.length ? `WHERE ${where.join(' AND ')}` : ''} ORDER BY seq DESC LIMIT ?`;
+    const rows = db.prepare(sql).all(...args, limit + 1) as Row[];
+    const more = rows.length > limit;
+    const page = more ? rows.slice(0, limit) : rows;
+    return {
+      items: page.map((r) => toItem(r, model(r.model_sha256))),
+      next_cursor: more ? encodeCursor((page[page.length - 1] as Row).seq) : null,
+    };
+  };
+}
+
+function toItem(r: Row, m: ReturnType<ReturnType<typeof createModelCache>>): LoggedRequest {
+  const features = fromFloat64Blob(r.features);
+  const probabilities = fromFloat64Blob(r.probabilities);
+  return {
+    request_id: r.request_id,
+    batch_id: r.batch_id,
+    received_at: new Date(r.received_at).toISOString(),
+    model: { name: r.model_name, version: r.model_version, sha256: r.model_sha256 },
+    features: Object.fromEntries(Array.from(features, (v, j) => [m?.features[j]?.name ?? `feature_${j}`, v])),
+    tags: r.tags ? (JSON.parse(r.tags) as Record<string, string>) : {},
+    label: r.label,
+    probabilities: Object.fromEntries(Array.from(probabilities, (v, k) => [m?.classes[k] ?? `class_${k}`, v])),
+    margin: r.margin,
+    review: r.review === 1,
+    in_domain: r.in_domain === 1,
+    domain: JSON.parse(r.domain) as LoggedRequest['domain'],
+    latency_ms: r.latency_us / 1000,
+  };
+}

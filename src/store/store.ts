@@ -1,0 +1,49 @@
+import type { Database } from 'better-sqlite3';
+import { type OpenOptions, openDatabase } from './database.js';
+import { type ModelRecord, recordModel } from './models-table.js';
+import { type RequestLog, type WriterOptions, createRequestLog } from './request-log.js';
+import { type RequestFilter, type RequestPage, createRequestQuery } from './request-query.js';
+
+/** Everything the rest of the service may ask of the database; SQL stays behind this. */
+export interface Store {
+  readonly file: string;
+  readonly log: RequestLog;
+  recordModel(m: ModelRecord): void;
+  queryRequests(filter: RequestFilter, limit: number, cursor?: string): RequestPage;
+  /** Whether a write transaction can be opened now (readiness). */
+  isWritable(): boolean;
+  close(): void;
+}
+
+export function openStore(file: string, options: OpenOptions & WriterOptions): Store {
+  const db: Database = openDatabase(file, options);
+  const log = createRequestLog(db, options);
+  const query = createRequestQuery(db);
+  const probe = db.prepare('SELECT 1');
+  let closed = false;
+  return {
+    file,
+    log,
+    recordModel: (m) => recordModel(db, m),
+    queryRequests: query,
+    isWritable() {
+      if (closed) return false;
+      try {
+        // BEGIN IMMEDIATE takes the write lock: it fails on a read-only or locked database.
+        db.exec('BEGIN IMMEDIATE');
+        probe.get();
+        db.exec('ROLLBACK');
+        return true;
+      } catch {
+        if (db.inTransaction) db.exec('ROLLBACK');
+        return false;
+      }
+    },
+    close() {
+      if (closed) return;
+      log.close();
+      closed = true;
+      db.close();
+    },
+  };
+}

@@ -1,0 +1,58 @@
+import BetterSqlite3 from 'better-sqlite3';
+import { afterEach, describe, expect, it } from 'vitest';
+import { openDatabase } from '../../src/store/database.js';
+import { type Migration, MigrationError, migrate, readMigrations } from '../../src/store/migrate.js';
+import { tempDir } from '../helpers/datasets.js';
+
+const tmp = tempDir();
+afterEach(() => undefined);
+
+const mig = (version: number, name: string, sql: string): Migration => ({ version, name, sql, sha256: `${version}-${sql.length}` });
+
+describe('migrations', () => {
+  it('apply migrations/NNN_name.sql in order and record each in schema_migrations', () => {
+    const file = tmp.file('m1.db');
+    const db = openDatabase(file, { sync: 'normal' });
+    const recorded = db.prepare('SELECT version, name FROM schema_migrations ORDER BY version').all();
+    expect(recorded).toEqual(readMigrations().map((m) => ({ version: m.version, name: m.name })));
+    expect(db.prepare("SELECT name FROM sqlite_master WHERE type = 'table' AND name = 'scored_requests'").get()).toBeDefined();
+    expect(db.pragma('journal_mode', { simple: true })).toBe('wal');
+    db.close();
+  });
+
+  it('apply nothing twice when the database is opened again', () => {
+    const file = tmp.file('m2.db');
+    openDatabase(file, { sync: 'normal' }).close();
+    const db = new BetterSqlite3(file);
+    expect(migrate(db, readMigrations(), file).applied).toEqual([]);
+    db.close();
+  });
+
+  it('roll a failing migration back whole, leaving the database at the version before', () => {
+    const db = new BetterSqlite3(':memory:');
+    const good = mig(1, 'first', 'CREATE TABLE a (x INTEGER);');
+    const bad = mig(2, 'second', 'CREATE TABLE b (y INTEGER); INSERT INTO nowhere VALUES (1);');
+    expect(() => migrate(db, [good, bad], 'mem')).toThrow(/no such table: nowhere/);
+    const tables = (db.prepare("SELECT name FROM sqlite_master WHERE type = 'table' ORDER BY name").all() as Array<{ name: string }>).map((t) => t.name);
+    expect(tables).toEqual(['a', 'schema_migrations']);
+    expect(db.prepare('SELECT version FROM schema_migrations').all()).toEqual([{ version: 1 }]);
+    db.close();
+  });
+
+  it('refuse a database from a newer version, saying what to do', () => {
+    const db = new BetterSqlite3(':memory:');
+    migrate(db, [mig(1, 'first', 'SELECT 1;'), mig(2, 'second', 'SELECT 1;')], 'var/plumbline.db');
+    expect(() => migrate(db, [mig(1, 'first', 'SELECT 1;')], 'var/plumbline.db')).toThrow(MigrationError);
+    expect(() => migrate(db, [mig(1, 'first', 'SELECT 1;')], 'var/plumbline.db')).toThrow(
+      /database var\/plumbline\.db has schema version 2 \(second\); this plumbline knows versions up to 1\. Run a newer plumbline/,
+    );
+    db.close();
+  });
+
+  it('refuse a database whose applied migration file was edited afterwards', () => {
+    const db = new BetterSqlite3(':memory:');
+    migrate(db, [mig(1, 'first', 'SELECT 1;')], 'x.db');
+    expect(() => migrate(db, [{ ...mig(1, 'first', 'SELECT 1;'), sha256: 'changed' }], 'x.db')).toThrow(/migration 001_first was applied, but its file has changed since/);
+    db.close();
+  });
+});
