@@ -7,6 +7,7 @@ import { MigrationError } from '../store/migrate.js';
 import { DataFileError } from '../io/csv.js';
 import { DataFileErrors } from '../io/feature-table.js';
 import { registerScore } from './commands/score.js';
+import { registerServe } from './commands/serve.js';
 import { registerTrain } from './commands/train.js';
 import { UsageError } from './io.js';
 
@@ -16,6 +17,7 @@ export function buildProgram(): Command {
     .showHelpAfterError('(run with --help for usage)')
     // Before the commands are added, so that they inherit it and errors reach report().
     .exitOverride();
+  registerServe(program);
   registerTrain(program);
   registerScore(program);
   return program;

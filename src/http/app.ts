@@ -1,0 +1,128 @@
+import swagger from '@fastify/swagger';
+import Fastify, { type FastifyInstance, type FastifyServerOptions, LogController } from 'fastify';
+import { type ZodTypeProvider, jsonSchemaTransform, jsonSchemaTransformObject, serializerCompiler } from 'fastify-type-provider-zod';
+import { uuidv7 } from '../ids.js';
+import { VERSION } from '../version.js';
+import services, { type Services } from './plugins/services.js';
+import problems from './problems.js';
+import { zodValidatorCompiler } from './validation.js';
+import docs from './routes/docs.js';
+import health from './routes/health.js';
+import models from './routes/models.js';
+import requests from './routes/requests.js';
+import scoring from './routes/scoring.js';
+
+export interface AppOptions {
+  /** pino options or instance; false for none (tests). */
+  logger?: FastifyServerOptions['logger'] | FastifyServerOptions['loggerInstance'];
+  /** Version shown in the OpenAPI document; the package's by default. */
+  version?: string;
+}
+
+const PATH_MODEL = /^\/v1\/models\/([^/?]+)/;
+
+type OpenApiLike = ReturnType<typeof jsonSchemaTransformObject> & { components?: { schemas?: Record<string, unknown> } };
+
+/**
+ * Drops component schemas nothing refers to: zod's registry emits an input and an output copy of
+ * every named schema, and responses only use the output one.
+ */
+function pruneUnusedSchemas(doc: OpenApiLike): OpenApiLike {
+  const schemas = { ...(doc.components?.schemas ?? {}) };
+  for (let changed = true; changed; ) {
+    changed = false;
+    for (const name of Object.keys(schemas)) {
+      const { [name]: _, ...others } = schemas;
+      const text = JSON.stringify({ ...doc, components: { ...doc.components, schemas: others } });
+      if (!text.includes(`"#/components/schemas/${name}"`)) {
+        delete schemas[name];
+        changed = true;
+      }
+    }
+  }
+  return { ...doc, components: { ...doc.components, schemas } } as OpenApiLike;
+}
+
+/**
+ * Builds the HTTP app from services the caller made (CONVENTIONS 1 and 2): ecosystem plugins,
+ * then infrastructure (services, problems), then hooks, then one plugin per resource.
+ */
+export async function buildApp(svc: Services, options: AppOptions = {}): Promise<FastifyInstance> {
+  const logger = options.logger ?? false;
+  const isInstance = typeof logger === 'object' && logger !== null && 'child' in logger;
+  const app = Fastify({
+    ...(isInstance ? { loggerInstance: logger as FastifyServerOptions['loggerInstance'] } : { logger: logger as FastifyServerOptions['logger'] }),
+    bodyLimit: svc.config.limits.body_bytes,
+    genReqId: () => uuidv7(),
+    requestIdHeader: false,
+    // One line per request from the onResponse hook below, not fastify's two.
+    logController: new LogController({ disableRequestLogging: true, requestIdLogLabel: 'req_id' }),
+    requestTimeout: 30_000,
+    return503OnClosing: true,
+  }).withTypeProvider<ZodTypeProvider>();
+  app.setValidatorCompiler(zodValidatorCompiler);
+  app.setSerializerCompiler(serializerCompiler);
+  // JSON only: fastify would otherwise hand a text/plain body to the schema as a string.
+  app.removeContentTypeParser('text/plain');
+
+  await app.register(swagger, {
+    openapi: {
+      openapi: '3.1.0',
+      info: {
+        title: 'plumbline',
+        version: options.version ?? VERSION,
+        description:
+          'Scores feature vectors with loaded classifier bundles, says whether each vector lies inside the training domain, and keeps an audit log of every answer. Errors are RFC 9457 problem+json.',
+      },
+      tags: [
+        { name: 'scoring', description: 'class probabilities, margin and domain checks' },
+        { name: 'models', description: 'the loaded bundles' },
+        { name: 'audit', description: 'the audit log' },
+        { name: 'health', description: 'liveness and readiness' },
+      ],
+    },
+    transform: jsonSchemaTransform,
+    transformObject: (doc) => pruneUnusedSchemas(jsonSchemaTransformObject(doc) as OpenApiLike),
+  });
+
+  await app.register(services, { services: svc });
+  await app.register(problems, {
+    onRejected: ({ code, status, request }) => {
+      const path = request.url.split('?')[0] ?? '';
+      const length = Number(request.headers['content-length']);
+      svc.store.log.appendRejected({
+        requestId: request.id,
+        receivedAt: Date.now(),
+        method: request.method,
+        route: path.slice(0, 512),
+        modelName: PATH_MODEL.exec(path)?.[1]?.slice(0, 64) ?? null,
+        status,
+        problemType: code,
+        bodyBytes: Number.isFinite(length) ? length : null,
+      });
+    },
+  });
+
+  // While shutting down, answers ask the client to close its connection, so that keep-alive
+  // sockets do not hold the process open until their timeout.
+  let closing = false;
+  app.addHook('preClose', async () => {
+    closing = true;
+  });
+  app.addHook('onSend', async (_request, reply, payload) => {
+    if (closing) reply.header('connection', 'close');
+    return payload;
+  });
+
+  app.addHook('onResponse', async (request, reply) => {
+    // Method, route and outcome only: feature values are never logged at info level.
+    request.log.info({ method: request.method, route: request.routeOptions.url ?? null, status: reply.statusCode, ms: Number(reply.elapsedTime.toFixed(3)) }, 'answered');
+  });
+
+  await app.register(health);
+  await app.register(models);
+  await app.register(scoring);
+  await app.register(requests);
+  await app.register(docs);
+  return app;
+}

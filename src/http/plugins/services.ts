@@ -1,0 +1,30 @@
+import type { FastifyInstance } from 'fastify';
+import fp from 'fastify-plugin';
+import type { ModelRegistry } from '../../bundle/registry.js';
+import type { Config } from '../../config.js';
+import type { ScoringService } from '../../scoring/service.js';
+import type { Store } from '../../store/store.js';
+
+export interface Services {
+  config: Config;
+  registry: ModelRegistry;
+  store: Store;
+  scoring: ScoringService;
+}
+
+declare module 'fastify' {
+  interface FastifyInstance {
+    services: Services;
+  }
+}
+
+/**
+ * Makes the services built by the caller available to the routes. The caller owns them: it
+ * created them before the app and closes them after it (see server.ts), so that tests can
+ * inspect the database a route wrote to.
+ */
+async function services(app: FastifyInstance, options: { services: Services }): Promise<void> {
+  app.decorate('services', options.services);
+}
+
+export default fp(services, { name: 'services', fastify: '5.x' });

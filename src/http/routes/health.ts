@@ -1,0 +1,27 @@
+import type { FastifyPluginAsyncZod } from 'fastify-type-provider-zod';
+import { healthSchema, jsonResponse, readySchema } from '../schemas.js';
+
+const health: FastifyPluginAsyncZod = async (app) => {
+  app.get('/healthz', { schema: { summary: 'Liveness: the process answers', tags: ['health'], response: { 200: jsonResponse('the process is up', healthSchema) } } }, async () => ({
+    status: 'ok' as const,
+  }));
+
+  app.get(
+    '/readyz',
+    {
+      schema: {
+        summary: 'Readiness: at least one model is loaded and the audit log can be written',
+        tags: ['health'],
+        response: { 200: jsonResponse('ready to score', readySchema), 503: jsonResponse('not ready: no model loaded, or the database cannot be written', readySchema) },
+      },
+    },
+    async (_req, reply) => {
+      const models = app.services.registry.list().length;
+      const writable = app.services.store.isWritable();
+      const ready = models > 0 && writable;
+      return reply.code(ready ? 200 : 503).send({ status: ready ? 'ready' : 'not ready', models, database: writable ? 'writable' : 'not writable' });
+    },
+  );
+};
+
+export default health;

@@ -1,0 +1,65 @@
+import type { FastifyPluginAsyncZod } from 'fastify-type-provider-zod';
+import type { ModelEntry } from '../../bundle/registry.js';
+import { ProblemError } from '../../errors.js';
+import { commonErrors, jsonResponse, modelDetailSchema, modelNameParam, modelSummarySchema, problemResponse } from '../schemas.js';
+import { z } from 'zod';
+
+function summary(e: ModelEntry) {
+  const b = e.bundle.file;
+  return { name: b.name, version: b.version, sha256: b.sha256, features: b.features, classes: b.classes, loaded_at: e.loadedAt.toISOString() };
+}
+
+/** The manifest of a loaded bundle: what it takes, what it says and how it was made; no weights. */
+function detail(e: ModelEntry) {
+  const b = e.bundle.file;
+  const env = b.domain.envelope;
+  return {
+    ...summary(e),
+    created_at: b.created_at,
+    file: e.path,
+    network: { layers: b.network.layers.map(({ inputs, outputs, activation, alpha }) => ({ inputs, outputs, activation, ...(alpha !== undefined ? { alpha } : {}) })) },
+    calibration: b.calibration,
+    domain: {
+      review_margin: b.domain.review_margin,
+      envelope: {
+        tolerance: env.tolerance,
+        features: b.features.map((f, j) => ({ name: f.name, unit: f.unit, low: env.low[j] as number, high: env.high[j] as number })),
+      },
+    },
+    training: {
+      rows: b.training.rows,
+      seed: b.training.seed,
+      options: b.training.options,
+      epochs_run: b.training.epochs_run,
+      best_epoch: b.training.best_epoch,
+      metrics: b.training.metrics,
+    },
+  };
+}
+
+const models: FastifyPluginAsyncZod = async (app) => {
+  app.get(
+    '/v1/models',
+    { schema: { summary: 'The loaded models', tags: ['models'], response: { 200: jsonResponse('the loaded models', z.object({ items: z.array(modelSummarySchema) })), ...commonErrors } } },
+    async () => ({ items: app.services.registry.list().map(summary) }),
+  );
+
+  app.get(
+    '/v1/models/:name',
+    {
+      schema: {
+        summary: "One model's manifest: features, classes, domain settings and training metrics (no weights)",
+        tags: ['models'],
+        params: modelNameParam,
+        response: { 200: jsonResponse('the manifest', modelDetailSchema), 404: problemResponse('no model of that name is loaded'), ...commonErrors },
+      },
+    },
+    async (req) => {
+      const e = app.services.registry.get(req.params.name);
+      if (!e) throw new ProblemError('unknown-model', `no model named ${JSON.stringify(req.params.name)} is loaded`);
+      return detail(e);
+    },
+  );
+};
+
+export default models;

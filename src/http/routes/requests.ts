@@ -1,0 +1,49 @@
+import type { FastifyPluginAsyncZod } from 'fastify-type-provider-zod';
+import { type FieldError, ProblemError } from '../../errors.js';
+import { CursorError, type RequestFilter } from '../../store/request-query.js';
+import { commonErrors, jsonResponse, problemResponse, requestPageSchema, requestsQuerySchema } from '../schemas.js';
+
+const requests: FastifyPluginAsyncZod = async (app) => {
+  app.get(
+    '/v1/requests',
+    {
+      schema: {
+        summary: 'The audit log, newest first',
+        description: 'Every scored vector with its inputs, answer and model version. Filters combine with AND; page with `cursor`.',
+        tags: ['audit'],
+        querystring: requestsQuerySchema,
+        response: { 200: jsonResponse('a page of the audit log', requestPageSchema), 400: problemResponse('a filter or the cursor is not valid'), ...commonErrors },
+      },
+    },
+    async (req) => {
+      const q = req.query;
+      const errors: FieldError[] = [];
+      const tags: Array<[string, string]> = [];
+      for (const t of q.tag === undefined ? [] : Array.isArray(q.tag) ? q.tag : [q.tag]) {
+        const at = t.indexOf(':');
+        if (at <= 0) errors.push({ parameter: 'tag', detail: `${JSON.stringify(t)} is not key:value` });
+        else tags.push([t.slice(0, at), t.slice(at + 1)]);
+      }
+      const from = q.from === undefined ? undefined : Date.parse(q.from);
+      const to = q.to === undefined ? undefined : Date.parse(q.to);
+      if (from !== undefined && to !== undefined && from >= to) errors.push({ parameter: 'to', detail: 'must be later than from' });
+      if (errors.length > 0) throw new ProblemError('invalid-request', 'the query string has problems', errors);
+      const filter: RequestFilter = {
+        ...(q.model !== undefined ? { model: q.model } : {}),
+        ...(from !== undefined ? { from } : {}),
+        ...(to !== undefined ? { to } : {}),
+        ...(q.in_domain !== undefined ? { inDomain: q.in_domain === 'true' } : {}),
+        ...(q.label !== undefined ? { label: q.label } : {}),
+        ...(tags.length > 0 ? { tags } : {}),
+      };
+      try {
+        return app.services.store.queryRequests(filter, q.limit, q.cursor);
+      } catch (err) {
+        if (err instanceof CursorError) throw new ProblemError('invalid-request', 'the cursor is not valid', [{ parameter: 'cursor', detail: err.message }]);
+        throw err;
+      }
+    },
+  );
+};
+
+export default requests;

@@ -1,0 +1,53 @@
+import type { FastifyPluginAsyncZod } from 'fastify-type-provider-zod';
+import type { CallContext } from '../../scoring/service.js';
+import type { FastifyReply, FastifyRequest } from 'fastify';
+import { commonErrors, jsonResponse, modelNameParam, problemResponse, scoreBatchResponseSchema, scoreResponseSchema, scoringSchemas } from '../schemas.js';
+
+function context(req: FastifyRequest, reply: FastifyReply): CallContext {
+  return { requestId: req.id, receivedAt: Math.round(Date.now() - reply.elapsedTime), elapsedMs: () => reply.elapsedTime };
+}
+
+const errors = {
+  400: problemResponse('the body does not fit the model; `errors` names each bad field'),
+  404: problemResponse('no model of that name is loaded'),
+  413: problemResponse('the body is larger than limits.body_bytes'),
+  415: problemResponse('the body is not application/json'),
+  503: problemResponse('the audit log cannot take the rows now; nothing was scored (see Retry-After)'),
+  ...commonErrors,
+};
+
+const scoring: FastifyPluginAsyncZod = async (app) => {
+  const { item, batch } = scoringSchemas(app.services.config.limits);
+
+  app.post(
+    '/v1/models/:name/score',
+    {
+      schema: {
+        summary: 'Score one feature vector',
+        description: 'Answers with class probabilities, the margin and the domain checks, after the request is committed to the audit log.',
+        tags: ['scoring'],
+        params: modelNameParam,
+        body: item,
+        response: { 200: jsonResponse('the answer, committed to the audit log', scoreResponseSchema), ...errors },
+      },
+    },
+    async (req, reply) => app.services.scoring.scoreOne(req.params.name, req.body, context(req, reply)),
+  );
+
+  app.post(
+    '/v1/models/:name/score-batch',
+    {
+      schema: {
+        summary: 'Score many feature vectors in one call',
+        description: `At most limits.batch_items items (default 1,000). One bad item refuses the whole batch, naming its index; nothing of a refused batch is scored or logged.`,
+        tags: ['scoring'],
+        params: modelNameParam,
+        body: batch,
+        response: { 200: jsonResponse('one answer per item, in order, all committed to the audit log', scoreBatchResponseSchema), ...errors },
+      },
+    },
+    async (req, reply) => ({ items: await app.services.scoring.scoreBatch(req.params.name, req.body.items, context(req, reply)) }),
+  );
+};
+
+export default scoring;

@@ -1,0 +1,176 @@
+import { z } from 'zod';
+import type { Config } from '../config.js';
+import { MAX_FEATURE_MAGNITUDE } from '../core/network.js';
+
+// Request and response schemas, declared once: routes validate with them and the OpenAPI
+// document is generated from them.
+
+export const problemSchema = z
+  .object({
+    type: z.string().describe('URI naming the kind of problem: urn:plumbline:problem:<code> (docs/api.md lists the codes)'),
+    title: z.string(),
+    status: z.number().int(),
+    detail: z.string(),
+    instance: z.string().optional(),
+    errors: z
+      .array(
+        z.object({
+          pointer: z.string().optional().describe('JSON Pointer (RFC 6901, URI fragment form) to the bad part of the body'),
+          parameter: z.string().optional().describe('the bad query parameter'),
+          header: z.string().optional().describe('the bad header'),
+          detail: z.string(),
+        }),
+      )
+      .optional(),
+  })
+  .meta({ id: 'Problem', description: 'RFC 9457 problem details' });
+
+/** An OpenAPI response entry sent as application/problem+json. */
+export function problemResponse(description: string) {
+  return { description, content: { 'application/problem+json': { schema: problemSchema } } };
+}
+
+/** An OpenAPI response entry sent as application/json. */
+export function jsonResponse<T extends z.ZodType>(description: string, schema: T) {
+  return { description, content: { 'application/json': { schema } } };
+}
+
+/** Every route can also answer with these, as problem+json. */
+export const commonErrors = {
+  default: problemResponse('any other error: 404 not-found, 405 method-not-allowed (with Allow), 500 internal'),
+};
+
+export const modelNameParam = z.object({ name: z.string().describe('model name, as in the bundle') });
+
+export function scoringSchemas(limits: Config['limits']) {
+  const tags = z
+    .record(
+      z.string().min(1).max(limits.tag_key_chars).regex(/^[^\u0000-\u001f\u007f]+$/, 'must be printable'),
+      z.string().max(limits.tag_value_chars),
+    )
+    .refine((t) => Object.keys(t).length <= limits.tags, `at most ${limits.tags} tags`)
+    .describe('where the vector came from: line, station, part number ... (stored with the request)');
+  const value = z.number().min(-MAX_FEATURE_MAGNITUDE).max(MAX_FEATURE_MAGNITUDE);
+  const features = z
+    .union([
+      z.record(z.string(), value).describe("by name: exactly the bundle's features"),
+      z.array(value).describe("in the bundle's feature order"),
+    ])
+    .describe('feature values in the units the bundle lists; every value a finite number');
+  // No registry id: these are built per app from its limits, and ids must be unique.
+  const item = z.strictObject({ features, tags: tags.optional() }).describe('one feature vector to score');
+  const batch = z.strictObject({ items: z.array(item).min(1).max(limits.batch_items) }).describe('feature vectors to score together');
+  return { item, batch };
+}
+
+const domainCheck = z.object({
+  detector: z.string(),
+  value: z.number(),
+  threshold: z.number(),
+  passed: z.boolean().describe('value <= threshold'),
+});
+
+const outsideFeature = z.object({
+  feature: z.string(),
+  value: z.number(),
+  low: z.number(),
+  high: z.number(),
+  unit: z.string(),
+});
+
+export const modelRefSchema = z.object({ name: z.string(), version: z.string(), sha256: z.string() });
+
+export const scoreResponseSchema = z
+  .object({
+    request_id: z.string().describe('UUID v7 of this answer in the audit log'),
+    model: modelRefSchema,
+    label: z.string().describe('the class with the largest probability'),
+    probabilities: z.record(z.string(), z.number()).describe('softmax(logits / temperature) per class; they sum to 1'),
+    margin: z.number().describe('largest minus second-largest probability'),
+    review: z.boolean().describe('out of domain, or margin below the bundle review margin'),
+    domain: z.object({
+      in_domain: z.boolean(),
+      checks: z.array(domainCheck),
+      outside: z.array(outsideFeature).describe('features outside the training envelope, in their units'),
+    }),
+  })
+  .meta({ id: 'ScoreResponse' });
+
+export const scoreBatchResponseSchema = z.object({ items: z.array(scoreResponseSchema) }).meta({ id: 'ScoreBatchResponse' });
+
+export const featureSchemaOut = z.object({ name: z.string(), unit: z.string(), description: z.string() });
+
+export const modelSummarySchema = z
+  .object({
+    name: z.string(),
+    version: z.string(),
+    sha256: z.string(),
+    features: z.array(featureSchemaOut),
+    classes: z.array(z.string()),
+    loaded_at: z.string(),
+  })
+  .meta({ id: 'ModelSummary' });
+
+export const modelDetailSchema = modelSummarySchema
+  .extend({
+    created_at: z.string(),
+    file: z.string().describe('the bundle file it was loaded from'),
+    network: z.object({ layers: z.array(z.object({ inputs: z.number(), outputs: z.number(), activation: z.string(), alpha: z.number().optional() })) }),
+    calibration: z.object({ temperature: z.number() }),
+    domain: z.object({
+      review_margin: z.number(),
+      envelope: z.object({
+        tolerance: z.number(),
+        features: z.array(z.object({ name: z.string(), unit: z.string(), low: z.number(), high: z.number() })),
+      }),
+    }),
+    training: z.object({
+      rows: z.object({ total: z.number(), train: z.number(), validation: z.number() }),
+      seed: z.number(),
+      options: z.record(z.string(), z.unknown()),
+      epochs_run: z.number(),
+      best_epoch: z.number(),
+      metrics: z.record(z.string(), z.unknown()),
+    }),
+  })
+  .meta({ id: 'ModelDetail' });
+
+const isoTime = z.iso.datetime({ offset: true }).describe('ISO 8601 date-time, e.g. 2026-12-01T06:00:00Z');
+
+export const requestsQuerySchema = z.strictObject({
+  model: z.string().optional(),
+  from: isoTime.optional().describe('inclusive'),
+  to: isoTime.optional().describe('exclusive'),
+  in_domain: z.enum(['true', 'false']).optional(),
+  label: z.string().optional().describe('predicted class'),
+  tag: z.union([z.string(), z.array(z.string())]).optional().describe('key:value; repeat to require several'),
+  limit: z.coerce.number().int().min(1).max(1000).default(100),
+  cursor: z.string().optional().describe('next_cursor of the previous page'),
+});
+
+export const loggedRequestSchema = z
+  .object({
+    request_id: z.string(),
+    batch_id: z.string().nullable(),
+    received_at: z.string(),
+    model: modelRefSchema,
+    features: z.record(z.string(), z.number()),
+    tags: z.record(z.string(), z.string()),
+    label: z.string(),
+    probabilities: z.record(z.string(), z.number()),
+    margin: z.number(),
+    review: z.boolean(),
+    in_domain: z.boolean(),
+    domain: z.object({ checks: z.array(domainCheck), outside: z.array(outsideFeature) }),
+    latency_ms: z.number().describe('from receipt to the answer being ready, before the commit'),
+  })
+  .meta({ id: 'LoggedRequest' });
+
+export const requestPageSchema = z.object({ items: z.array(loggedRequestSchema), next_cursor: z.string().nullable() });
+
+export const healthSchema = z.object({ status: z.literal('ok') });
+export const readySchema = z.object({
+  status: z.enum(['ready', 'not ready']),
+  models: z.number().int(),
+  database: z.enum(['writable', 'not writable']),
+});

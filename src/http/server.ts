@@ -1,0 +1,94 @@
+import type { FastifyInstance } from 'fastify';
+import { type Logger, pino } from 'pino';
+import { type ModelEntry, createModelRegistry } from '../bundle/registry.js';
+import type { Config } from '../config.js';
+import { createScoringService } from '../scoring/service.js';
+import { type Store, openStore } from '../store/store.js';
+import { VERSION } from '../version.js';
+import { buildApp } from './app.js';
+
+export interface RunningServer {
+  app: FastifyInstance;
+  store: Store;
+  /** The address it listens on, e.g. http://127.0.0.1:8080. */
+  url: string;
+  /** Stops accepting, finishes in-flight requests, commits the log and closes the database. */
+  close(): Promise<void>;
+}
+
+/** Milliseconds a shutdown may take before the process gives up waiting for in-flight requests. */
+const SHUTDOWN_GRACE_MS = 10_000;
+
+function modelRecord(e: ModelEntry) {
+  const b = e.bundle.file;
+  return { sha256: b.sha256, name: b.name, version: b.version, features: b.features, classes: b.classes };
+}
+
+/**
+ * Opens the audit log, loads the models, builds the app and listens. With `handleSignals`,
+ * SIGTERM and SIGINT shut down gracefully and SIGHUP reloads the models directory.
+ */
+export async function startServer(config: Config, options: { logger?: Logger; handleSignals?: boolean; warnings?: string[] } = {}): Promise<RunningServer> {
+  const log = options.logger ?? pino({ level: config.logger.level });
+  for (const w of options.warnings ?? []) log.warn(w);
+  const store = openStore(config.db, {
+    sync: config.log.sync,
+    flushMs: config.log.flush_ms,
+    flushRows: config.log.flush_rows,
+    queueRows: config.log.queue_rows,
+    rejectedRows: config.log.rejected_rows,
+  });
+  let app: FastifyInstance | null = null;
+  try {
+    const registry = await createModelRegistry(config.models_dir, (e) => store.recordModel(modelRecord(e)));
+    if (registry.list().length === 0) log.warn({ dir: config.models_dir }, 'no *.bundle.json in the models directory; scoring answers 404 until one is added and SIGHUP sent');
+    const scoring = createScoringService(registry, store.log);
+    app = await buildApp({ config, registry, store, scoring }, { logger: log, version: VERSION });
+    await app.listen({ host: config.host, port: config.port });
+    log.info({ models: registry.list().map((e) => `${e.name}@${e.bundle.file.version}`), db: config.db, sync: config.log.sync }, 'serving');
+
+    const running = app;
+    let closing: Promise<void> | null = null;
+    const close = (): Promise<void> =>
+      (closing ??= (async () => {
+        await running.close();
+        store.close();
+      })());
+
+    if (options.handleSignals) {
+      const shutdown = (signal: string): void => {
+        log.info({ signal }, 'shutting down: finishing in-flight requests');
+        const force = setTimeout(() => {
+          log.error({ after_ms: SHUTDOWN_GRACE_MS }, 'shutdown timed out; exiting');
+          process.exit(1);
+        }, SHUTDOWN_GRACE_MS);
+        force.unref();
+        close().then(
+          () => {
+            log.info('audit log committed and closed; bye');
+            process.exitCode = 0;
+          },
+          (err: unknown) => {
+            log.error({ err }, 'shutdown failed');
+            process.exitCode = 1;
+          },
+        );
+      };
+      process.once('SIGTERM', () => shutdown('SIGTERM'));
+      process.once('SIGINT', () => shutdown('SIGINT'));
+      process.on('SIGHUP', () => {
+        registry.reload().then(
+          (entries) => log.info({ models: entries.map((e) => `${e.name}@${e.bundle.file.version}`) }, 'models reloaded'),
+          (err: unknown) => log.error({ err: (err as Error).message }, 'reload refused; the models loaded before are still served'),
+        );
+      });
+    }
+    const address = app.server.address();
+    const url = typeof address === 'object' && address ? `http://${address.family === 'IPv6' ? `[${address.address}]` : address.address}:${address.port}` : String(address);
+    return { app, store, url, close };
+  } catch (err) {
+    await app?.close().catch(() => undefined);
+    store.close();
+    throw err;
+  }
+}

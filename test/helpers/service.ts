@@ -1,0 +1,75 @@
+import { mkdirSync } from 'node:fs';
+import { join } from 'node:path';
+import BetterSqlite3, { type Database } from 'better-sqlite3';
+import type { FastifyInstance } from 'fastify';
+import { type ModelRegistry, createModelRegistry } from '../../src/bundle/registry.js';
+import type { BundleFile } from '../../src/bundle/schema.js';
+import { writeBundle } from '../../src/bundle/write.js';
+import { type Config, configSchema } from '../../src/config.js';
+import { buildApp } from '../../src/http/app.js';
+import { createScoringService } from '../../src/scoring/service.js';
+import { type Store, openStore } from '../../src/store/store.js';
+import { irisBundle } from './bundles.js';
+import { tempDir } from './datasets.js';
+
+let cachedIris: BundleFile | null = null;
+/** One trained Iris bundle per test file (training takes a fraction of a second). */
+export function iris(): BundleFile {
+  cachedIris ??= irisBundle().bundle;
+  return cachedIris;
+}
+
+export interface TestService {
+  app: FastifyInstance;
+  store: Store;
+  registry: ModelRegistry;
+  config: Config;
+  modelsDir: string;
+  dbFile: string;
+  /** A second, read-only connection, to check what was committed. */
+  db: Database;
+  rows(sql?: string): Array<Record<string, unknown>>;
+  close(): Promise<void>;
+}
+
+/** The app over a fresh temporary database and models directory (CONVENTIONS 10). */
+export async function startTestService(options: { bundles?: BundleFile[]; config?: Record<string, unknown> } = {}): Promise<TestService> {
+  const tmp = tempDir('plumbline-svc-');
+  const modelsDir = join(tmp.dir, 'models');
+  mkdirSync(modelsDir);
+  for (const b of options.bundles ?? [iris()]) await writeBundle(join(modelsDir, `${b.name}.bundle.json`), b);
+  const dbFile = join(tmp.dir, 'audit.db');
+  const config = configSchema.parse({ models_dir: modelsDir, db: dbFile, ...options.config });
+  const store = openStore(dbFile, {
+    sync: config.log.sync,
+    flushMs: config.log.flush_ms,
+    flushRows: config.log.flush_rows,
+    queueRows: config.log.queue_rows,
+    rejectedRows: config.log.rejected_rows,
+  });
+  const registry = await createModelRegistry(modelsDir, (e) =>
+    store.recordModel({ sha256: e.bundle.file.sha256, name: e.name, version: e.bundle.file.version, features: e.bundle.file.features, classes: e.bundle.file.classes }),
+  );
+  const app = await buildApp({ config, registry, store, scoring: createScoringService(registry, store.log) });
+  await app.ready();
+  const db = new BetterSqlite3(dbFile, { readonly: true });
+  return {
+    app,
+    store,
+    registry,
+    config,
+    modelsDir,
+    dbFile,
+    db,
+    rows: (sql = 'SELECT * FROM scored_requests ORDER BY seq') => db.prepare(sql).all() as Array<Record<string, unknown>>,
+    async close() {
+      await app.close();
+      db.close();
+      store.close();
+      tmp.remove();
+    },
+  };
+}
+
+export const SETOSA = { sepal_length: 5.1, sepal_width: 3.5, petal_length: 1.4, petal_width: 0.2 };
+export const VIRGINICA = { sepal_length: 6.7, sepal_width: 3.0, petal_length: 5.2, petal_width: 2.3 };

@@ -1,0 +1,29 @@
+import { readFileSync } from 'node:fs';
+import { Validator } from '@seriousme/openapi-schema-validator';
+import { describe, expect, it } from 'vitest';
+import { openApiDocument, serializeOpenApi } from '../../src/http/openapi-document.js';
+
+const committedText = readFileSync(new URL('../../openapi/openapi.json', import.meta.url), 'utf8');
+
+describe('openapi/openapi.json', () => {
+  it('is what the route schemas generate now (run `npm run openapi` after changing a route)', async () => {
+    expect(serializeOpenApi(await openApiDocument())).toBe(committedText);
+  });
+
+  it('is a valid OpenAPI 3.1 document (checked by @seriousme/openapi-schema-validator against the published 3.1 schema)', async () => {
+    const validator = new Validator();
+    const result = await validator.validate(JSON.parse(committedText) as Parameters<Validator["validate"]>[0]);
+    expect(result.errors ?? []).toEqual([]);
+    expect(result.valid).toBe(true);
+    expect(validator.version).toBe('3.1');
+  });
+
+  it('describes every route with its body, its answers and its errors', () => {
+    const doc = JSON.parse(committedText) as { paths: Record<string, Record<string, { responses: Record<string, unknown>; requestBody?: unknown }>> };
+    expect(Object.keys(doc.paths).sort()).toEqual(['/healthz', '/readyz', '/v1/models', '/v1/models/{name}', '/v1/models/{name}/score', '/v1/models/{name}/score-batch', '/v1/requests']);
+    const score = doc.paths['/v1/models/{name}/score']!.post!;
+    expect(score.requestBody).toBeDefined();
+    expect(Object.keys(score.responses).sort()).toEqual(['200', '400', '404', '413', '415', '503', 'default']);
+    expect(JSON.stringify(score.responses['400'])).toContain('application/problem+json');
+  });
+});

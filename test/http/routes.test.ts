@@ -1,0 +1,180 @@
+import { readFileSync } from 'node:fs';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { SETOSA, type TestService, VIRGINICA, iris, startTestService } from '../helpers/service.js';
+
+let svc: TestService;
+beforeAll(async () => {
+  svc = await startTestService();
+});
+afterAll(async () => {
+  await svc.close();
+});
+
+describe('health', () => {
+  it('GET /healthz answers while the process runs', async () => {
+    const res = await svc.app.inject('/healthz');
+    expect(res.statusCode).toBe(200);
+    expect(res.json()).toEqual({ status: 'ok' });
+  });
+
+  it('GET /readyz is ready when a model is loaded and the database takes writes', async () => {
+    const res = await svc.app.inject('/readyz');
+    expect(res.statusCode).toBe(200);
+    expect(res.json()).toEqual({ status: 'ready', models: 1, database: 'writable' });
+  });
+
+  it('GET /readyz answers 503 with no model loaded', async () => {
+    const empty = await startTestService({ bundles: [] });
+    try {
+      const res = await empty.app.inject('/readyz');
+      expect(res.statusCode).toBe(503);
+      expect(res.json()).toEqual({ status: 'not ready', models: 0, database: 'writable' });
+    } finally {
+      await empty.close();
+    }
+  });
+});
+
+describe('models', () => {
+  it('GET /v1/models lists the loaded bundles with features, classes and load time', async () => {
+    const res = await svc.app.inject('/v1/models');
+    expect(res.statusCode).toBe(200);
+    const [m] = res.json().items;
+    expect(m).toMatchObject({ name: 'iris', version: '1', sha256: iris().sha256, classes: ['setosa', 'versicolor', 'virginica'] });
+    expect(m.features[0]).toEqual({ name: 'sepal_length', unit: 'cm', description: 'sepal length of the flower' });
+    expect(Date.parse(m.loaded_at)).not.toBeNaN();
+  });
+
+  it('GET /v1/models/{name} gives the manifest without weights', async () => {
+    const res = await svc.app.inject('/v1/models/iris');
+    expect(res.statusCode).toBe(200);
+    const m = res.json();
+    expect(m.network.layers.map((l: { outputs: number }) => l.outputs)).toEqual([32, 32, 3]);
+    expect(res.body).not.toContain(iris().network.layers[0]!.weights.slice(0, 40));
+    expect(m.domain.envelope.features[2]).toEqual({ name: 'petal_length', unit: 'cm', low: iris().domain.envelope.low[2], high: iris().domain.envelope.high[2] });
+    expect(m.training.metrics.validation.accuracy).toBe(iris().training.metrics.validation?.accuracy);
+    expect(m.calibration.temperature).toBe(iris().calibration.temperature);
+  });
+
+  it('GET /v1/models/{name} of an unknown model is a 404 problem', async () => {
+    const res = await svc.app.inject('/v1/models/press-7');
+    expect(res.statusCode).toBe(404);
+    expect(res.headers['content-type']).toMatch(/^application\/problem\+json/);
+    expect(res.json().type).toBe('urn:plumbline:problem:unknown-model');
+  });
+});
+
+describe('unknown paths and methods', () => {
+  it('answers 405 with Allow for a path that exists under another method', async () => {
+    const res = await svc.app.inject({ method: 'DELETE', url: '/v1/models/iris' });
+    expect(res.statusCode).toBe(405);
+    expect(res.headers.allow).toBe('GET, HEAD');
+    expect(res.json()).toMatchObject({ type: 'urn:plumbline:problem:method-not-allowed', status: 405 });
+    const get = await svc.app.inject({ method: 'GET', url: '/v1/models/iris/score' });
+    expect(get.statusCode).toBe(405);
+    expect(get.headers.allow).toBe('POST');
+  });
+
+  it('answers 404 problem+json elsewhere', async () => {
+    const res = await svc.app.inject('/v1/nothing/here?x=1');
+    expect(res.statusCode).toBe(404);
+    expect(res.json()).toEqual({
+      type: 'urn:plumbline:problem:not-found',
+      title: 'There is nothing at this path',
+      status: 404,
+      detail: 'nothing is at /v1/nothing/here; GET /openapi.json lists every route',
+      instance: '/v1/nothing/here',
+    });
+  });
+});
+
+describe('GET /v1/requests', () => {
+  beforeAll(async () => {
+    const post = (features: object, tags?: object) => svc.app.inject({ method: 'POST', url: '/v1/models/iris/score', payload: { features, ...(tags ? { tags } : {}) } });
+    await post(SETOSA, { line: '1' });
+    await post(VIRGINICA, { line: '2' });
+    await post({ ...SETOSA, petal_length: 40 }, { line: '1', station: 'S9' });
+    await post(VIRGINICA);
+  });
+
+  it('lists the audit log newest first, with features and probabilities by name', async () => {
+    const res = await svc.app.inject('/v1/requests');
+    expect(res.statusCode).toBe(200);
+    const { items, next_cursor } = res.json();
+    expect(items).toHaveLength(4);
+    expect(next_cursor).toBeNull();
+    expect(items[3].features).toEqual(SETOSA);
+    expect(items[3].tags).toEqual({ line: '1' });
+    expect(items[0].tags).toEqual({});
+    expect(Object.keys(items[0].probabilities)).toEqual(['setosa', 'versicolor', 'virginica']);
+    expect(items[1].in_domain).toBe(false);
+    expect(items[1].domain.outside[0].feature).toBe('petal_length');
+  });
+
+  it('filters by in_domain, label, tag and model', async () => {
+    const q = async (query: string) => (await svc.app.inject(`/v1/requests?${query}`)).json().items as Array<{ label: string; tags: Record<string, string> }>;
+    expect(await q('in_domain=false')).toHaveLength(1);
+    // the setosa pushed to petal_length 40 cm is answered virginica: far from the data, ReLU extrapolates
+    expect(await q('label=setosa')).toHaveLength(1);
+    expect((await q('label=virginica')).map((i) => i.label)).toEqual(['virginica', 'virginica', 'virginica']);
+    expect(await q('tag=line:1')).toHaveLength(2);
+    expect(await q('tag=line:1&tag=station:S9')).toHaveLength(1);
+    expect(await q('model=other')).toHaveLength(0);
+  });
+
+  it('filters by time: from inclusive, to exclusive', async () => {
+    const all = (await svc.app.inject('/v1/requests')).json().items as Array<{ received_at: string }>;
+    const oldest = all[3]!.received_at;
+    expect((await svc.app.inject(`/v1/requests?to=${encodeURIComponent(oldest)}`)).json().items).toHaveLength(0);
+    expect((await svc.app.inject(`/v1/requests?from=${encodeURIComponent(oldest)}`)).json().items).toHaveLength(4);
+    expect((await svc.app.inject('/v1/requests?from=2099-01-01T00:00:00Z')).json().items).toHaveLength(0);
+  });
+
+  it('pages with an opaque cursor until next_cursor is null', async () => {
+    const seen: string[] = [];
+    let url = '/v1/requests?limit=3';
+    for (;;) {
+      const page = (await svc.app.inject(url)).json();
+      seen.push(...page.items.map((i: { request_id: string }) => i.request_id));
+      if (!page.next_cursor) break;
+      url = `/v1/requests?limit=3&cursor=${page.next_cursor}`;
+    }
+    expect(seen).toHaveLength(4);
+    expect(new Set(seen).size).toBe(4);
+    expect([...seen].sort().reverse()).toEqual(seen);
+  });
+
+  it('refuses a bad limit, cursor, time, tag or unknown parameter, naming the parameter', async () => {
+    const cases: Array<[string, string]> = [
+      ['limit=0', 'limit'],
+      ['limit=1001', 'limit'],
+      ['cursor=abc', 'cursor'],
+      ['from=yesterday', 'from'],
+      ['tag=nocolon', 'tag'],
+      ['from=2026-02-01T00:00:00Z&to=2026-01-01T00:00:00Z', 'to'],
+      ['colour=red', 'colour'],
+    ];
+    for (const [query, parameter] of cases) {
+      const res = await svc.app.inject(`/v1/requests?${query}`);
+      expect(res.statusCode, query).toBe(400);
+      expect(res.json().errors.map((e: { parameter: string }) => e.parameter), query).toContain(parameter);
+    }
+  });
+});
+
+describe('OpenAPI and docs', () => {
+  it('GET /openapi.json serves the document the repository holds (npm run openapi)', async () => {
+    const res = await svc.app.inject('/openapi.json');
+    expect(res.statusCode).toBe(200);
+    const committed = JSON.parse(readFileSync(new URL('../../openapi/openapi.json', import.meta.url), 'utf8'));
+    expect(res.json()).toEqual(committed);
+  });
+
+  it('GET /docs is a self-contained page listing every route', async () => {
+    const res = await svc.app.inject('/docs');
+    expect(res.statusCode).toBe(200);
+    expect(res.headers['content-type']).toMatch(/^text\/html/);
+    for (const route of ['/v1/models/{name}/score', '/v1/models/{name}/score-batch', '/v1/requests', '/readyz']) expect(res.body).toContain(route);
+    expect(res.body).not.toMatch(/<script|https?:\/\/(?!127)/);
+  });
+});
