@@ -19,7 +19,8 @@ export function buildTime(env: NodeJS.ProcessEnv = process.env, now: () => Date 
 const int = (min: number, max: number) => z.number().int().min(min).max(max);
 
 /** The service configuration. Every key has a default, so an empty file is a valid one. */
-export const configSchema = z.strictObject({
+export const configSchema = z
+  .strictObject({
   host: z.string().min(1).default('127.0.0.1'),
   port: int(0, 65535).default(8080),
   /** Directory whose *.bundle.json files are served. */
@@ -55,7 +56,9 @@ export const configSchema = z.strictObject({
       tag_value_chars: int(1, 4096).default(256),
     })
     .prefault({}),
-});
+  })
+  // A batch larger than the queue could never be logged, and would be refused forever.
+  .refine((c) => c.log.queue_rows >= c.limits.batch_items, { path: ['log', 'queue_rows'], message: 'must be at least limits.batch_items, or a full batch could never be logged' });
 
 export type Config = z.infer<typeof configSchema>;
 
@@ -110,7 +113,8 @@ function getPath(source: unknown, path: readonly PropertyKey[]): unknown {
 }
 
 function coerce(raw: string, kind: Leaf['kind']): unknown {
-  if (kind === 'number') return raw.trim() !== '' && Number.isFinite(Number(raw)) ? Number(raw) : raw;
+  // Plain decimals only: Number() would also take "0x10", " 8 " and "1e3" for a port.
+  if (kind === 'number') return /^-?\d+(\.\d+)?$/.test(raw) ? Number(raw) : raw;
   if (kind === 'boolean') return raw === 'true' ? true : raw === 'false' ? false : raw;
   return raw;
 }
@@ -166,7 +170,7 @@ export function loadConfig(sources: ConfigSources): { config: Config; warnings: 
   }
   const known = new Set(CONFIG_KEYS.map((l) => l.env));
   for (const name of Object.keys(env)) {
-    // A warning, not an error: secrets named by `secret_env` may share the prefix.
+    // A warning, not an error: other tools, and secrets kept in the environment, may share the prefix.
     if (name.startsWith('PLUMBLINE_') && !known.has(name)) warnings.push(`environment ${name} is not a configuration key; ignored`);
   }
 

@@ -51,6 +51,16 @@ describe('configuration', () => {
     );
   });
 
+  it('refuses a queue smaller than the largest batch, which could never be logged', () => {
+    expect(problems(() => loadConfig({ env: { PLUMBLINE_LOG_QUEUE_ROWS: '500' } }))).toEqual([
+      'log.queue_rows = 500 (environment PLUMBLINE_LOG_QUEUE_ROWS): must be at least limits.batch_items, or a full batch could never be logged',
+    ]);
+  });
+
+  it('reads numbers from the environment as plain decimals only', () => {
+    for (const raw of ['0x1F90', ' 8080', '8e3', '']) expect(problems(() => loadConfig({ env: { PLUMBLINE_PORT: raw } }))[0]).toMatch(/^port = /);
+  });
+
   it('refuses a file that cannot be read or is not a JSON object', () => {
     expect(problems(() => loadConfig({ file: tmp.file('none.json') }))[0]).toMatch(/cannot be read \(ENOENT\)/);
     expect(problems(() => loadConfig({ file: tmp.file('list.json', '[1]') }))[0]).toMatch(/must hold a JSON object/);

@@ -18,8 +18,8 @@ export interface ReferenceInput {
 
 /**
  * The training-distribution summary that drift reports compare against: per feature the moments,
- * quantiles and decile bins (edges deduplicated, so a feature with ties has fewer, non-empty
- * bins), a verbatim sample of up to REFERENCE_SAMPLE_MAX rows (a seeded uniform subsample above
+ * quantiles and decile bins (edges deduplicated, so a feature with ties has fewer bins, none
+ * empty), a verbatim sample of up to REFERENCE_SAMPLE_MAX rows (a seeded uniform subsample above
  * that), the class prior, and the predictions on the validation split.
  */
 export function fitReference(input: ReferenceInput, rng: Rng): Reference {
@@ -29,7 +29,11 @@ export function fitReference(input: ReferenceInput, rng: Rng): Reference {
     const values = column(x, rows, cols, j);
     const sorted = sortedCopy(values);
     const { mean, std } = meanAndStd(values);
-    const edges = [...new Set(DECILE_LEVELS.map((p) => quantileSorted(sorted, p)))];
+    // Edges are data values (the inverse empirical CDF, Hyndman & Fan definition 1), so that each
+    // bin (e[i-1], e[i]] holds at least e[i] itself, and an edge at the maximum is dropped so the
+    // top bin is not empty either: no empty bin, even for a discrete feature.
+    const max = sorted[rows - 1] as number;
+    const edges = [...new Set(DECILE_LEVELS.map((p) => sorted[Math.max(0, Math.ceil(rows * p) - 1)] as number))].filter((e) => e < max);
     const counts = new Array<number>(edges.length + 1).fill(0);
     for (let i = 0; i < rows; i++) {
       const b = binIndex(edges, values[i] as number);

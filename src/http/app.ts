@@ -2,6 +2,7 @@ import swagger from '@fastify/swagger';
 import Fastify, { type FastifyInstance, type FastifyServerOptions, LogController } from 'fastify';
 import { type ZodTypeProvider, jsonSchemaTransform, jsonSchemaTransformObject, serializerCompiler } from 'fastify-type-provider-zod';
 import { uuidv7 } from '../ids.js';
+import { parseJsonBody } from './json-body.js';
 import { VERSION } from '../version.js';
 import services, { type Services } from './plugins/services.js';
 import problems from './problems.js';
@@ -62,8 +63,10 @@ export async function buildApp(svc: Services, options: AppOptions = {}): Promise
   }).withTypeProvider<ZodTypeProvider>();
   app.setValidatorCompiler(zodValidatorCompiler);
   app.setSerializerCompiler(serializerCompiler);
-  // JSON only: fastify would otherwise hand a text/plain body to the schema as a string.
-  app.removeContentTypeParser('text/plain');
+  // JSON only: fastify would otherwise hand a text/plain body to the schema as a string. Our own
+  // JSON parser keeps the reason a body does not parse, which fastify's drops.
+  app.removeContentTypeParser(['text/plain', 'application/json']);
+  app.addContentTypeParser('application/json', { parseAs: 'string' }, parseJsonBody);
 
   await app.register(swagger, {
     openapi: {
@@ -87,6 +90,7 @@ export async function buildApp(svc: Services, options: AppOptions = {}): Promise
 
   await app.register(services, { services: svc });
   await app.register(problems, {
+    bodyLimit: svc.config.limits.body_bytes,
     onRejected: ({ code, status, request }) => {
       const path = request.url.split('?')[0] ?? '';
       const length = Number(request.headers['content-length']);
@@ -103,8 +107,8 @@ export async function buildApp(svc: Services, options: AppOptions = {}): Promise
     },
   });
 
-  // While shutting down, answers ask the client to close its connection, so that keep-alive
-  // sockets do not hold the process open until their timeout.
+  // While shutting down, every answer asks the client to close its connection, so that keep-alive
+  // sockets neither hold the process open nor carry further requests (the listener is closed).
   let closing = false;
   app.addHook('preClose', async () => {
     closing = true;

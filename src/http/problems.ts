@@ -47,33 +47,31 @@ export interface Rejection {
 }
 
 export interface ProblemsOptions {
+  /** limits.body_bytes, to say it in a 413. */
+  bodyLimit: number;
   /** Told of every refused request, to keep a record of what garbage arrived. */
   onRejected?: (r: Rejection) => void;
 }
 
 /** Maps any error to RFC 9457 problem+json; the stack and internals stay in the service log. */
-export function toProblem(err: FastifyError): ProblemError {
+export function toProblem(err: FastifyError, bodyLimit: number): ProblemError {
   if (err instanceof ProblemError) return err;
   if (err instanceof RequestValidationError) {
     const errors = validationErrors(err);
     const where = err.validationContext === 'querystring' ? 'query string' : err.validationContext === 'params' ? 'path' : 'body';
-    return new ProblemError('invalid-request', `the ${where} has ${errors.length} problem${errors.length === 1 ? '' : 's'}; nothing was scored`, errors);
+    const count = `${errors.length} problem${errors.length === 1 ? '' : 's'}`;
+    return new ProblemError('invalid-request', where === 'body' ? `the body has ${count}; nothing was scored` : `the ${where} has ${count}`, errors);
   }
   switch (err.code) {
     case 'FST_ERR_CTP_BODY_TOO_LARGE':
-      return new ProblemError('body-too-large', err.message);
+      return new ProblemError('body-too-large', `the body is larger than ${bodyLimit} bytes (limits.body_bytes)`);
     case 'FST_ERR_CTP_INVALID_MEDIA_TYPE':
     case 'FST_ERR_CTP_INVALID_TYPE':
       return new ProblemError('unsupported-media-type', 'send the body as application/json', [{ header: 'content-type', detail: 'must be application/json' }]);
-    case 'FST_ERR_CTP_EMPTY_JSON_BODY':
-      return new ProblemError('invalid-json', 'the body is empty but the content-type says JSON');
     case 'FST_ERR_CTP_INVALID_CONTENT_LENGTH':
       return new ProblemError('invalid-request', 'the content-length does not match the body', [{ header: 'content-length', detail: 'does not match the body' }]);
     default:
       break;
-  }
-  if (err instanceof SyntaxError || err.code === 'FST_ERR_CTP_INVALID_JSON_BODY') {
-    return new ProblemError('invalid-json', `the body is not valid JSON: ${err.message.replace(/^Body is not valid JSON but content-type is set to 'application\/json'\.?\s*/, '')}`.trim());
   }
   if (typeof err.statusCode === 'number' && err.statusCode >= 400 && err.statusCode < 500) {
     if (err.statusCode === 413) return new ProblemError('body-too-large', err.message);
@@ -94,7 +92,7 @@ export function sendProblem(reply: FastifyReply, problem: ProblemError): Fastify
 // Route patterns such as /v1/models/:name, to tell 405 (the path exists) from 404.
 function patternRegex(url: string): RegExp {
   const escaped = url.replace(/[.*+?^${}()|[\]\\]/g, '\\$&').replace(/:[A-Za-z_]\w*/g, '[^/]+');
-  return new RegExp(`^${escaped}/?$`);
+  return new RegExp(`^${escaped}$`);
 }
 
 async function problems(app: FastifyInstance, options: ProblemsOptions): Promise<void> {
@@ -110,7 +108,7 @@ async function problems(app: FastifyInstance, options: ProblemsOptions): Promise
   };
 
   app.setErrorHandler((err: FastifyError, request, reply) => {
-    const problem = toProblem(err);
+    const problem = toProblem(err, options.bodyLimit);
     if (problem.status >= 500) request.log.error({ err: problem.code === 'internal' ? err : (err.cause ?? err), problem: problem.code }, 'request failed');
     else request.log.info({ problem: problem.code, status: problem.status }, 'request refused');
     return refuse(request, reply, problem);

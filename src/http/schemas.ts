@@ -40,15 +40,19 @@ export const commonErrors = {
   default: problemResponse('any other error: 404 not-found, 405 method-not-allowed (with Allow), 500 internal'),
 };
 
-export const modelNameParam = z.object({ name: z.string().describe('model name, as in the bundle') });
+export const modelNameParam = z.object({ name: z.string().min(1, 'a model name is needed').describe('model name, as in the bundle') });
 
 export function scoringSchemas(limits: Config['limits']) {
   const tags = z
     .record(
-      z.string().min(1).max(limits.tag_key_chars).regex(/^[^\u0000-\u001f\u007f]+$/, 'must be printable'),
-      z.string().max(limits.tag_value_chars),
+      z
+        .string()
+        .min(1, 'a tag key must not be empty')
+        .max(limits.tag_key_chars, `a tag key has at most ${limits.tag_key_chars} characters (limits.tag_key_chars)`)
+        .regex(/^[^\u0000-\u001f\u007f]+$/, 'a tag key must not hold control characters'),
+      z.string().max(limits.tag_value_chars, `a tag value has at most ${limits.tag_value_chars} characters (limits.tag_value_chars)`),
     )
-    .refine((t) => Object.keys(t).length <= limits.tags, `at most ${limits.tags} tags`)
+    .refine((t) => Object.keys(t).length <= limits.tags, `at most ${limits.tags} tags (limits.tags)`)
     .describe('where the vector came from: line, station, part number ... (stored with the request)');
   const value = z.number().min(-MAX_FEATURE_MAGNITUDE).max(MAX_FEATURE_MAGNITUDE);
   const features = z
@@ -59,7 +63,14 @@ export function scoringSchemas(limits: Config['limits']) {
     .describe('feature values in the units the bundle lists; every value a finite number');
   // No registry id: these are built per app from its limits, and ids must be unique.
   const item = z.strictObject({ features, tags: tags.optional() }).describe('one feature vector to score');
-  const batch = z.strictObject({ items: z.array(item).min(1).max(limits.batch_items) }).describe('feature vectors to score together');
+  const batch = z
+    .strictObject({
+      items: z
+        .array(item)
+        .min(1, 'a batch needs at least one item')
+        .max(limits.batch_items, `a batch holds at most ${limits.batch_items} items (limits.batch_items)`),
+    })
+    .describe('feature vectors to score together');
   return { item, batch };
 }
 
@@ -96,7 +107,12 @@ export const scoreResponseSchema = z
   })
   .meta({ id: 'ScoreResponse' });
 
-export const scoreBatchResponseSchema = z.object({ items: z.array(scoreResponseSchema) }).meta({ id: 'ScoreBatchResponse' });
+export const scoreBatchResponseSchema = z
+  .object({
+    batch_id: z.string().describe('id of this call; the audit log stores it with every item (GET /v1/requests shows it as batch_id)'),
+    items: z.array(scoreResponseSchema),
+  })
+  .meta({ id: 'ScoreBatchResponse' });
 
 export const featureSchemaOut = z.object({ name: z.string(), unit: z.string(), description: z.string() });
 

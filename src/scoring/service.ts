@@ -23,7 +23,8 @@ export interface ScoringService {
   scoreBatch(model: string, items: ScoreItem[], ctx: CallContext): Promise<ScoreResponse[]>;
 }
 
-function findModel(registry: ModelRegistry, name: string): ModelEntry {
+/** The loaded model of that name, or a 404 problem listing the ones that are loaded. */
+export function requireModel(registry: ModelRegistry, name: string): ModelEntry {
   const entry = registry.get(name);
   if (!entry) {
     const known = registry.list().map((e) => e.name);
@@ -73,7 +74,7 @@ function toProblem(err: unknown): never {
  */
 export function createScoringService(registry: ModelRegistry, log: RequestLog): ScoringService {
   const run = async (name: string, items: ScoreItem[], ctx: CallContext, batch: boolean): Promise<ScoreResponse[]> => {
-    const entry = findModel(registry, name);
+    const entry = requireModel(registry, name);
     const d = entry.scorer.featureNames.length;
     const x = new Float64Array(items.length * d);
     const errors = items.flatMap((item, i) => placeFeatures(entry, item, batch ? ['items', i] : [], x, i * d));

@@ -2,6 +2,7 @@ import { mkdirSync } from 'node:fs';
 import { join } from 'node:path';
 import BetterSqlite3, { type Database } from 'better-sqlite3';
 import type { FastifyInstance } from 'fastify';
+import type { Logger } from 'pino';
 import { type ModelRegistry, createModelRegistry } from '../../src/bundle/registry.js';
 import type { BundleFile } from '../../src/bundle/schema.js';
 import { writeBundle } from '../../src/bundle/write.js';
@@ -33,7 +34,7 @@ export interface TestService {
 }
 
 /** The app over a fresh temporary database and models directory (CONVENTIONS 10). */
-export async function startTestService(options: { bundles?: BundleFile[]; config?: Record<string, unknown> } = {}): Promise<TestService> {
+export async function startTestService(options: { bundles?: BundleFile[]; config?: Record<string, unknown>; logger?: Logger } = {}): Promise<TestService> {
   const tmp = tempDir('plumbline-svc-');
   const modelsDir = join(tmp.dir, 'models');
   mkdirSync(modelsDir);
@@ -50,7 +51,7 @@ export async function startTestService(options: { bundles?: BundleFile[]; config
   const registry = await createModelRegistry(modelsDir, (e) =>
     store.recordModel({ sha256: e.bundle.file.sha256, name: e.name, version: e.bundle.file.version, features: e.bundle.file.features, classes: e.bundle.file.classes }),
   );
-  const app = await buildApp({ config, registry, store, scoring: createScoringService(registry, store.log) });
+  const app = await buildApp({ config, registry, store, scoring: createScoringService(registry, store.log) }, options.logger ? { logger: options.logger } : {});
   await app.ready();
   const db = new BetterSqlite3(dbFile, { readonly: true });
   return {

@@ -1,4 +1,5 @@
 import { readFileSync } from 'node:fs';
+import { pino } from 'pino';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { SETOSA, type TestService, VIRGINICA, iris, startTestService } from '../helpers/service.js';
 
@@ -64,6 +65,48 @@ describe('models', () => {
   });
 });
 
+describe('failures inside the service', () => {
+  it('answer 500 problem+json with no stack or internals, and log the error', async () => {
+    const lines: string[] = [];
+    const logger = pino({ level: 'info' }, { write: (l: string) => void lines.push(l) });
+    const broken = await startTestService({ logger });
+    broken.app.services.scoring.scoreOne = async () => {
+      throw new TypeError('cannot read properties of undefined (reading "weights") at scorer.ts:42');
+    };
+    try {
+      const res = await broken.app.inject({ method: 'POST', url: '/v1/models/iris/score', payload: { features: SETOSA } });
+      expect(res.statusCode).toBe(500);
+      expect(res.json()).toEqual({
+        type: 'urn:plumbline:problem:internal',
+        title: 'The service failed; the error is in its log',
+        status: 500,
+        detail: 'the service failed while answering; the error is in its log',
+        instance: '/v1/models/iris/score',
+      });
+      expect(res.body).not.toMatch(/weights|scorer\.ts|TypeError/);
+      expect(lines.some((l) => l.includes('"level":50') && l.includes('scorer.ts:42'))).toBe(true);
+    } finally {
+      await broken.close();
+    }
+  });
+
+  it('never write feature values to the log at info level', async () => {
+    const lines: string[] = [];
+    const logger = pino({ level: 'info' }, { write: (l: string) => void lines.push(l) });
+    const logged = await startTestService({ logger });
+    try {
+      const odd = { sepal_length: 5.123456789, sepal_width: 3.987654321, petal_length: 1.4242424242, petal_width: 0.2717171717 };
+      await logged.app.inject({ method: 'POST', url: '/v1/models/iris/score', payload: { features: odd } });
+      await logged.app.inject({ method: 'POST', url: '/v1/models/iris/score', payload: { features: { ...odd, extra: 9.87654321 } } });
+      expect(lines.length).toBeGreaterThanOrEqual(2);
+      expect(lines.some((l) => l.includes('"req_id"'))).toBe(true);
+      for (const v of ['5.123456789', '3.987654321', '1.4242424242', '0.2717171717', '9.87654321']) expect(lines.join('\n')).not.toContain(v);
+    } finally {
+      await logged.close();
+    }
+  });
+});
+
 describe('unknown paths and methods', () => {
   it('answers 405 with Allow for a path that exists under another method', async () => {
     const res = await svc.app.inject({ method: 'DELETE', url: '/v1/models/iris' });
@@ -73,6 +116,11 @@ describe('unknown paths and methods', () => {
     const get = await svc.app.inject({ method: 'GET', url: '/v1/models/iris/score' });
     expect(get.statusCode).toBe(405);
     expect(get.headers.allow).toBe('POST');
+  });
+
+  it('answers 404, not 405, for a known path with a trailing slash', async () => {
+    expect((await svc.app.inject('/healthz/')).statusCode).toBe(404);
+    expect((await svc.app.inject({ method: 'POST', url: '/v1/models/iris/score/', payload: {} })).statusCode).toBe(404);
   });
 
   it('answers 404 problem+json elsewhere', async () => {

@@ -102,14 +102,18 @@ describe('POST /v1/models/{name}/score', () => {
     const broken = await svc.app.inject({ method: 'POST', url: '/v1/models/iris/score', headers: { 'content-type': 'application/json' }, payload: '{"features": [1,' });
     expect(broken.statusCode).toBe(400);
     expect(broken.json().type).toBe('urn:plumbline:problem:invalid-json');
+    expect(broken.json().detail).toMatch(/^the body is not valid JSON: .+/);
+    const blank = await svc.app.inject({ method: 'POST', url: '/v1/models/iris/score', headers: { 'content-type': 'application/json' }, payload: '' });
+    expect(blank.json()).toMatchObject({ status: 400, detail: 'the body is empty but the content-type says application/json' });
     const text = await svc.app.inject({ method: 'POST', url: '/v1/models/iris/score', headers: { 'content-type': 'text/csv' }, payload: '1,2,3,4' });
     expect(text.statusCode).toBe(415);
     expect(text.json().type).toBe('urn:plumbline:problem:unsupported-media-type');
     const big = await svc.app.inject({ method: 'POST', url: '/v1/models/iris/score', headers: { 'content-type': 'application/json' }, payload: `{"features": [${'1,'.repeat(600_000)}1]}` });
     expect(big.statusCode).toBe(413);
-    expect(big.json().type).toBe('urn:plumbline:problem:body-too-large');
+    expect(big.json()).toMatchObject({ type: 'urn:plumbline:problem:body-too-large', detail: 'the body is larger than 1048576 bytes (limits.body_bytes)' });
     const proto = await svc.app.inject({ method: 'POST', url: '/v1/models/iris/score', headers: { 'content-type': 'application/json' }, payload: '{"features": [1,2,3,4], "__proto__": {"x": 1}}' });
     expect(proto.statusCode).toBe(400);
+    expect(proto.json().detail).toMatch(/__proto__ or constructor\.prototype key, which is refused/);
     expect(svc.rows()).toHaveLength(0);
   });
 
@@ -142,13 +146,13 @@ describe('POST /v1/models/{name}/score-batch', () => {
   it('answers every item in order, each with its own id, and commits them together with the batch id', async () => {
     const res = await svc.app.inject({ method: 'POST', url: '/v1/models/iris/score-batch', payload: { items: [{ features: SETOSA }, { features: VIRGINICA, tags: { part: 'A-17' } }] } });
     expect(res.statusCode).toBe(200);
-    const items = res.json().items;
+    const { batch_id, items } = res.json();
     expect(items.map((i: { label: string }) => i.label)).toEqual(['setosa', 'virginica']);
     expect(new Set(items.map((i: { request_id: string }) => i.request_id)).size).toBe(2);
     const rows = svc.rows();
     expect(rows.map((r) => r.request_id)).toEqual(items.map((i: { request_id: string }) => i.request_id));
-    expect(new Set(rows.map((r) => r.batch_id)).size).toBe(1);
-    expect(rows[0]!.batch_id).toMatch(UUID_V7);
+    expect(rows.map((r) => r.batch_id)).toEqual([batch_id, batch_id]);
+    expect(batch_id).toMatch(UUID_V7);
     expect(rows[1]!.tags).toBe('{"part":"A-17"}');
   });
 
@@ -178,6 +182,6 @@ describe('POST /v1/models/{name}/score-batch', () => {
     svc = await startTestService({ config: { limits: { batch_items: 2 } } });
     const res = await svc.app.inject({ method: 'POST', url: '/v1/models/iris/score-batch', payload: { items: [{ features: SETOSA }, { features: SETOSA }, { features: SETOSA }] } });
     expect(res.statusCode).toBe(400);
-    expect(res.json().errors[0].detail).toMatch(/2/);
+    expect(res.json().errors[0]).toEqual({ pointer: '#/items', detail: 'a batch holds at most 2 items (limits.batch_items)' });
   });
 });

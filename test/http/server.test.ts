@@ -1,7 +1,9 @@
 import { type ChildProcess, spawn } from 'node:child_process';
 import { once } from 'node:events';
 import { mkdirSync, writeFileSync } from 'node:fs';
-import { type IncomingMessage, request } from 'node:http';
+import { createServer } from 'node:http';
+import { connect } from 'node:net';
+import type { AddressInfo } from 'node:net';
 import { join } from 'node:path';
 import BetterSqlite3 from 'better-sqlite3';
 import { afterAll, describe, expect, it } from 'vitest';
@@ -68,20 +70,27 @@ describe('plumbline serve (a real process)', () => {
     await waitFor(() => child.lines().some((l) => l.msg === 'reload refused; the models loaded before are still served'));
     expect((await post(`${base}/v1/models/iris/score`, { features: SETOSA })).status).toBe(200);
 
-    // Half a body is sent, then SIGTERM, then the rest: the request is surely in flight.
+    // On one raw connection: half a batch, then SIGTERM, then the rest of it and a second,
+    // pipelined request. The batch is surely in flight and must be answered, with Connection:
+    // close; the connection then ends, so the second request is never taken.
     const body = JSON.stringify({ items: new Array(500).fill({ features: SETOSA }) });
-    const req = request(`${base}/v1/models/iris/score-batch`, { method: 'POST', headers: { 'content-type': 'application/json', 'content-length': Buffer.byteLength(body) } });
-    const response = once(req, 'response') as Promise<[IncomingMessage]>;
-    req.write(body.slice(0, 1000));
+    const { port } = new URL(base);
+    const socket = connect(Number(port), '127.0.0.1');
+    await once(socket, 'connect');
+    let raw = '';
+    socket.on('data', (c: Buffer) => (raw += c.toString()));
+    const head = `POST /v1/models/iris/score-batch HTTP/1.1\r\nHost: x\r\nContent-Type: application/json\r\nContent-Length: ${Buffer.byteLength(body)}\r\n\r\n`;
+    socket.write(head + body.slice(0, 1000));
     await new Promise((r) => setTimeout(r, 150));
     child.proc.kill('SIGTERM');
     await waitFor(() => child.lines().some((l) => l.msg === 'shutting down: finishing in-flight requests'));
-    req.end(body.slice(1000));
-    const [res] = await response;
-    let text = '';
-    for await (const chunk of res) text += chunk;
-    expect(res.statusCode).toBe(200);
-    const answered = (JSON.parse(text) as { items: Array<{ request_id: string }> }).items;
+    socket.write(`${body.slice(1000)}GET /v1/models HTTP/1.1\r\nHost: x\r\n\r\n`);
+    await once(socket, 'close');
+    const answers = raw.split(/(?=HTTP\/1\.1 )/);
+    expect(answers[0]).toMatch(/^HTTP\/1\.1 200 /);
+    const answered = (JSON.parse(answers[0]!.slice(answers[0]!.indexOf('\r\n\r\n') + 4).replace(/\r\n0\r\n\r\n$/, '').replace(/^[0-9a-f]+\r\n/, '')) as { items: Array<{ request_id: string }> }).items;
+    expect(answers[0]).toMatch(/\r\nconnection: close\r\n/i);
+    expect(answers).toHaveLength(1);
     const [code] = await child.exit;
     expect(code).toBe(0);
 
@@ -104,6 +113,19 @@ describe('plumbline serve (a real process)', () => {
     const [code] = await child.exit;
     expect(code).toBe(2);
     expect(stderr.join('')).toContain(`two bundles are named "iris": ${join(models, 'one.bundle.json')} and ${join(models, 'two.bundle.json')}`);
+  });
+
+  it('says so in one line, and exits 2, when the port is taken', async () => {
+    const blocker = createServer();
+    await new Promise<void>((r) => blocker.listen(0, '127.0.0.1', r));
+    const port = (blocker.address() as AddressInfo).port;
+    const child = serve(['--models', tmp.dir, '--db', join(tmp.dir, 'd.db'), '--port', String(port)]);
+    const stderr: string[] = [];
+    child.proc.stderr!.on('data', (c: Buffer) => stderr.push(c.toString()));
+    const [code] = await child.exit;
+    blocker.close();
+    expect(code).toBe(2);
+    expect(stderr.join('')).toContain(`plumbline: cannot listen on 127.0.0.1:${port} (EADDRINUSE: another process has the port; stop it or pass --port)`);
   });
 
   it('refuses a bad configuration value, naming the key, the value and its source', async () => {

@@ -20,6 +20,16 @@ describe('migrations', () => {
     db.close();
   });
 
+  it('set synchronous=NORMAL by default and FULL for log.sync "full"', () => {
+    const normal = openDatabase(tmp.file('s1.db'), { sync: 'normal' });
+    const full = openDatabase(tmp.file('s2.db'), { sync: 'full' });
+    // PRAGMA synchronous reads back 1 for NORMAL and 2 for FULL (SQLite documentation)
+    expect(normal.pragma('synchronous', { simple: true })).toBe(1);
+    expect(full.pragma('synchronous', { simple: true })).toBe(2);
+    normal.close();
+    full.close();
+  });
+
   it('apply nothing twice when the database is opened again', () => {
     const file = tmp.file('m2.db');
     openDatabase(file, { sync: 'normal' }).close();

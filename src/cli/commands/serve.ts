@@ -1,6 +1,7 @@
 import type { Command } from 'commander';
 import { loadConfig, processEnv } from '../../config.js';
 import { startServer } from '../../http/server.js';
+import { UsageError } from '../io.js';
 import { integerIn } from '../options.js';
 
 interface ServeFlags {
@@ -26,6 +27,14 @@ export function registerServe(program: Command): void {
         env: processEnv(),
         flags: { host: flags.host, port: flags.port, models_dir: flags.models, db: flags.db },
       });
-      await startServer(config, { handleSignals: true, warnings });
+      try {
+        await startServer(config, { handleSignals: true, warnings });
+      } catch (err) {
+        const code = (err as NodeJS.ErrnoException).code;
+        if (code === 'EADDRINUSE' || code === 'EACCES' || code === 'EADDRNOTAVAIL') {
+          throw new UsageError(`cannot listen on ${config.host}:${config.port} (${code}${code === 'EADDRINUSE' ? ': another process has the port; stop it or pass --port' : ''})`);
+        }
+        throw err;
+      }
     });
 }

@@ -1,6 +1,6 @@
 import type { FastifyPluginAsyncZod } from 'fastify-type-provider-zod';
 import type { ModelEntry } from '../../bundle/registry.js';
-import { ProblemError } from '../../errors.js';
+import { requireModel } from '../../scoring/service.js';
 import { commonErrors, jsonResponse, modelDetailSchema, modelNameParam, modelSummarySchema, problemResponse } from '../schemas.js';
 import { z } from 'zod';
 
@@ -54,11 +54,7 @@ const models: FastifyPluginAsyncZod = async (app) => {
         response: { 200: jsonResponse('the manifest', modelDetailSchema), 404: problemResponse('no model of that name is loaded'), ...commonErrors },
       },
     },
-    async (req) => {
-      const e = app.services.registry.get(req.params.name);
-      if (!e) throw new ProblemError('unknown-model', `no model named ${JSON.stringify(req.params.name)} is loaded`);
-      return detail(e);
-    },
+    async (req) => detail(requireModel(app.services.registry, req.params.name)),
   );
 };
 

@@ -46,7 +46,7 @@ const scoring: FastifyPluginAsyncZod = async (app) => {
         response: { 200: jsonResponse('one answer per item, in order, all committed to the audit log', scoreBatchResponseSchema), ...errors },
       },
     },
-    async (req, reply) => ({ items: await app.services.scoring.scoreBatch(req.params.name, req.body.items, context(req, reply)) }),
+    async (req, reply) => ({ batch_id: req.id, items: await app.services.scoring.scoreBatch(req.params.name, req.body.items, context(req, reply)) }),
   );
 };
 

@@ -1,0 +1,21 @@
+import type { FastifyRequest } from 'fastify';
+import sjson from 'secure-json-parse';
+import { ProblemError } from '../errors.js';
+
+/**
+ * JSON bodies, refusing __proto__ and constructor.prototype keys (prototype poisoning) as
+ * fastify does, but keeping the parser's reason in the problem's detail.
+ */
+export function parseJsonBody(_req: FastifyRequest, body: string | Buffer, done: (err: Error | null, value?: unknown) => void): void {
+  const text = typeof body === 'string' ? body : body.toString('utf8');
+  if (text.trim() === '') {
+    done(new ProblemError('invalid-json', 'the body is empty but the content-type says application/json'));
+    return;
+  }
+  try {
+    done(null, sjson.parse(text, { protoAction: 'error', constructorAction: 'error' }));
+  } catch (err) {
+    const reason = (err as Error).message.includes('prototype') ? 'it holds a __proto__ or constructor.prototype key, which is refused' : (err as Error).message;
+    done(new ProblemError('invalid-json', `the body is not valid JSON: ${reason}`));
+  }
+}
