@@ -67,6 +67,17 @@ export async function* parseCsvRecords(chunks: AsyncIterable<Buffer | string>): 
     wasQuoted = false;
   };
 
+  /** A comma ends the field; a line break ends the field and the record. */
+  const endFieldAt = (c: number): void => {
+    if (c === COMMA) endField();
+    else {
+      endRecord();
+      line++;
+      afterCR = c === CR;
+    }
+    state = State.FieldStart;
+  };
+
   const consume = (text: string): void => {
     let i = 0;
     const n = text.length;
@@ -93,14 +104,8 @@ export async function* parseCsvRecords(chunks: AsyncIterable<Buffer | string>): 
           i--; // read this character again as the start of an unquoted field
           break;
         case State.Unquoted: {
-          if (c === COMMA) {
-            endField();
-            state = State.FieldStart;
-          } else if (c === LF || c === CR) {
-            endRecord();
-            line++;
-            afterCR = c === CR;
-            state = State.FieldStart;
+          if (c === COMMA || c === LF || c === CR) {
+            endFieldAt(c);
           } else if (c === QUOTE) {
             throw new CsvSyntaxError(line, 'a quote inside an unquoted field; quote the whole field and double the quote');
           } else {
@@ -142,14 +147,8 @@ export async function* parseCsvRecords(chunks: AsyncIterable<Buffer | string>): 
           if (c === QUOTE) {
             field += '"';
             state = State.Quoted;
-          } else if (c === COMMA) {
-            endField();
-            state = State.FieldStart;
-          } else if (c === LF || c === CR) {
-            endRecord();
-            line++;
-            afterCR = c === CR;
-            state = State.FieldStart;
+          } else if (c === COMMA || c === LF || c === CR) {
+            endFieldAt(c);
           } else {
             throw new CsvSyntaxError(line, `unexpected ${JSON.stringify(text[i])} after a closing quote; a quoted field must end at a comma or a line break`);
           }

@@ -1,7 +1,7 @@
 import { readFileSync } from 'node:fs';
-import { pino } from 'pino';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { SETOSA, type TestService, VIRGINICA, iris, startTestService } from '../helpers/service.js';
+import { capturedLogger } from '../helpers/sink.js';
 
 let svc: TestService;
 beforeAll(async () => {
@@ -67,8 +67,7 @@ describe('models', () => {
 
 describe('failures inside the service', () => {
   it('answer 500 problem+json with no stack or internals, and log the error', async () => {
-    const lines: string[] = [];
-    const logger = pino({ level: 'info' }, { write: (l: string) => void lines.push(l) });
+    const { logger, lines } = capturedLogger();
     const broken = await startTestService({ logger });
     broken.app.services.scoring.scoreOne = async () => {
       throw new TypeError('cannot read properties of undefined (reading "weights") at scorer.ts:42');
@@ -91,8 +90,7 @@ describe('failures inside the service', () => {
   });
 
   it('never write feature values to the log at info level', async () => {
-    const lines: string[] = [];
-    const logger = pino({ level: 'info' }, { write: (l: string) => void lines.push(l) });
+    const { logger, lines } = capturedLogger();
     const logged = await startTestService({ logger });
     try {
       const odd = { sepal_length: 5.123456789, sepal_width: 3.987654321, petal_length: 1.4242424242, petal_width: 0.2717171717 };

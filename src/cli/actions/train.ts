@@ -1,8 +1,7 @@
 import { readFile } from 'node:fs/promises';
 import cliProgress from 'cli-progress';
 import { z } from 'zod';
-import type { ActivationName } from '../../core/activations.js';
-import type { EpochReport } from '../../core/train.js';
+import type { EpochReport, TrainOptions } from '../../core/train.js';
 import { type FeatureInfo, featureSchema, modelNameSchema, modelVersionSchema } from '../../bundle/schema.js';
 import { type TrainedBundle, trainBundle } from '../../bundle/train-bundle.js';
 import { BundleError, parseBundle } from '../../bundle/verify.js';
@@ -11,7 +10,7 @@ import { indexLabels, readLabelledCsv } from '../../io/feature-table.js';
 import { type CliIo, UsageError, fileProblem } from '../io.js';
 import { formatMetrics } from './metrics-table.js';
 
-export interface TrainContext {
+export interface TrainContext extends TrainOptions {
   data: string;
   label: string;
   features?: string[];
@@ -19,15 +18,6 @@ export interface TrainContext {
   name: string;
   version: string;
   out: string;
-  seed: number;
-  hidden: number[];
-  activation: ActivationName;
-  alpha?: number;
-  epochs: number;
-  batchSize: number;
-  learningRate: number;
-  weightDecay: number;
-  patience: number;
   validationFraction: number;
   balance: boolean;
   tolerance: number;

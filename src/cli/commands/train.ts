@@ -1,34 +1,14 @@
 import type { Command } from 'commander';
-import { ACTIVATIONS, type ActivationName } from '../../core/activations.js';
+import { ACTIVATIONS } from '../../core/activations.js';
 import { DEFAULT_TRAIN_OPTIONS } from '../../core/train.js';
 import { DOMAIN_DEFAULTS } from '../../bundle/train-bundle.js';
 import { buildTime } from '../../config.js';
-import { trainAction } from '../actions/train.js';
+import { type TrainContext, trainAction } from '../actions/train.js';
 import { processIo } from '../io.js';
 import { integerIn, integerList, list, numberIn, oneOf } from '../options.js';
 
-interface TrainFlags {
-  data: string;
-  label: string;
-  features?: string[];
-  featureInfo?: string;
-  hidden: number[];
-  activation: ActivationName;
-  alpha?: number;
-  epochs: number;
-  batchSize: number;
-  learningRate: number;
-  weightDecay: number;
-  patience: number;
-  validationSplit: number;
-  balance: boolean;
-  seed: number;
-  tolerance: number;
-  reviewMargin: number;
-  name: string;
-  version: string;
-  out: string;
-}
+/** What commander parses: the action's context, with the split under its flag's name. */
+type TrainFlags = Omit<TrainContext, 'validationFraction' | 'createdAt'> & { validationSplit: number };
 
 export function registerTrain(program: Command): void {
   const d = DEFAULT_TRAIN_OPTIONS;
