@@ -79,6 +79,13 @@ describe('plumbline train, then plumbline score', () => {
     expect(bundle.features[2]).toEqual({ name: 'petal_length', unit: 'cm', description: 'petal length' });
   });
 
+  it('train draws a progress bar instead of lines when stderr is a terminal', async () => {
+    const t = { ...io(), interactive: true };
+    await trainAction(trainContext(irisData, tmp.file('tty.bundle.json'), { epochs: 12 }), t);
+    expect(t.err.text()).toMatch(/training \[[\u2591\u2588]+\] epoch 12\/12 {2}loss \d\.\d{4} {2}validation \d\.\d{4} {2}best epoch \d+/);
+    expect(t.err.text()).not.toMatch(/^epoch 1\/12 loss/m);
+  });
+
   it('score writes the service response shape for every row and ignores extra columns', async () => {
     const data = tmp.file('extra.csv', 'station,petal_width,sepal_length,petal_length,sepal_width,species\nS1,0.2,5.1,1.4,3.5,setosa\nS2,2.3,6.7,5.2,3.0,virginica\n');
     const t = io();

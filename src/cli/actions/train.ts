@@ -49,7 +49,8 @@ export async function readFeatureInfo(path: string | undefined, names: string[])
 function progressReporter(io: CliIo): { onEpoch: (r: EpochReport) => void; stop: () => void } {
   if (io.interactive) {
     const bar = new cliProgress.SingleBar(
-      { stream: io.stderr, format: 'training [{bar}] epoch {value}/{total}  loss {train}  validation {val}  best epoch {best}', hideCursor: true },
+      // noTTYOutput: whether to draw was decided by io.interactive; cli-progress need not guess again.
+      { stream: io.stderr, format: 'training [{bar}] epoch {value}/{total}  loss {train}  validation {val}  best epoch {best}', hideCursor: true, noTTYOutput: true },
       cliProgress.Presets.shades_classic,
     );
     let started = false;
