@@ -9,18 +9,34 @@ export interface Envelope {
 /** The quantiles the envelope starts from: 0.1% and 99.9%, so a handful of outliers do not set it. */
 export const ENVELOPE_LEVELS = { low: 0.001, high: 0.999 } as const;
 
+/** Per feature, the training quantiles at ENVELOPE_LEVELS: the range the envelope widens. */
+export function quantileRange(x: Float64Array, rows: number, cols: number): { low: Float64Array; high: Float64Array } {
+  const low = new Float64Array(cols);
+  const high = new Float64Array(cols);
+  for (let j = 0; j < cols; j++) {
+    const sorted = sortedCopy(column(x, rows, cols, j));
+    low[j] = quantileSorted(sorted, ENVELOPE_LEVELS.low);
+    high[j] = quantileSorted(sorted, ENVELOPE_LEVELS.high);
+  }
+  return { low, high };
+}
+
 /**
  * Per-feature operating envelope (common practice): [q_low - t R, q_high + t R] with
  * R = q_high - q_low, the training quantiles at ENVELOPE_LEVELS and t the tolerance.
  */
 export function fitEnvelope(x: Float64Array, rows: number, cols: number, tolerance: number): Envelope {
   if (!(tolerance >= 0)) throw new RangeError(`envelope tolerance must be >= 0, got ${tolerance}`);
+  const range = quantileRange(x, rows, cols);
+  return envelopeFromRange(range, tolerance);
+}
+
+export function envelopeFromRange(q: { low: ArrayLike<number>; high: ArrayLike<number> }, tolerance: number): Envelope {
   const low: number[] = [];
   const high: number[] = [];
-  for (let j = 0; j < cols; j++) {
-    const sorted = sortedCopy(column(x, rows, cols, j));
-    const qLo = quantileSorted(sorted, ENVELOPE_LEVELS.low);
-    const qHi = quantileSorted(sorted, ENVELOPE_LEVELS.high);
+  for (let j = 0; j < q.low.length; j++) {
+    const qLo = q.low[j] as number;
+    const qHi = q.high[j] as number;
     const range = qHi - qLo;
     const widen = tolerance * range;
     const [lo, hi] = roundOutward(qLo - widen, qHi + widen, range);
@@ -47,6 +63,24 @@ export function roundOutward(low: number, high: number, range: number): [number,
   }
   const scale = 10 ** digits;
   return [Math.floor(clean(low * scale)) / scale, Math.ceil(clean(high * scale)) / scale];
+}
+
+/**
+ * How far a row lies beyond the quantile range, in units of each feature's range R: the largest
+ * (q_low - x) / R or (x - q_high) / R over the features, 0 when inside. Features constant in
+ * training (R = 0) are left out: no tolerance can widen them.
+ */
+export function rangeExceedance(q: { low: ArrayLike<number>; high: ArrayLike<number> }, x: ArrayLike<number>, offset = 0): number {
+  let worst = 0;
+  for (let j = 0; j < q.low.length; j++) {
+    const lo = q.low[j] as number;
+    const hi = q.high[j] as number;
+    const r = hi - lo;
+    if (!(r > 0)) continue;
+    const v = x[offset + j] as number;
+    worst = Math.max(worst, (lo - v) / r, (v - hi) / r);
+  }
+  return worst;
 }
 
 /** Indices of the features of one row that lie outside the envelope (NaN counts as outside). */

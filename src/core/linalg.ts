@@ -1,0 +1,40 @@
+// Small dense linear algebra on row-major Float64Array matrices, for the domain detectors.
+
+/**
+ * Cholesky factor L (lower triangular, row-major n x n) with A = L L^T, for a symmetric positive
+ * definite A (Golub & Van Loan, Matrix Computations, algorithm 4.2.1). Throws when A is not
+ * positive definite to working precision.
+ */
+export function cholesky(a: Float64Array, n: number): Float64Array {
+  const l = new Float64Array(n * n);
+  for (let j = 0; j < n; j++) {
+    let d = a[j * n + j] as number;
+    for (let k = 0; k < j; k++) d -= (l[j * n + k] as number) ** 2;
+    if (!(d > 0)) throw new RangeError(`matrix is not positive definite (pivot ${j} is ${d})`);
+    const ljj = Math.sqrt(d);
+    l[j * n + j] = ljj;
+    for (let i = j + 1; i < n; i++) {
+      let s = a[i * n + j] as number;
+      for (let k = 0; k < j; k++) s -= (l[i * n + k] as number) * (l[j * n + k] as number);
+      l[i * n + j] = s / ljj;
+    }
+  }
+  return l;
+}
+
+/**
+ * ||L^-1 v||^2 by forward substitution: with A = L L^T this is v^T A^-1 v, the squared
+ * Mahalanobis distance when A is a covariance, without ever forming A^-1.
+ */
+export function inverseQuadraticForm(l: ArrayLike<number>, n: number, v: ArrayLike<number>, work: Float64Array = new Float64Array(n)): number {
+  let sum = 0;
+  for (let i = 0; i < n; i++) {
+    let s = v[i] as number;
+    const row = i * n;
+    for (let k = 0; k < i; k++) s -= (l[row + k] as number) * (work[k] as number);
+    const y = s / (l[row + i] as number);
+    work[i] = y;
+    sum += y * y;
+  }
+  return sum;
+}
