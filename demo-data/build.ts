@@ -6,7 +6,7 @@ import { Writable } from 'node:stream';
 import { fileURLToPath } from 'node:url';
 import { trainAction } from '../src/cli/actions/train.js';
 import { DEFAULT_TRAIN_OPTIONS } from '../src/core/train.js';
-import { DOMAIN_DEFAULTS } from '../src/bundle/train-bundle.js';
+import { DOMAIN_DEFAULTS, OPTIONAL_DETECTORS } from '../src/bundle/domain-fit.js';
 import { FEATURES, makeCsv } from './generator.js';
 
 /** The demo's files, each with its seed and scenario (README.md tells the story of each). */
@@ -44,6 +44,8 @@ export async function buildDemo(outDir: string, log: Writable = quiet()): Promis
       balance: false,
       tolerance: DOMAIN_DEFAULTS.tolerance,
       reviewMargin: DOMAIN_DEFAULTS.reviewMargin,
+      detectors: [...OPTIONAL_DETECTORS],
+      inDomainRate: DOMAIN_DEFAULTS.inDomainRate,
       createdAt: DEMO_BUNDLE.createdAt,
     },
     { stdout: log, stderr: quiet(), interactive: false },

@@ -83,9 +83,56 @@ export const envelopeSchema = z.strictObject({
   high: z.array(finite),
 });
 
+const rateByDetector = z.record(z.string(), probability);
+
+export const evaluationSchema = z.strictObject({
+  held_out_rows: count,
+  /** Share of held-out in-domain rows each detector, and the composite, lets through. */
+  pass_rate: rateByDetector,
+  probes: z.array(
+    z.strictObject({
+      name: z.string(),
+      description: z.string(),
+      rows: count,
+      /** Share of the probe rows each detector flags. */
+      detection_rate: rateByDetector,
+      /** Held-out rows against probe rows; null where a detector gives one value to all. */
+      auroc: z.record(z.string(), probability.nullable()),
+    }),
+  ),
+});
+
 export const domainSchema = z.strictObject({
   review_margin: probability,
+  /** Share of in-domain rows the composite flag is calibrated to let through. */
+  target_in_domain_rate: probability,
+  /** The rows the thresholds were calibrated on and the pass rate measured there: the baseline false-alarm rate. */
+  held_out: z.strictObject({
+    source: z.enum(['validation', 'calibrate-on', 'training']),
+    rows: count,
+    in_domain_rate: probability,
+    false_alarm_rate: probability,
+  }),
   envelope: envelopeSchema,
+  input_mahalanobis: z
+    .strictObject({
+      mean: z.array(finite),
+      /** Lower triangle of the covariance's Cholesky factor, row by row: d(d+1)/2 values. */
+      cholesky: z.array(finite),
+      shrinkage: probability,
+      threshold: finite.min(0),
+    })
+    .optional(),
+  feature_mahalanobis: z
+    .strictObject({
+      class_means: z.array(z.array(finite)),
+      cholesky: z.array(finite),
+      shrinkage: probability,
+      threshold: finite.min(0),
+    })
+    .optional(),
+  energy: z.strictObject({ threshold: finite }).optional(),
+  evaluation: evaluationSchema,
 });
 
 export const trainingSchema = z.strictObject({
@@ -135,5 +182,6 @@ export type BundleBody = Omit<BundleFile, 'sha256'>;
 export type FeatureInfo = z.infer<typeof featureSchema>;
 export type Reference = z.infer<typeof referenceSchema>;
 export type Domain = z.infer<typeof domainSchema>;
+export type Evaluation = z.infer<typeof evaluationSchema>;
 export type Training = z.infer<typeof trainingSchema>;
 export type Metrics = z.infer<typeof metricsSchema>;

@@ -1,6 +1,8 @@
-import { featuresOutside } from '../core/domain/envelope.js';
+import { scoreDomain } from '../core/domain/detectors.js';
+import { decodeDomain } from './domain-codec.js';
 import { type ForwardPass, createForwardPass } from '../core/network.js';
 import { softmaxRowsInto, topTwo } from '../core/softmax.js';
+import { standardizeInto } from '../core/standardize.js';
 import type { LoadedBundle } from './verify.js';
 
 export interface DomainCheck {
@@ -48,16 +50,16 @@ export interface Scorer {
 
 /**
  * The scoring path shared by the service and the offline command: standardise, forward pass,
- * softmax at the bundle's temperature, margin, and the domain checks with their reasons.
+ * softmax at the bundle's temperature, margin, and the domain checks with their reasons. A row is
+ * in domain when every enabled detector's value is at most its threshold.
  */
 export function createScorer(bundle: LoadedBundle): Scorer {
   const { file } = bundle;
   const d = file.features.length;
   const K = file.classes.length;
-  const mean = Float64Array.from(file.preprocess.mean);
-  const invScale = Float64Array.from(file.preprocess.scale, (s) => 1 / s);
   const env = file.domain.envelope;
   const temperature = file.calibration.temperature;
+  const domain = decodeDomain(file.domain, temperature);
   const reviewMargin = file.domain.review_margin;
   const pass: ForwardPass = createForwardPass(bundle.network);
   let z = new Float64Array(0);
@@ -69,21 +71,20 @@ export function createScorer(bundle: LoadedBundle): Scorer {
     scoreRows(x, rows) {
       if (z.length < rows * d) z = new Float64Array(rows * d);
       if (p.length < rows * K) p = new Float64Array(rows * K);
-      for (let r = 0; r < rows; r++) {
-        const off = r * d;
-        for (let j = 0; j < d; j++) z[off + j] = ((x[off + j] as number) - (mean[j] as number)) * (invScale[j] as number);
-      }
-      const { logits } = pass.run(z, rows);
+      // The very arithmetic the detectors were calibrated with: a threshold can sit exactly on a
+      // held-out score, and multiplying by 1/scale instead of dividing could tip it over.
+      standardizeInto(file.preprocess, x, rows, z);
+      const { logits, hidden } = pass.run(z, rows);
       // Never answer NaN: a value that overflows the network is refused, not guessed at.
       for (let i = 0; i < rows * K; i++) if (!Number.isFinite(logits[i] as number)) throw new ScoreOverflowError(Math.floor(i / K));
       softmaxRowsInto(logits, rows, K, temperature, p);
       const out: ScoreOutcome[] = new Array(rows);
+      const { outside: outsideIdx, scores } = scoreDomain(domain.models, { rows, raw: x, standardized: z, hidden, logits, classes: K });
       for (let r = 0; r < rows; r++) {
         const top = topTwo(p, r * K, K);
         const probabilities: Record<string, number> = {};
         for (let k = 0; k < K; k++) probabilities[file.classes[k] as string] = p[r * K + k] as number;
-        const outsideIdx = featuresOutside(env, x, r * d);
-        const outside = outsideIdx.map((j) => {
+        const outside = (outsideIdx[r] as number[]).map((j) => {
           const f = file.features[j];
           return {
             feature: f?.name ?? '',
@@ -93,7 +94,11 @@ export function createScorer(bundle: LoadedBundle): Scorer {
             unit: f?.unit ?? '',
           };
         });
-        const checks: DomainCheck[] = [{ detector: 'envelope', value: outside.length, threshold: 0, passed: outside.length === 0 }];
+        const checks: DomainCheck[] = domain.enabled.map((detector) => {
+          const value = (scores[detector] as Float64Array)[r] as number;
+          const threshold = domain.thresholds[detector];
+          return { detector, value, threshold, passed: value <= threshold };
+        });
         const inDomain = checks.every((c) => c.passed);
         out[r] = {
           label: file.classes[top.index] as string,

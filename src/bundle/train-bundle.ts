@@ -1,18 +1,18 @@
 import { type ActivationName, DEFAULT_ALPHA } from '../core/activations.js';
-import { fitEnvelope } from '../core/domain/envelope.js';
+import type { DetectorName } from '../core/domain/detectors.js';
 import { roundToFloat32 } from '../core/network.js';
 import { createRng, deriveSeed } from '../core/rng.js';
 import { stratifiedSplit, take, takeRows } from '../core/split.js';
 import { fitStandardizer, standardize } from '../core/standardize.js';
 import { type EpochReport, type TrainOptions, type TrainResult, classWeightsFor, trainClassifier } from '../core/train.js';
+import { DOMAIN_DEFAULTS, fitDomain } from './domain-fit.js';
 import { ECE_BINS, type Evaluation, evaluateHeldOut } from './evaluate.js';
 import { encodeNetwork } from './network-codec.js';
 import { fitReference } from './reference.js';
 import { BUNDLE_FORMAT, type BundleFile, type FeatureInfo } from './schema.js';
 import { sealBundle } from './verify.js';
 
-/** Defaults of the bundle's domain settings (DESIGN.md): envelope tolerance 10% of the range, review below margin 0.2. */
-export const DOMAIN_DEFAULTS = { tolerance: 0.1, reviewMargin: 0.2 } as const;
+export { DOMAIN_DEFAULTS } from './domain-fit.js';
 
 export interface LabelledTable {
   features: FeatureInfo[];
@@ -32,6 +32,12 @@ export interface BundleOptions extends TrainOptions {
   balance: boolean;
   tolerance: number;
   reviewMargin: number;
+  /** Detectors besides the envelope that vote on the flag. */
+  detectors: readonly DetectorName[];
+  /** Share of held-out in-domain rows the flag is calibrated to pass. */
+  inDomainRate: number;
+  /** Held-out in-domain rows (raw units) to calibrate on instead of the validation split. */
+  calibrateOn?: { x: Float64Array; rows: number };
   dataSha256: string;
   labelColumn: string;
 }
@@ -84,10 +90,26 @@ export function trainBundle(table: LabelledTable, options: BundleOptions, onEpoc
     preprocess,
     network: encodeNetwork(network),
     calibration: { temperature: evaluation.temperature },
-    domain: {
-      review_margin: options.reviewMargin,
-      envelope: fitEnvelope(trainX, trainY.length, d, options.tolerance),
-    },
+    domain: fitDomain(
+      {
+        network,
+        preprocess,
+        temperature: evaluation.temperature,
+        classes: K,
+        train: { x: trainX, labels: trainY, rows: trainY.length },
+        heldOut: options.calibrateOn
+          ? { ...options.calibrateOn, source: 'calibrate-on' }
+          : valY.length > 0
+            ? { x: valX, rows: valY.length, source: 'validation' }
+            : { x: trainX, rows: trainY.length, source: 'training' },
+        detectors: options.detectors,
+        targetRate: options.inDomainRate,
+        tolerance: options.tolerance,
+        reviewMargin: options.reviewMargin,
+        probeRows: DOMAIN_DEFAULTS.probeRows,
+      },
+      createRng(deriveSeed(options.seed, 3)),
+    ),
     reference: fitReference(
       {
         x,
@@ -116,6 +138,8 @@ export function trainBundle(table: LabelledTable, options: BundleOptions, onEpoc
         balance: options.balance,
         envelope_tolerance: options.tolerance,
         review_margin: options.reviewMargin,
+        detectors: [...options.detectors],
+        in_domain_rate: options.inDomainRate,
       },
       epochs_run: result.epochsRun,
       best_epoch: result.bestEpoch,

@@ -1,6 +1,7 @@
 import { readFile } from 'node:fs/promises';
 import type { Network } from '../core/network.js';
 import { canonicalJson, sha256Hex } from './canonical-json.js';
+import { triangleSide } from './domain-codec.js';
 import { decodeNetwork } from './network-codec.js';
 import { type BundleBody, type BundleFile, REFERENCE_QUANTILE_LEVELS, bundleSchema } from './schema.js';
 
@@ -125,6 +126,28 @@ export function checkConsistency(b: BundleFile): BundleProblem[] {
     const hi = b.domain.envelope.high[j];
     if (hi !== undefined && lo > hi) add(`domain.envelope.low[${j}]`, `is ${lo}, above its high ${hi}`);
   });
+
+  const dom = b.domain;
+  if (dom.input_mahalanobis) {
+    sameLength('domain.input_mahalanobis.mean', dom.input_mahalanobis.mean, d, 'one per feature');
+    sameLength('domain.input_mahalanobis.cholesky', dom.input_mahalanobis.cholesky, (d * (d + 1)) / 2, 'the lower triangle of a features x features factor');
+  }
+  if (dom.feature_mahalanobis && last) {
+    const width = layers.length >= 2 ? last.inputs : 0;
+    if (width === 0) add('domain.feature_mahalanobis', 'needs a hidden layer, and the network has none');
+    sameLength('domain.feature_mahalanobis.class_means', dom.feature_mahalanobis.class_means, K, 'one per class');
+    dom.feature_mahalanobis.class_means.forEach((m, k) => sameLength(`domain.feature_mahalanobis.class_means[${k}]`, m, width, 'one per unit of the last hidden layer'));
+    sameLength('domain.feature_mahalanobis.cholesky', dom.feature_mahalanobis.cholesky, (width * (width + 1)) / 2, 'the lower triangle of a width x width factor');
+  }
+  for (const key of ['input_mahalanobis', 'feature_mahalanobis'] as const) {
+    const packed = dom[key]?.cholesky;
+    if (!packed) continue;
+    const n = triangleSide(packed.length);
+    for (let i = 0; i < n; i++) {
+      const diag = packed[(i * (i + 1)) / 2 + i] as number;
+      if (!(diag > 0)) add(`domain.${key}.cholesky`, `diagonal element ${i} is ${diag}; a Cholesky factor needs positive ones`);
+    }
+  }
 
   const ref = b.reference;
   if (canonicalJson(ref.quantile_levels) !== canonicalJson(REFERENCE_QUANTILE_LEVELS)) add('reference.quantile_levels', `must be ${REFERENCE_QUANTILE_LEVELS.join(', ')}`);

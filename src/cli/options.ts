@@ -39,3 +39,14 @@ export function oneOf<T extends string>(values: readonly T[]): (v: string) => T 
     return v as T;
   };
 }
+
+/** A comma-separated subset of values, each named once; "none" for the empty list. */
+export function listOf<T extends string>(values: readonly T[]): (v: string) => T[] {
+  return (v) => {
+    if (v.trim() === 'none') return [];
+    const items = list(v);
+    const bad = items.filter((i) => !(values as readonly string[]).includes(i));
+    if (bad.length > 0) throw new InvalidArgumentError(`${bad.join(', ')} ${bad.length === 1 ? 'is' : 'are'} not one of ${values.join(', ')} (or none)`);
+    return [...new Set(items)] as T[];
+  };
+}

@@ -135,6 +135,12 @@ export const modelDetailSchema = modelSummarySchema
     calibration: z.object({ temperature: z.number() }),
     domain: z.object({
       review_margin: z.number(),
+      target_in_domain_rate: z.number().describe('share of held-out in-domain rows the flag was calibrated to pass'),
+      held_out: z
+        .object({ source: z.string(), rows: z.number(), in_domain_rate: z.number(), false_alarm_rate: z.number() })
+        .describe('the calibration rows and the pass rate measured on them, leave-one-out: the baseline false-alarm rate'),
+      detectors: z.array(z.object({ detector: z.string(), threshold: z.number() })).describe('the enabled detectors; a check passes when value <= threshold'),
+      evaluation: z.record(z.string(), z.unknown()).describe('pass rates on held-out rows, detection rates and AUROC on generated probes'),
       envelope: z.object({
         tolerance: z.number(),
         features: z.array(z.object({ name: z.string(), unit: z.string(), low: z.number(), high: z.number() })),

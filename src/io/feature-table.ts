@@ -108,6 +108,38 @@ export async function readLabelledCsv(path: string, options: { label: string; fe
 }
 
 /**
+ * Reads the named feature columns of a whole CSV (other columns ignored), for calibration rows.
+ * As for training, every bad row is reported and none is silently dropped.
+ */
+export async function readFeatureCsv(path: string, features: string[]): Promise<{ x: Float64Array; rows: number }> {
+  const csv = await openCsv(path);
+  const plan = planColumns(csv.header, path, { features }, csv.headerLine);
+  const d = features.length;
+  let x = new Float64Array(1024 * d);
+  let rows = 0;
+  const errors: DataFileError[] = [];
+  let bad = 0;
+  for await (const row of csv.rows) {
+    if ((rows + 1) * d > x.length) {
+      const grown = new Float64Array(x.length * 2);
+      grown.set(x);
+      x = grown;
+    }
+    try {
+      parseFeatures(row.fields, row.line, plan, path, x, rows * d);
+      rows++;
+    } catch (err) {
+      if (!(err instanceof DataFileError)) throw err;
+      bad++;
+      if (errors.length < MAX_REPORTED) errors.push(err);
+    }
+  }
+  if (bad > 0) throw new DataFileErrors(errors, bad);
+  if (rows === 0) throw new DataFileError(path, null, null, 'has a header but no data rows');
+  return { x: x.slice(0, rows * d), rows };
+}
+
+/**
  * Class names in a stable order: numerically when every label is a number, else by code unit.
  * Returns the classes and each row's index into them.
  */

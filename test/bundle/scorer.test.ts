@@ -27,7 +27,9 @@ describe('scorer', () => {
     expect(o!.domain.in_domain).toBe(false);
     expect(o!.review).toBe(true);
     expect(o!.domain.outside).toEqual([{ feature: 'sepal_width', value: x[1], low: env.low[1], high: env.high[1], unit: 'cm' }]);
-    expect(o!.domain.checks).toEqual([{ detector: 'envelope', value: 1, threshold: 0, passed: false }]);
+    expect(o!.domain.checks[0]).toEqual({ detector: 'envelope', value: 1, threshold: 0, passed: false });
+    expect(o!.domain.checks.map((c) => c.detector)).toEqual(['envelope', 'input_mahalanobis', 'feature_mahalanobis', 'energy']);
+    for (const c of o!.domain.checks) expect(c.passed).toBe(c.value <= c.threshold);
   });
 
   it('passes a row inside the envelope and marks it for review only when the margin is small', () => {

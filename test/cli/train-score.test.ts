@@ -32,6 +32,8 @@ function trainContext(data: string, out: string, overrides: Partial<TrainContext
     balance: false,
     tolerance: 0.1,
     reviewMargin: 0.2,
+    detectors: ['input_mahalanobis', 'feature_mahalanobis', 'energy'],
+    inDomainRate: 0.99,
     createdAt: new Date('2026-03-04T05:06:07Z'),
     ...overrides,
   };
@@ -77,6 +79,16 @@ describe('plumbline train, then plumbline score', () => {
     expect(t.err.text()).toMatch(/^read 150 rows, 4 features, 3 classes/);
     expect(t.err.text()).toMatch(/^epoch 1\/300 loss \d/m);
     expect(bundle.features[2]).toEqual({ name: 'petal_length', unit: 'cm', description: 'petal length' });
+  });
+
+  it('train prints the domain evaluation table and warns when too few rows calibrate the flag', async () => {
+    const t = io();
+    await trainAction(trainContext(irisData, tmp.file('dom.bundle.json'), { epochs: 20 }), t);
+    const out = t.out.text();
+    expect(out).toMatch(/^domain flag: calibrated on 30 validation rows to pass 0\.99; measured \d\.\d{4} \(false alarms \d\.\d{4}\)$/m);
+    expect(out).toMatch(/^detector\s+threshold\s+held-out\s+scaled_2x\s+scaled_10x\s+scaled_100x\s+one_feature_out\s+stuck_at_zero\s+uniform_box_2x$/m);
+    for (const d of ['envelope', 'input_mahalanobis', 'feature_mahalanobis', 'energy', 'composite', 'max_probability\\*']) expect(out).toMatch(new RegExp(`^${d}\\s`, 'm'));
+    expect(t.err.text()).toContain('warning: only 30 held-out rows calibrate the domain flag; 99 or more are needed for a pass rate of 0.99');
   });
 
   it('train draws a progress bar instead of lines when stderr is a terminal', async () => {
@@ -158,5 +170,8 @@ describe('plumbline train, then plumbline score', () => {
     const badName = await fail(['train', '--data', irisData, '--label', 'species', '--name', 'Iris Model', '--out', tmp.file('x.json')]);
     expect(badName.code).toBe(2);
     expect(badName.stderr).toMatch(/--name "Iris Model" must match/);
+    const badDetector = await fail(['train', '--data', irisData, '--label', 'species', '--name', 'i', '--out', tmp.file('y.json'), '--detectors', 'energy,psychic']);
+    expect(badDetector.code).toBe(2);
+    expect(badDetector.stderr).toMatch(/option '--detectors <a,b,...>' argument 'energy,psychic' is invalid\. psychic is not one of input_mahalanobis, feature_mahalanobis, energy \(or none\)/);
   });
 });

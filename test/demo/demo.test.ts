@@ -39,10 +39,10 @@ describe('demo data and bundle', () => {
     expect(file.reference.rows).toBe(5000);
   });
 
-  it('normal traffic stays inside the envelope', async () => {
+  it('normal traffic stays inside the envelope (the rate of the whole flag is tested in test/bundle/domain.test.ts)', async () => {
     const answers = await scoreTraffic('traffic-normal.csv');
     expect(answers).toHaveLength(1000);
-    expect(answers.filter((a) => !a.domain.in_domain).length).toBeLessThanOrEqual(10);
+    expect(answers.filter((a) => a.domain.outside.length > 0).length).toBeLessThanOrEqual(5);
   });
 
   it('faulted traffic is flagged on every shot, naming the stuck cushion sensor in mm', async () => {

@@ -1,3 +1,4 @@
+import { OPTIONAL_DETECTORS } from '../../src/bundle/domain-fit.js';
 import { type LabelledTable, type BundleOptions, DOMAIN_DEFAULTS, trainBundle } from '../../src/bundle/train-bundle.js';
 import { DEFAULT_TRAIN_OPTIONS } from '../../src/core/train.js';
 import { irisRows, IRIS_FEATURES } from './datasets.js';
@@ -27,6 +28,8 @@ export function bundleOptions(overrides: Partial<BundleOptions> = {}): BundleOpt
     balance: false,
     tolerance: DOMAIN_DEFAULTS.tolerance,
     reviewMargin: DOMAIN_DEFAULTS.reviewMargin,
+    detectors: [...OPTIONAL_DETECTORS],
+    inDomainRate: DOMAIN_DEFAULTS.inDomainRate,
     dataSha256: '0'.repeat(64),
     labelColumn: 'species',
     ...overrides,

@@ -55,6 +55,14 @@ describe('models', () => {
     expect(m.domain.envelope.features[2]).toEqual({ name: 'petal_length', unit: 'cm', low: iris().domain.envelope.low[2], high: iris().domain.envelope.high[2] });
     expect(m.training.metrics.validation.accuracy).toBe(iris().training.metrics.validation?.accuracy);
     expect(m.calibration.temperature).toBe(iris().calibration.temperature);
+    expect(m.domain.held_out).toEqual(iris().domain.held_out);
+    expect(m.domain.detectors).toEqual([
+      { detector: 'envelope', threshold: 0 },
+      { detector: 'input_mahalanobis', threshold: iris().domain.input_mahalanobis?.threshold },
+      { detector: 'feature_mahalanobis', threshold: iris().domain.feature_mahalanobis?.threshold },
+      { detector: 'energy', threshold: iris().domain.energy?.threshold },
+    ]);
+    expect(res.body).not.toContain(JSON.stringify(iris().domain.input_mahalanobis?.cholesky.slice(0, 3)).slice(1, -1));
   });
 
   it('GET /v1/models/{name} of an unknown model is a 404 problem', async () => {

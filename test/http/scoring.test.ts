@@ -22,7 +22,14 @@ describe('POST /v1/models/{name}/score', () => {
     expect(body.model).toEqual({ name: 'iris', version: '1', sha256: iris().sha256 });
     expect(body.label).toBe('setosa');
     expect(Object.values(body.probabilities as Record<string, number>).reduce((a, b) => a + b, 0)).toBeCloseTo(1, 14);
-    expect(body.domain).toEqual({ in_domain: true, checks: [{ detector: 'envelope', value: 0, threshold: 0, passed: true }], outside: [] });
+    expect(body.domain.in_domain).toBe(true);
+    expect(body.domain.outside).toEqual([]);
+    expect(body.domain.checks.map((c: { detector: string; passed: boolean }) => [c.detector, c.passed])).toEqual([
+      ['envelope', true],
+      ['input_mahalanobis', true],
+      ['feature_mahalanobis', true],
+      ['energy', true],
+    ]);
 
     const rows = svc.rows();
     expect(rows).toHaveLength(1);

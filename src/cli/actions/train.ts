@@ -1,12 +1,13 @@
 import { readFile } from 'node:fs/promises';
 import cliProgress from 'cli-progress';
 import { z } from 'zod';
+import type { DetectorName } from '../../core/domain/detectors.js';
 import type { EpochReport, TrainOptions } from '../../core/train.js';
-import { type FeatureInfo, featureSchema, modelNameSchema, modelVersionSchema } from '../../bundle/schema.js';
+import { type BundleFile, type FeatureInfo, featureSchema, modelNameSchema, modelVersionSchema } from '../../bundle/schema.js';
 import { type TrainedBundle, trainBundle } from '../../bundle/train-bundle.js';
 import { BundleError, parseBundle } from '../../bundle/verify.js';
 import { serializeBundle, writeBundle } from '../../bundle/write.js';
-import { indexLabels, readLabelledCsv } from '../../io/feature-table.js';
+import { indexLabels, readFeatureCsv, readLabelledCsv } from '../../io/feature-table.js';
 import { type CliIo, UsageError, fileProblem } from '../io.js';
 import { formatMetrics } from './metrics-table.js';
 
@@ -22,6 +23,11 @@ export interface TrainContext extends TrainOptions {
   balance: boolean;
   tolerance: number;
   reviewMargin: number;
+  /** Detectors besides the envelope that vote on the domain flag. */
+  detectors: readonly DetectorName[];
+  inDomainRate: number;
+  /** CSV of held-out in-domain rows to calibrate the flag on, instead of the validation split. */
+  calibrateOn?: string;
   createdAt: Date;
 }
 
@@ -75,6 +81,25 @@ function progressReporter(io: CliIo): { onEpoch: (r: EpochReport) => void; stop:
   };
 }
 
+/** What a user should know about the domain flag's calibration before trusting its rate. */
+export function domainWarnings(b: BundleFile): string[] {
+  const h = b.domain.held_out;
+  const target = b.domain.target_in_domain_rate;
+  const out: string[] = [];
+  // A conformal threshold at level p needs (n + 1) p <= n held-out rows, i.e. n >= p / (1 - p).
+  const needed = Math.ceil(target / (1 - target));
+  if (h.rows < needed) {
+    out.push(`only ${h.rows} held-out rows calibrate the domain flag; ${needed} or more are needed for a pass rate of ${target}, so expect more false alarms than ${(1 - target).toFixed(3)} (give --calibrate-on FILE, or more data)`);
+  }
+  if (h.in_domain_rate < target) {
+    const envelope = b.domain.evaluation.pass_rate.envelope ?? 1;
+    out.push(
+      `the domain flag passes ${h.in_domain_rate.toFixed(4)} of held-out rows, below the target ${target}${envelope < target ? `; the envelope alone passes ${envelope.toFixed(4)}` : ''}`,
+    );
+  }
+  return out;
+}
+
 /** `plumbline train`: CSV in, verified bundle out, metrics on the terminal. */
 export async function trainAction(ctx: TrainContext, io: CliIo): Promise<TrainedBundle> {
   const name = modelNameSchema.safeParse(ctx.name);
@@ -91,7 +116,9 @@ export async function trainAction(ctx: TrainContext, io: CliIo): Promise<Trained
   const badFeature = features.find((f) => !featureSchema.shape.name.safeParse(f.name).success);
   if (badFeature) throw new UsageError(`${ctx.data}: column ${JSON.stringify(badFeature.name)} is not a usable feature name (1-64 printable characters)`);
 
+  const calibrateOn = ctx.calibrateOn === undefined ? undefined : await readFeatureCsv(ctx.calibrateOn, table.featureNames);
   io.stderr.write(`read ${table.rows} rows, ${features.length} features, ${classes.length} classes from ${ctx.data}\n`);
+  if (calibrateOn) io.stderr.write(`read ${calibrateOn.rows} calibration rows from ${ctx.calibrateOn}\n`);
   const counts = classes.map((_, k) => indices.filter((i) => i === k).length);
   classes.forEach((c, k) => {
     // Fewer than 10 rows leave one or two for validation: its metrics say little.
@@ -100,11 +127,12 @@ export async function trainAction(ctx: TrainContext, io: CliIo): Promise<Trained
   const progress = progressReporter(io);
   let trained: TrainedBundle;
   try {
+    const { calibrateOn: _path, ...options } = ctx;
     trained = trainBundle(
       { features, x: table.x, rows: table.rows, labels: indices, classes },
       {
-        ...ctx,
-        ...(ctx.alpha !== undefined ? { alpha: ctx.alpha } : {}),
+        ...options,
+        ...(calibrateOn ? { calibrateOn } : {}),
         dataSha256: table.sha256,
         labelColumn: ctx.label,
       },
@@ -125,6 +153,7 @@ export async function trainAction(ctx: TrainContext, io: CliIo): Promise<Trained
   } catch (err) {
     throw fileProblem('--out', ctx.out, err);
   }
+  for (const w of domainWarnings(trained.bundle)) io.stderr.write(`warning: ${w}\n`);
   io.stdout.write(`${formatMetrics(trained.bundle)}\nbundle ${ctx.out}\nsha256 ${trained.bundle.sha256}\n`);
   return trained;
 }

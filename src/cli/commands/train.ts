@@ -1,11 +1,11 @@
 import type { Command } from 'commander';
 import { ACTIVATIONS } from '../../core/activations.js';
 import { DEFAULT_TRAIN_OPTIONS } from '../../core/train.js';
-import { DOMAIN_DEFAULTS } from '../../bundle/train-bundle.js';
+import { DOMAIN_DEFAULTS, OPTIONAL_DETECTORS } from '../../bundle/domain-fit.js';
 import { buildTime } from '../../config.js';
 import { type TrainContext, trainAction } from '../actions/train.js';
 import { processIo } from '../io.js';
-import { integerIn, integerList, list, numberIn, oneOf } from '../options.js';
+import { integerIn, integerList, list, listOf, numberIn, oneOf } from '../options.js';
 
 /** What commander parses: the action's context, with the split under its flag's name. */
 type TrainFlags = Omit<TrainContext, 'validationFraction' | 'createdAt'> & { validationSplit: number };
@@ -32,6 +32,9 @@ export function registerTrain(program: Command): void {
     .option('--seed <n>', 'seed of every random choice; same data, options, seed and SOURCE_DATE_EPOCH give the same bundle', integerIn(0, 4294967295), d.seed)
     .option('--tolerance <x>', 'envelope widening, as a share of the 0.1%-99.9% range', numberIn(0, 100), DOMAIN_DEFAULTS.tolerance)
     .option('--review-margin <x>', 'answers with a smaller margin are marked for review', numberIn(0, 1), DOMAIN_DEFAULTS.reviewMargin)
+    .option('--detectors <a,b,...>', `domain detectors that vote with the envelope: ${OPTIONAL_DETECTORS.join(', ')}`, listOf(OPTIONAL_DETECTORS), [...OPTIONAL_DETECTORS])
+    .option('--in-domain-rate <x>', 'share of held-out in-domain rows the domain flag is calibrated to pass', numberIn(0.5, 0.99999), DOMAIN_DEFAULTS.inDomainRate)
+    .option('--calibrate-on <file.csv>', 'held-out in-domain rows to calibrate the flag on, instead of the validation split')
     .requiredOption('--name <name>', 'model name, [a-z0-9][a-z0-9._-]{0,63}')
     .option('--version <v>', 'model version, [A-Za-z0-9._-]{1,64}', '1')
     .requiredOption('--out <file.bundle.json>', 'where to write the bundle')

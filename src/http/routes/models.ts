@@ -1,5 +1,6 @@
 import type { FastifyPluginAsyncZod } from 'fastify-type-provider-zod';
 import type { ModelEntry } from '../../bundle/registry.js';
+import { OPTIONAL_DETECTORS } from '../../bundle/domain-fit.js';
 import { requireModel } from '../../scoring/service.js';
 import { commonErrors, jsonResponse, modelDetailSchema, modelNameParam, modelSummarySchema, problemResponse } from '../schemas.js';
 import { z } from 'zod';
@@ -21,6 +22,16 @@ function detail(e: ModelEntry) {
     calibration: b.calibration,
     domain: {
       review_margin: b.domain.review_margin,
+      target_in_domain_rate: b.domain.target_in_domain_rate,
+      held_out: b.domain.held_out,
+      detectors: [
+        { detector: 'envelope', threshold: 0 },
+        ...OPTIONAL_DETECTORS.flatMap((n) => {
+          const d = b.domain[n];
+          return d ? [{ detector: n, threshold: d.threshold }] : [];
+        }),
+      ],
+      evaluation: b.domain.evaluation,
       envelope: {
         tolerance: env.tolerance,
         features: b.features.map((f, j) => ({ name: f.name, unit: f.unit, low: env.low[j] as number, high: env.high[j] as number })),
