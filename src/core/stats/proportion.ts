@@ -1,0 +1,22 @@
+import binomialCdf from '@stdlib/stats-base-dists-binomial-cdf';
+import normalQuantile from '@stdlib/stats-base-dists-normal-quantile';
+
+/**
+ * Wilson score interval for k successes in n trials (Wilson 1927, JASA; method 3 of Newcombe 1998,
+ * Statistics in Medicine 17): (k + z^2/2 ± z sqrt(k (n - k) / n + z^2 / 4)) / (n + z^2). Stays
+ * inside [0, 1] and is sensible at 0/n and n/n, where the Wald interval collapses.
+ */
+export function wilsonInterval(k: number, n: number, confidence = 0.95): { low: number; high: number } {
+  if (n <= 0) return { low: 0, high: 1 };
+  const z = normalQuantile(1 - (1 - confidence) / 2, 0, 1);
+  const z2 = z * z;
+  const centre = (k + z2 / 2) / (n + z2);
+  const half = (z * Math.sqrt((k * (n - k)) / n + z2 / 4)) / (n + z2);
+  return { low: k === 0 ? 0 : Math.max(0, centre - half), high: k === n ? 1 : Math.min(1, centre + half) };
+}
+
+/** Exact one-sided binomial test: P(X >= k) for X ~ Binomial(n, p). */
+export function binomialUpperTail(k: number, n: number, p: number): number {
+  if (k <= 0) return 1;
+  return Math.max(0, 1 - binomialCdf(k - 1, n, p));
+}
