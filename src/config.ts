@@ -1,5 +1,6 @@
 // The one place that reads the process environment; everything else takes values as arguments.
 import { readFileSync } from 'node:fs';
+import { Cron } from 'croner';
 import { z } from 'zod';
 
 /**
@@ -17,6 +18,24 @@ export function buildTime(env: NodeJS.ProcessEnv = process.env, now: () => Date 
 }
 
 const int = (min: number, max: number) => z.number().int().min(min).max(max);
+
+function isCronPattern(s: string): boolean {
+  try {
+    new Cron(s, { paused: true });
+    return true;
+  } catch {
+    return false;
+  }
+}
+
+function isTimeZone(s: string): boolean {
+  try {
+    new Intl.DateTimeFormat('en-US', { timeZone: s });
+    return true;
+  } catch {
+    return false;
+  }
+}
 
 /** The service configuration. Every key has a default, so an empty file is a valid one. */
 export const configSchema = z
@@ -45,6 +64,22 @@ export const configSchema = z
       queue_rows: int(1, 10_000_000).default(50_000),
       /** Newest rejected requests kept for inspection; older ones are pruned. */
       rejected_rows: int(0, 10_000_000).default(100_000),
+    })
+    .prefault({}),
+  /** The nightly drift report. */
+  reports: z
+    .strictObject({
+      /** Run one report per loaded model for the previous day on this cron schedule; "off" to disable. */
+      schedule: z
+        .string()
+        .default('0 2 * * *')
+        .refine((s) => s === 'off' || isCronPattern(s), 'must be a cron pattern such as "0 2 * * *" (minute hour day month weekday), or "off"'),
+      /** IANA time zone of the schedule and of the day boundaries, e.g. "Europe/Berlin". */
+      timezone: z.string().default('UTC').refine(isTimeZone, 'must be an IANA time zone such as "UTC" or "Europe/Berlin"'),
+      /** Windows with fewer scored rows give counts instead of p-values. */
+      min_rows: int(1, 1_000_000).default(30),
+      /** Rows kept for KS and Wasserstein; above it a seeded uniform reservoir. */
+      sample_cap: int(100, 1_000_000).default(10_000),
     })
     .prefault({}),
   limits: z

@@ -1,5 +1,5 @@
 import { DETECTORS, type DetectorName, type DomainModels } from '../core/domain/detectors.js';
-import type { ClassConditionalModel, MahalanobisModel } from '../core/domain/mahalanobis.js';
+import { type ClassConditionalModel, type MahalanobisModel, whitenMeans } from '../core/domain/mahalanobis.js';
 import type { Domain } from './schema.js';
 
 /** The lower triangle of a row-major n x n matrix, row by row. */
@@ -41,12 +41,15 @@ export function decodeDomain(domain: Domain, temperature: number): DomainRuntime
   const feature = domain.feature_mahalanobis;
   if (feature) {
     const dim = feature.class_means[0]?.length ?? 0;
+    const means = Float64Array.from(feature.class_means.flat());
+    const l = unpackLower(feature.cholesky, dim);
     models.feature_mahalanobis = {
       dim,
       classes: feature.class_means.length,
-      means: Float64Array.from(feature.class_means.flat()),
-      cholesky: unpackLower(feature.cholesky, dim),
+      means,
+      cholesky: l,
       shrinkage: feature.shrinkage,
+      whitenedMeans: whitenMeans(means, l, dim, feature.class_means.length),
     } satisfies ClassConditionalModel;
     thresholds.feature_mahalanobis = feature.threshold;
   }

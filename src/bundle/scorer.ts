@@ -30,7 +30,7 @@ export interface ScoreResponse {
   domain: { in_domain: boolean; checks: DomainCheck[]; outside: OutsideFeature[] };
 }
 
-/** The network gave a non-finite logit for a row: its values are too extreme to score. */
+/** The network or a detector gave a non-finite value for a row: its values are too extreme to score. */
 export class ScoreOverflowError extends Error {
   constructor(readonly row: number) {
     super(`row ${row}: the network overflows on these values (a logit is not finite)`);
@@ -44,6 +44,8 @@ export type ScoreOutcome = Omit<ScoreResponse, 'request_id' | 'model'>;
 export interface Scorer {
   readonly bundle: LoadedBundle;
   readonly featureNames: readonly string[];
+  /** Position of each feature name in the vector. */
+  readonly featureIndex: ReadonlyMap<string, number>;
   /** Scores rows x features (row-major, raw units); results in row order. Throws ScoreOverflowError. */
   scoreRows(x: Float64Array, rows: number): ScoreOutcome[];
 }
@@ -68,6 +70,7 @@ export function createScorer(bundle: LoadedBundle): Scorer {
   return {
     bundle,
     featureNames: file.features.map((f) => f.name),
+    featureIndex: new Map(file.features.map((f, j) => [f.name, j])),
     scoreRows(x, rows) {
       if (z.length < rows * d) z = new Float64Array(rows * d);
       if (p.length < rows * K) p = new Float64Array(rows * K);
@@ -80,6 +83,12 @@ export function createScorer(bundle: LoadedBundle): Scorer {
       softmaxRowsInto(logits, rows, K, temperature, p);
       const out: ScoreOutcome[] = new Array(rows);
       const { outside: outsideIdx, scores } = scoreDomain(domain.models, { rows, raw: x, standardized: z, hidden, logits, classes: K });
+      // A detector value that overflows (a near-singular covariance, a hidden layer at 1e308) is
+      // refused like an overflowing logit: no answer may carry a number JSON cannot hold.
+      for (const detector of domain.enabled) {
+        const v = scores[detector] as Float64Array;
+        for (let r = 0; r < rows; r++) if (!Number.isFinite(v[r] as number)) throw new ScoreOverflowError(r);
+      }
       for (let r = 0; r < rows; r++) {
         const top = topTwo(p, r * K, K);
         const probabilities: Record<string, number> = {};

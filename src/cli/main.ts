@@ -6,6 +6,8 @@ import { ConfigError } from '../config.js';
 import { MigrationError } from '../store/migrate.js';
 import { DataFileError } from '../io/csv.js';
 import { DataFileErrors } from '../io/feature-table.js';
+import { registerDemo } from './commands/demo.js';
+import { registerDrift } from './commands/drift.js';
 import { registerScore } from './commands/score.js';
 import { registerServe } from './commands/serve.js';
 import { registerTrain } from './commands/train.js';
@@ -20,6 +22,8 @@ export function buildProgram(): Command {
   registerServe(program);
   registerTrain(program);
   registerScore(program);
+  registerDrift(program);
+  registerDemo(program);
   return program;
 }
 

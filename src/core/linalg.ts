@@ -38,3 +38,14 @@ export function inverseQuadraticForm(l: ArrayLike<number>, n: number, v: ArrayLi
   }
   return sum;
 }
+
+/** Solves L y = v for lower-triangular L (forward substitution) into out. */
+export function forwardSubstitute(l: ArrayLike<number>, n: number, v: ArrayLike<number>, out: Float64Array, vOffset = 0): Float64Array {
+  for (let i = 0; i < n; i++) {
+    let s = v[vOffset + i] as number;
+    const row = i * n;
+    for (let k = 0; k < i; k++) s -= (l[row + k] as number) * (out[k] as number);
+    out[i] = s / (l[row + i] as number);
+  }
+  return out;
+}

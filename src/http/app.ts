@@ -5,11 +5,12 @@ import { uuidv7 } from '../ids.js';
 import { parseJsonBody } from './json-body.js';
 import { VERSION } from '../version.js';
 import services, { type Services } from './plugins/services.js';
-import problems from './problems.js';
+import problems, { clientErrorHandler, sendProblem, toProblem } from './problems.js';
 import { zodValidatorCompiler } from './validation.js';
 import docs from './routes/docs.js';
 import health from './routes/health.js';
 import models from './routes/models.js';
+import reports from './routes/reports.js';
 import requests from './routes/requests.js';
 import scoring from './routes/scoring.js';
 
@@ -59,7 +60,14 @@ export async function buildApp(svc: Services, options: AppOptions = {}): Promise
     // One line per request from the onResponse hook below, not fastify's two.
     logController: new LogController({ disableRequestLogging: true, requestIdLogLabel: 'req_id' }),
     requestTimeout: 30_000,
-    return503OnClosing: true,
+    // Model names are at most 64 characters; a longer parameter is a 404 from our handler.
+    routerOptions: { maxParamLength: 256 },
+    // A URL the router cannot decode, or a path segment beyond maxParamLength: problem+json too.
+    frameworkErrors: (err, _req, reply) => void sendProblem(reply, toProblem(err, svc.config.limits.body_bytes)),
+    clientErrorHandler,
+    // Requests that reach a closing server on an open connection are still answered, with
+    // Connection: close (below); the audit log closes only after the last of them.
+    return503OnClosing: false,
   }).withTypeProvider<ZodTypeProvider>();
   app.setValidatorCompiler(zodValidatorCompiler);
   app.setSerializerCompiler(serializerCompiler);
@@ -81,6 +89,7 @@ export async function buildApp(svc: Services, options: AppOptions = {}): Promise
         { name: 'scoring', description: 'class probabilities, margin and domain checks' },
         { name: 'models', description: 'the loaded bundles' },
         { name: 'audit', description: 'the audit log' },
+        { name: 'drift', description: 'drift reports against the training distribution' },
         { name: 'health', description: 'liveness and readiness' },
       ],
     },
@@ -127,6 +136,7 @@ export async function buildApp(svc: Services, options: AppOptions = {}): Promise
   await app.register(models);
   await app.register(scoring);
   await app.register(requests);
+  await app.register(reports);
   await app.register(docs);
   return app;
 }

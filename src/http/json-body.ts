@@ -6,7 +6,13 @@ import { ProblemError } from '../errors.js';
  * JSON bodies, refusing __proto__ and constructor.prototype keys (prototype poisoning) as
  * fastify does, but keeping the parser's reason in the problem's detail.
  */
-export function parseJsonBody(_req: FastifyRequest, body: string | Buffer, done: (err: Error | null, value?: unknown) => void): void {
+export function parseJsonBody(req: FastifyRequest, body: string | Buffer, done: (err: Error | null, value?: unknown) => void): void {
+  // JSON is UTF-8 (RFC 8259, section 8.1); a body declared otherwise would be read wrong.
+  const charset = /;\s*charset\s*=\s*"?([^";\s]+)/i.exec(req.headers['content-type'] ?? '')?.[1]?.toLowerCase();
+  if (charset !== undefined && charset !== 'utf-8' && charset !== 'utf8') {
+    done(new ProblemError('unsupported-media-type', `the body must be UTF-8 JSON, not charset=${charset}`, [{ header: 'content-type', detail: 'charset must be utf-8 when given' }]));
+    return;
+  }
   const text = typeof body === 'string' ? body : body.toString('utf8');
   if (text.trim() === '') {
     done(new ProblemError('invalid-json', 'the body is empty but the content-type says application/json'));

@@ -1,6 +1,6 @@
 import type { ModelRegistry } from '../bundle/registry.js';
 import { configSchema } from '../config.js';
-import { createScoringService } from '../scoring/service.js';
+import { createServices } from '../services.js';
 import { openStore } from '../store/store.js';
 import { VERSION } from '../version.js';
 import { buildApp } from './app.js';
@@ -13,7 +13,7 @@ export async function openApiDocument(): Promise<unknown> {
   const config = configSchema.parse({});
   const store = openStore(':memory:', { sync: 'normal', flushMs: 0, flushRows: 1, queueRows: 1, rejectedRows: 1 });
   const registry: ModelRegistry = { dir: '', get: () => undefined, list: () => [], reload: async () => [] };
-  const app = await buildApp({ config, registry, store, scoring: createScoringService(registry, store.log) }, { version: VERSION });
+  const app = await buildApp(createServices(config, registry, store), { version: VERSION });
   try {
     await app.ready();
     return app.swagger();

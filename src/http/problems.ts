@@ -1,6 +1,7 @@
 import type { FastifyError, FastifyInstance, FastifyReply, FastifyRequest } from 'fastify';
+import { STATUS_CODES } from 'node:http';
 import fp from 'fastify-plugin';
-import { type FieldError, type ProblemCode, ProblemError, problemDocument, pointer } from '../errors.js';
+import { type FieldError, PROBLEMS, type ProblemCode, ProblemError, problemDocument, pointer } from '../errors.js';
 import { RequestValidationError } from './validation.js';
 
 interface IssueLike {
@@ -63,6 +64,10 @@ export function toProblem(err: FastifyError, bodyLimit: number): ProblemError {
     return new ProblemError('invalid-request', where === 'body' ? `the body has ${count}; nothing was scored` : `the ${where} has ${count}`, errors);
   }
   switch (err.code) {
+    case 'FST_ERR_BAD_URL':
+      return new ProblemError('invalid-request', 'the URL is not valid: a percent sign must be followed by two hex digits', [{ parameter: 'path', detail: 'is not a valid URL path' }]);
+    case 'FST_ERR_MAX_PARAM_LENGTH':
+      return new ProblemError('not-found', 'a segment of the path is longer than 256 characters, so nothing can be there');
     case 'FST_ERR_CTP_BODY_TOO_LARGE':
       return new ProblemError('body-too-large', `the body is larger than ${bodyLimit} bytes (limits.body_bytes)`);
     case 'FST_ERR_CTP_INVALID_MEDIA_TYPE':
@@ -79,6 +84,19 @@ export function toProblem(err: FastifyError, bodyLimit: number): ProblemError {
     return new ProblemError('invalid-request', err.message);
   }
   return new ProblemError('internal', 'the service failed while answering; the error is in its log');
+}
+
+/**
+ * Answers a malformed request on the raw socket, before fastify sees a request (the headers are
+ * too large, the request line cannot be parsed, the request timed out): problem+json all the same.
+ */
+export function clientErrorHandler(err: NodeJS.ErrnoException & { code?: string }, socket: import('node:stream').Duplex): void {
+  if (err.code === 'ECONNRESET' || !socket.writable) return;
+  const code: ProblemCode = err.code === 'HPE_HEADER_OVERFLOW' ? 'headers-too-large' : err.code === 'ERR_HTTP_REQUEST_TIMEOUT' ? 'request-timeout' : 'invalid-request';
+  const detail = code === 'headers-too-large' ? 'the request headers are too large' : code === 'request-timeout' ? 'the request did not arrive within the request timeout' : 'the request could not be parsed as HTTP';
+  const body = JSON.stringify(problemDocument(code, detail));
+  const status = PROBLEMS[code].status;
+  socket.end(`HTTP/1.1 ${status} ${STATUS_CODES[status] ?? ''}\r\nContent-Type: application/problem+json\r\nContent-Length: ${Buffer.byteLength(body)}\r\nConnection: close\r\n\r\n${body}`);
 }
 
 export function sendProblem(reply: FastifyReply, problem: ProblemError): FastifyReply {

@@ -196,3 +196,72 @@ export const readySchema = z.object({
   models: z.number().int(),
   database: z.enum(['writable', 'not writable']),
 });
+
+const nullableNumber = z.number().nullable();
+const band = z.enum(['stable', 'watch', 'shifted']);
+
+export const driftReportSchema = z
+  .object({
+    id: z.string().describe('UUID v7'),
+    model: modelRefSchema,
+    window: z.object({ from: z.string(), to: z.string() }).describe('[from, to), UTC'),
+    created_at: z.string(),
+    verdict: z.enum(['stable', 'watch', 'shifted', 'insufficient data']).describe('the worst of the findings'),
+    counts: z.object({ scored: z.number(), rejected: z.number(), out_of_domain: z.number(), other_versions: z.number().describe('rows of other bundles of this model, not analysed') }),
+    out_of_domain: z
+      .object({ rate: nullableNumber, ci_low: nullableNumber, ci_high: nullableNumber, expected_rate: z.number(), p_value: nullableNumber })
+      .describe('share of answers out of domain, 95% Wilson interval, the false-alarm rate measured at calibration, exact one-sided binomial p'),
+    features: z.array(
+      z.object({
+        name: z.string(),
+        unit: z.string(),
+        n: z.number(),
+        mean: nullableNumber,
+        reference_mean: z.number(),
+        psi: nullableNumber.describe('population stability index on the training decile bins'),
+        band: band.nullable().describe('PSI band: < 0.1 stable, 0.1-0.25 watch, >= 0.25 shifted (common practice)'),
+        ks: z.object({ d: nullableNumber, p_value: nullableNumber, method: z.enum(['exact', 'asymptotic']).nullable() }).describe('two-sample Kolmogorov-Smirnov against the reference sample'),
+        p_adjusted: nullableNumber.describe('Benjamini-Hochberg adjusted KS p-value across features'),
+        wasserstein: nullableNumber.describe('Wasserstein-1 distance in training standard deviations'),
+        outside_count: z.number().describe('rows with this feature outside its envelope'),
+        bins: z.object({ edges: z.array(z.number()), reference: z.array(z.number()), window: z.array(z.number()) }),
+      }),
+    ),
+    predictions: z.object({
+      fractions: z.record(z.string(), z.number()),
+      reference_fractions: z.record(z.string(), z.number()).describe('predicted-class shares on the validation split'),
+      chi_square: z.object({ statistic: nullableNumber, df: z.number(), p_value: nullableNumber }),
+      js_distance: nullableNumber.describe('Jensen-Shannon distance, base 2'),
+    }),
+    margin: z.object({ mean: nullableNumber, reference_mean: z.number(), ks: z.object({ d: nullableNumber, p_value: nullableNumber }), review_rate: nullableNumber }),
+    hourly: z.array(z.object({ hour: z.string(), scored: z.number(), out_of_domain: z.number() })),
+    sample: z.object({ rows: z.number(), cap: z.number(), reservoir: z.boolean(), seed: z.number() }),
+    findings: z.array(z.string()).describe('plain sentences, worst first'),
+  })
+  .meta({ id: 'DriftReport' });
+
+export const reportSummarySchema = z.object({
+  id: z.string(),
+  model: modelRefSchema,
+  window: z.object({ from: z.string(), to: z.string() }),
+  created_at: z.string(),
+  trigger: z.enum(['nightly', 'request', 'cli', 'demo']),
+  verdict: z.string(),
+  counts: z.object({ scored: z.number(), rejected: z.number(), out_of_domain: z.number(), other_versions: z.number() }),
+});
+
+export const reportListQuerySchema = z.strictObject({
+  model: z.string().optional(),
+  from: isoTime.optional().describe('windows starting at or after'),
+  to: isoTime.optional().describe('windows starting before'),
+  limit: z.coerce.number().int().min(1).max(500).default(50),
+  cursor: z.string().optional(),
+});
+
+export const reportRequestSchema = z.strictObject({
+  model: z.string().min(1),
+  from: isoTime.describe('inclusive'),
+  to: isoTime.describe('exclusive'),
+});
+
+export const reportIdParam = z.object({ id: z.string().min(1) });

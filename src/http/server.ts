@@ -2,7 +2,10 @@ import type { FastifyInstance } from 'fastify';
 import { type Logger, pino } from 'pino';
 import { type ModelEntry, createModelRegistry } from '../bundle/registry.js';
 import type { Config } from '../config.js';
-import { createScoringService } from '../scoring/service.js';
+import { serializeBundle } from '../bundle/write.js';
+import { startNightlyReports } from '../jobs/nightly-reports.js';
+import { createServices } from '../services.js';
+import type { ModelRecord } from '../store/models-table.js';
 import { type Store, openStore } from '../store/store.js';
 import { VERSION } from '../version.js';
 import { buildApp } from './app.js';
@@ -19,9 +22,10 @@ export interface RunningServer {
 /** Milliseconds a shutdown may take before the process gives up waiting for in-flight requests. */
 const SHUTDOWN_GRACE_MS = 10_000;
 
-function modelRecord(e: ModelEntry) {
+/** What the audit log keeps of a bundle: enough to decode its rows, and the file for drift reports. */
+export function modelRecord(e: ModelEntry): ModelRecord {
   const b = e.bundle.file;
-  return { sha256: b.sha256, name: b.name, version: b.version, features: b.features, classes: b.classes };
+  return { sha256: b.sha256, name: b.name, version: b.version, features: b.features, classes: b.classes, bundle: serializeBundle(b) };
 }
 
 /**
@@ -42,16 +46,22 @@ export async function startServer(config: Config, options: { logger?: Logger; ha
   try {
     const registry = await createModelRegistry(config.models_dir, (e) => store.recordModel(modelRecord(e)));
     if (registry.list().length === 0) log.warn({ dir: config.models_dir }, 'no *.bundle.json in the models directory; scoring answers 404 until one is added and SIGHUP sent');
-    const scoring = createScoringService(registry, store.log);
-    app = await buildApp({ config, registry, store, scoring }, { logger: log, version: VERSION });
+    const services = createServices(config, registry, store);
+    app = await buildApp(services, { logger: log, version: VERSION });
     await app.listen({ host: config.host, port: config.port });
     log.info({ models: registry.list().map((e) => `${e.name}@${e.bundle.file.version}`), db: config.db, sync: config.log.sync }, 'serving');
+
+    const nightly =
+      config.reports.schedule === 'off'
+        ? null
+        : startNightlyReports({ registry, reports: services.reports, drift: store.drift, schedule: config.reports.schedule, timezone: config.reports.timezone, log });
 
     const running = app;
     let closing: Promise<void> | null = null;
     const close = (): Promise<void> =>
       (closing ??= (async () => {
         await running.close();
+        await nightly?.stop();
         store.close();
       })());
 

@@ -43,22 +43,27 @@ export function placeFeatures(entry: ModelEntry, item: ScoreItem, at: Array<stri
   const f = item.features;
   if (Array.isArray(f)) {
     if (f.length !== names.length) {
-      errors.push({ pointer: pointer([...at, 'features']), detail: `holds ${f.length} values; ${entry.name} takes ${names.length}, in this order: ${names.join(', ')}` });
+      errors.push({ pointer: pointer([...at, 'features']), detail: `holds ${f.length} values; ${entry.name} takes ${names.length}, in the order GET /v1/models/${entry.name} lists` });
       return errors;
     }
     for (let j = 0; j < f.length; j++) out[offset + j] = f[j] as number;
     return errors;
   }
+  // Own properties only: a feature named "constructor" must not find Object.prototype's.
   for (let j = 0; j < names.length; j++) {
-    const v = f[names[j] as string];
-    if (v === undefined) errors.push({ pointer: pointer([...at, 'features', names[j] as string]), detail: `is missing; ${entry.name} needs every one of: ${names.join(', ')}` });
-    else out[offset + j] = v;
+    const name = names[j] as string;
+    if (!Object.hasOwn(f, name)) errors.push({ pointer: pointer([...at, 'features', name]), detail: `is missing; ${entry.name} needs all ${names.length} features` });
+    else out[offset + j] = f[name] as number;
   }
+  const known = entry.scorer.featureIndex;
   for (const key of Object.keys(f)) {
-    if (!names.includes(key)) errors.push({ pointer: pointer([...at, 'features', key]), detail: `is not a feature of ${entry.name}` });
+    if (!known.has(key)) errors.push({ pointer: pointer([...at, 'features', key]), detail: `is not a feature of ${entry.name}` });
   }
   return errors;
 }
+
+/** At most this many field errors are listed in one answer; the detail gives the full count. */
+export const MAX_FIELD_ERRORS = 50;
 
 function toProblem(err: unknown): never {
   if (err instanceof LogBackpressureError) {
@@ -80,7 +85,8 @@ export function createScoringService(registry: ModelRegistry, log: RequestLog): 
     const errors = items.flatMap((item, i) => placeFeatures(entry, item, batch ? ['items', i] : [], x, i * d));
     if (errors.length > 0) {
       const first = batch ? ` (first at item ${/^#\/items\/(\d+)/.exec(errors[0]?.pointer ?? '')?.[1]})` : '';
-      throw new ProblemError('invalid-request', `the features do not match model ${entry.name}${first}; nothing was scored`, errors);
+      const listed = errors.length > MAX_FIELD_ERRORS ? `; ${errors.length} problems, the first ${MAX_FIELD_ERRORS} listed` : '';
+      throw new ProblemError('invalid-request', `the features do not match model ${entry.name}${first}${listed}; nothing was scored`, errors.slice(0, MAX_FIELD_ERRORS));
     }
     let outcomes;
     try {

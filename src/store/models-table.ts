@@ -6,14 +6,17 @@ export interface ModelRecord {
   version: string;
   features: Array<{ name: string; unit: string }>;
   classes: string[];
+  /** The sealed bundle file itself, kept for drift reports after the bundle is unloaded. */
+  bundle?: string;
 }
 
 /** Records a bundle the first time it is loaded, so that logged vectors can always be decoded. */
 export function recordModel(db: Database, m: ModelRecord, now = Date.now()): void {
   db.prepare(
-    `INSERT INTO models (sha256, name, version, features, classes, first_loaded_at)
-     VALUES (?, ?, ?, ?, ?, ?) ON CONFLICT (sha256) DO NOTHING`,
-  ).run(m.sha256, m.name, m.version, JSON.stringify(m.features.map((f) => ({ name: f.name, unit: f.unit }))), JSON.stringify(m.classes), now);
+    `INSERT INTO models (sha256, name, version, features, classes, first_loaded_at, bundle)
+     VALUES (?, ?, ?, ?, ?, ?, ?)
+     ON CONFLICT (sha256) DO UPDATE SET bundle = COALESCE(models.bundle, excluded.bundle)`,
+  ).run(m.sha256, m.name, m.version, JSON.stringify(m.features.map((f) => ({ name: f.name, unit: f.unit }))), JSON.stringify(m.classes), now, m.bundle ?? null);
 }
 
 /** Looks models up by hash, caching them: a sealed bundle never changes. */

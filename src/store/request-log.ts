@@ -72,6 +72,8 @@ export interface LogStats {
   committedRows: number;
   failedRows: number;
   transactions: number;
+  /** Transactions that rolled back. */
+  failedTransactions: number;
   waitingRows: number;
   lastError: string | null;
 }
@@ -114,7 +116,14 @@ export function createRequestLog(db: Database, options: WriterOptions): RequestL
   let timer: NodeJS.Timeout | NodeJS.Immediate | null = null;
   let closed = false;
   let rejectedSincePrune = 0;
-  const stats: LogStats = { committedRows: 0, failedRows: 0, transactions: 0, waitingRows: 0, lastError: null };
+  const stats: LogStats = { committedRows: 0, failedRows: 0, transactions: 0, failedTransactions: 0, waitingRows: 0, lastError: null };
+  // Also at start: a service that restarts often would otherwise never reach the prune count.
+  // Best effort: a locked database now must not stop the service from starting.
+  try {
+    pruneRejected.run(options.rejectedRows);
+  } catch (err) {
+    stats.lastError = (err as Error).message;
+  }
 
   const writeScored = (r: ScoredRow): void => {
     insertScored.run(
@@ -157,13 +166,20 @@ export function createRequestLog(db: Database, options: WriterOptions): RequestL
       return;
     } catch (err) {
       stats.lastError = (err as Error).message;
-      if (group.length === 1) {
-        stats.failedRows += (group[0] as Pending).rows.length;
-        (group[0] as Pending).reject(new LogWriteError(err));
+      stats.failedTransactions++;
+      // Only a constraint violation belongs to one request's rows. Anything else (a locked or
+      // full disk, an I/O error) would fail each retry alike, and retrying one by one would hold
+      // the event loop for a busy timeout per request: fail the group at once.
+      const code = (err as { code?: string }).code ?? '';
+      if (group.length === 1 || !code.startsWith('SQLITE_CONSTRAINT')) {
+        for (const p of group) {
+          stats.failedRows += p.rows.length;
+          p.reject(new LogWriteError(err));
+        }
         return;
       }
     }
-    // The group failed: find the culprit by committing each request on its own.
+    // A constraint failed: find the request it belongs to by committing each on its own.
     for (const p of group) {
       try {
         commitOne(p);
@@ -172,6 +188,7 @@ export function createRequestLog(db: Database, options: WriterOptions): RequestL
         p.resolve();
       } catch (err) {
         stats.failedRows += p.rows.length;
+        stats.failedTransactions++;
         stats.lastError = (err as Error).message;
         p.reject(new LogWriteError(err));
       }

@@ -1,5 +1,6 @@
 import type { Database } from 'better-sqlite3';
 import { type OpenOptions, openDatabase } from './database.js';
+import { type DriftStore, createDriftStore } from './drift-store.js';
 import { type ModelRecord, recordModel } from './models-table.js';
 import { type RequestLog, type WriterOptions, createRequestLog } from './request-log.js';
 import { type RequestFilter, type RequestPage, createRequestQuery } from './request-query.js';
@@ -8,6 +9,8 @@ import { type RequestFilter, type RequestPage, createRequestQuery } from './requ
 export interface Store {
   readonly file: string;
   readonly log: RequestLog;
+  /** Reads and writes of the drift reports. */
+  readonly drift: DriftStore;
   recordModel(m: ModelRecord): void;
   queryRequests(filter: RequestFilter, limit: number, cursor?: string): RequestPage;
   /** Whether a write transaction can be opened now (readiness). */
@@ -19,11 +22,13 @@ export function openStore(file: string, options: OpenOptions & WriterOptions): S
   const db: Database = openDatabase(file, options);
   const log = createRequestLog(db, options);
   const query = createRequestQuery(db);
+  const drift = createDriftStore(db);
   const probe = db.prepare('SELECT 1');
   let closed = false;
   return {
     file,
     log,
+    drift,
     recordModel: (m) => recordModel(db, m),
     queryRequests: query,
     isWritable() {

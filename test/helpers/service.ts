@@ -8,7 +8,8 @@ import type { BundleFile } from '../../src/bundle/schema.js';
 import { writeBundle } from '../../src/bundle/write.js';
 import { type Config, configSchema } from '../../src/config.js';
 import { buildApp } from '../../src/http/app.js';
-import { createScoringService } from '../../src/scoring/service.js';
+import { modelRecord } from '../../src/http/server.js';
+import { createServices } from '../../src/services.js';
 import { type Store, openStore } from '../../src/store/store.js';
 import { irisBundle } from './bundles.js';
 import { tempDir } from './datasets.js';
@@ -48,10 +49,8 @@ export async function startTestService(options: { bundles?: BundleFile[]; config
     queueRows: config.log.queue_rows,
     rejectedRows: config.log.rejected_rows,
   });
-  const registry = await createModelRegistry(modelsDir, (e) =>
-    store.recordModel({ sha256: e.bundle.file.sha256, name: e.name, version: e.bundle.file.version, features: e.bundle.file.features, classes: e.bundle.file.classes }),
-  );
-  const app = await buildApp({ config, registry, store, scoring: createScoringService(registry, store.log) }, options.logger ? { logger: options.logger } : {});
+  const registry = await createModelRegistry(modelsDir, (e) => store.recordModel(modelRecord(e)));
+  const app = await buildApp(createServices(config, registry, store), options.logger ? { logger: options.logger } : {});
   await app.ready();
   const db = new BetterSqlite3(dbFile, { readonly: true });
   return {

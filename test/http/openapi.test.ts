@@ -20,7 +20,18 @@ describe('openapi/openapi.json', () => {
 
   it('describes every route with its body, its answers and its errors', () => {
     const doc = JSON.parse(committedText) as { paths: Record<string, Record<string, { responses: Record<string, unknown>; requestBody?: unknown }>> };
-    expect(Object.keys(doc.paths).sort()).toEqual(['/healthz', '/readyz', '/v1/models', '/v1/models/{name}', '/v1/models/{name}/score', '/v1/models/{name}/score-batch', '/v1/requests']);
+    expect(Object.keys(doc.paths).sort()).toEqual([
+      '/healthz',
+      '/readyz',
+      '/v1/drift-reports',
+      '/v1/drift-reports/{id}',
+      '/v1/drift-reports/{id}.html',
+      '/v1/models',
+      '/v1/models/{name}',
+      '/v1/models/{name}/score',
+      '/v1/models/{name}/score-batch',
+      '/v1/requests',
+    ]);
     const score = doc.paths['/v1/models/{name}/score']!.post!;
     expect(score.requestBody).toBeDefined();
     expect(Object.keys(score.responses).sort()).toEqual(['200', '400', '404', '413', '415', '503', 'default']);

@@ -64,6 +64,14 @@ describe('POST /v1/models/{name}/score', () => {
     expect(svc.rows()[0]!.in_domain).toBe(0);
   });
 
+  it('lists at most 50 field errors and says how many there were', async () => {
+    const junk = Object.fromEntries(Array.from({ length: 120 }, (_, i) => [`k${i}`, i]));
+    const res = await score({ features: { ...SETOSA, ...junk } });
+    expect(res.statusCode).toBe(400);
+    expect(res.json().errors).toHaveLength(50);
+    expect(res.json().detail).toMatch(/120 problems, the first 50 listed/);
+  });
+
   it('refuses missing and unknown features with problem+json naming each, and logs no answer', async () => {
     const { petal_width: _, ...three } = SETOSA;
     const res = await score({ features: { ...three, petal_wdth: 0.2 } });
@@ -118,6 +126,8 @@ describe('POST /v1/models/{name}/score', () => {
     const big = await svc.app.inject({ method: 'POST', url: '/v1/models/iris/score', headers: { 'content-type': 'application/json' }, payload: `{"features": [${'1,'.repeat(600_000)}1]}` });
     expect(big.statusCode).toBe(413);
     expect(big.json()).toMatchObject({ type: 'urn:plumbline:problem:body-too-large', detail: 'the body is larger than 1048576 bytes (limits.body_bytes)' });
+    const utf16 = await svc.app.inject({ method: 'POST', url: '/v1/models/iris/score', headers: { 'content-type': 'application/json; charset=utf-16' }, payload: '{"features": [1,2,3,4]}' });
+    expect(utf16.statusCode).toBe(415);
     const proto = await svc.app.inject({ method: 'POST', url: '/v1/models/iris/score', headers: { 'content-type': 'application/json' }, payload: '{"features": [1,2,3,4], "__proto__": {"x": 1}}' });
     expect(proto.statusCode).toBe(400);
     expect(proto.json().detail).toMatch(/__proto__ or constructor\.prototype key, which is refused/);

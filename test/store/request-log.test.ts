@@ -1,7 +1,7 @@
 import { spawn } from 'node:child_process';
 import { once } from 'node:events';
 import { fileURLToPath } from 'node:url';
-import type { Database } from 'better-sqlite3';
+import BetterSqlite3, { type Database } from 'better-sqlite3';
 import { afterEach, beforeEach, describe, expect, it } from 'vitest';
 import { openDatabase } from '../../src/store/database.js';
 import { fromFloat64Blob } from '../../src/store/float64-blob.js';
@@ -96,6 +96,25 @@ describe('group-commit writer', () => {
     expect(committed().map((c) => c.request_id)).toEqual([before.requestId, after.requestId]);
   });
 
+  it('fails a whole group at once, without retrying request by request, when the database is locked', async () => {
+    const other = new BetterSqlite3(file);
+    other.exec('BEGIN IMMEDIATE'); // another process holds the write lock
+    const log = createRequestLog(db, options());
+    const results = await Promise.allSettled(Array.from({ length: 20 }, () => log.append([row()])));
+    other.exec('ROLLBACK');
+    other.close();
+    expect(results.every((r) => r.status === 'rejected')).toBe(true);
+    expect(log.stats()).toMatchObject({ failedRows: 20, failedTransactions: 1, committedRows: 0 });
+    expect(committed()).toHaveLength(0);
+  });
+
+  it('commits at once, without waiting for flushMs, when flushRows rows are waiting', async () => {
+    const log = createRequestLog(db, options({ flushMs: 600_000, flushRows: 10 }));
+    const pending = Array.from({ length: 10 }, () => log.append([row()]));
+    await Promise.all(pending); // would time out if the 10-minute timer were the only trigger
+    expect(committed()).toHaveLength(10);
+  });
+
   it('refuses rows beyond queueRows at once, instead of holding them in memory', async () => {
     const log = createRequestLog(db, options({ flushMs: 50, queueRows: 5 }));
     const first = log.append([row(), row(), row(), row()]);
@@ -105,11 +124,11 @@ describe('group-commit writer', () => {
   });
 
   it('commits what waits when closed, and refuses rows after', async () => {
-    const log = createRequestLog(db, options({ flushMs: 1000 }));
+    const log = createRequestLog(db, options({ flushMs: 60_000 }));
     const p = log.append([row()]);
     log.close();
+    expect(committed()).toHaveLength(1); // synchronously, not by the timer
     await p;
-    expect(committed()).toHaveLength(1);
     await expect(log.append([row()])).rejects.toBeInstanceOf(LogClosedError);
   });
 

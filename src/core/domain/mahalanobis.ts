@@ -1,4 +1,4 @@
-import { cholesky, inverseQuadraticForm } from '../linalg.js';
+import { cholesky, forwardSubstitute, inverseQuadraticForm } from '../linalg.js';
 import { ledoitWolf, ledoitWolfCentred } from './ledoit-wolf.js';
 
 /** A Gaussian model of the rows: location and the Cholesky factor of a shrunk covariance. */
@@ -17,7 +17,25 @@ export interface MahalanobisModel {
  */
 export function fitMahalanobis(x: Float64Array, rows: number, dim: number): MahalanobisModel {
   const lw = ledoitWolf(x, rows, dim);
-  return { dim, mean: lw.mean, cholesky: cholesky(lw.covariance, dim), shrinkage: lw.shrinkage };
+  const { l, shrinkage } = factor(lw.covariance, dim, lw.shrinkage);
+  return { dim, mean: lw.mean, cholesky: l, shrinkage };
+}
+
+/**
+ * Cholesky of the shrunk covariance; when too few rows leave it singular even so (two rows give
+ * shrinkage 0), fall back to full shrinkage: the scaled identity mu I.
+ */
+function factor(covariance: Float64Array, dim: number, shrinkage: number): { l: Float64Array; shrinkage: number } {
+  try {
+    return { l: cholesky(covariance, dim), shrinkage };
+  } catch {
+    let trace = 0;
+    for (let j = 0; j < dim; j++) trace += covariance[j * dim + j] as number;
+    const mu = trace / dim > 0 ? trace / dim : 1;
+    const identity = new Float64Array(dim * dim);
+    for (let j = 0; j < dim; j++) identity[j * dim + j] = mu;
+    return { l: cholesky(identity, dim), shrinkage: 1 };
+  }
 }
 
 export function mahalanobisDistance(m: MahalanobisModel, x: ArrayLike<number>, offset = 0, work: Float64Array = new Float64Array(m.dim * 2)): number {
@@ -34,6 +52,16 @@ export interface ClassConditionalModel {
   means: Float64Array;
   cholesky: Float64Array;
   shrinkage: number;
+  /** L^-1 mu_k per class, so that scoring whitens a row once rather than once per class. */
+  whitenedMeans: Float64Array;
+}
+
+/** L^-1 mu_k for every class mean: d^2(h, mu_k) = ||L^-1 h - L^-1 mu_k||^2. */
+export function whitenMeans(means: Float64Array, cholesky: Float64Array, dim: number, classes: number): Float64Array {
+  const out = new Float64Array(classes * dim);
+  const tmp = new Float64Array(dim);
+  for (let k = 0; k < classes; k++) out.set(forwardSubstitute(cholesky, dim, means, tmp, k * dim), k * dim);
+  return out;
 }
 
 /**
@@ -60,15 +88,21 @@ export function fitClassConditional(h: Float64Array, labels: ArrayLike<number>, 
     for (let j = 0; j < dim; j++) means[k * dim + j] = (counts[k] as number) > 0 ? (means[k * dim + j] as number) / (counts[k] as number) : (overall[j] as number);
   }
   const lw = ledoitWolfCentred(h, rows, dim, overall, (i) => means.subarray((labels[i] as number) * dim, ((labels[i] as number) + 1) * dim));
-  return { dim, classes, means, cholesky: cholesky(lw.covariance, dim), shrinkage: lw.shrinkage };
+  const { l, shrinkage } = factor(lw.covariance, dim, lw.shrinkage);
+  return { dim, classes, means, cholesky: l, shrinkage, whitenedMeans: whitenMeans(means, l, dim, classes) };
 }
 
 export function nearestClassDistance(m: ClassConditionalModel, h: ArrayLike<number>, offset = 0, work: Float64Array = new Float64Array(m.dim * 2)): number {
-  const v = work.subarray(m.dim);
+  const w = forwardSubstitute(m.cholesky, m.dim, h, work, offset);
   let best = Infinity;
   for (let k = 0; k < m.classes; k++) {
-    for (let j = 0; j < m.dim; j++) v[j] = (h[offset + j] as number) - (m.means[k * m.dim + j] as number);
-    best = Math.min(best, inverseQuadraticForm(m.cholesky, m.dim, v, work));
+    let s = 0;
+    const base = k * m.dim;
+    for (let j = 0; j < m.dim; j++) {
+      const diff = (w[j] as number) - (m.whitenedMeans[base + j] as number);
+      s += diff * diff;
+    }
+    if (s < best) best = s;
   }
   return Math.sqrt(best);
 }

@@ -2,6 +2,7 @@ import type { FastifyInstance } from 'fastify';
 import fp from 'fastify-plugin';
 import type { ModelRegistry } from '../../bundle/registry.js';
 import type { Config } from '../../config.js';
+import type { ReportService } from '../../reports/service.js';
 import type { ScoringService } from '../../scoring/service.js';
 import type { Store } from '../../store/store.js';
 
@@ -10,6 +11,7 @@ export interface Services {
   registry: ModelRegistry;
   store: Store;
   scoring: ScoringService;
+  reports: ReportService;
 }
 
 declare module 'fastify' {

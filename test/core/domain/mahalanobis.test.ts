@@ -52,6 +52,14 @@ describe('input Mahalanobis distance', () => {
   });
 });
 
+describe('with too few rows for any covariance', () => {
+  it('falls back to full shrinkage rather than failing', () => {
+    const model = fitMahalanobis(Float64Array.of(1, 2, 3, 4, 5, 2, 3, 4, 5, 7), 2, 5);
+    expect(model.shrinkage).toBe(1);
+    expect(Number.isFinite(mahalanobisDistance(model, [1, 2, 3, 4, 5]))).toBe(true);
+  });
+});
+
 describe('feature-space Mahalanobis (Lee et al. 2018)', () => {
   it('measures the distance to the nearest class mean under one tied covariance', () => {
     const rng = createRng(4);

@@ -1,0 +1,72 @@
+import { mkdtempSync, rmSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { pino } from 'pino';
+import { configSchema } from '../../config.js';
+import { DEMO_DATA_DIR, DEMO_MODEL } from '../../demo/paths.js';
+import { replayDemoDay } from '../../demo/replay.js';
+import { type RunningServer, startServer } from '../../http/server.js';
+import type { DriftReport } from '../../reports/report-types.js';
+import type { CliIo } from '../io.js';
+import { formatReportSummary } from './drift.js';
+
+export interface DemoContext {
+  host: string;
+  port: number;
+  /** Stop after printing instead of serving until Ctrl-C (for scripts). */
+  exit: boolean;
+  /** Handle SIGTERM/SIGINT/SIGHUP as `serve` does (the command does; tests do not). */
+  signals: boolean;
+}
+
+export interface DemoResult {
+  server: RunningServer;
+  report: DriftReport;
+  url: string;
+  close(): Promise<void>;
+}
+
+const DAY = 86_400_000;
+
+/**
+ * `plumbline demo`: the whole story in one command. A server on the invented demo bundle with a
+ * temporary database; the demo traffic replayed as yesterday's shots; a drift report; and a
+ * printed account of what happened, with the address of the report's page.
+ */
+export async function demoAction(ctx: DemoContext, io: CliIo): Promise<DemoResult> {
+  const dir = mkdtempSync(join(tmpdir(), 'plumbline-demo-'));
+  const say = (line = ''): void => void io.stdout.write(`${line}\n`);
+  const config = configSchema.parse({ host: ctx.host, port: ctx.port, models_dir: join(DEMO_DATA_DIR, 'models'), db: join(dir, 'demo.db'), logger: { level: 'warn' }, reports: { schedule: 'off' } });
+  const server = await startServer(config, { logger: pino({ level: 'warn' }, io.stderr), handleSignals: ctx.signals && !ctx.exit });
+  const close = async (): Promise<void> => {
+    await server.close();
+    rmSync(dir, { recursive: true, force: true });
+  };
+  const services = server.app.services;
+  const today = Math.floor(Date.now() / DAY) * DAY;
+  const dayStart = today - DAY;
+
+  say('plumbline demo: an invented injection-moulding cell (demo-data/README.md tells its story)');
+  say(`1. serving the demo bundle "${DEMO_MODEL}" at ${server.url}, audit log in ${config.db}`);
+  say(`2. replaying yesterday's shots, ${new Date(dayStart).toISOString().slice(0, 10)}, through the scoring service:`);
+  const replay = await replayDemoDay(services.scoring, DEMO_MODEL, DEMO_DATA_DIR, dayStart);
+  for (const s of replay.byStretch) {
+    say(`   ${String(s.fromHour).padStart(2, '0')}:00-${String(s.toHour).padStart(2, '0')}:00  ${String(s.count).padStart(5)} shots, ${String(s.outOfDomain).padStart(4)} out of domain  (${s.story})`);
+  }
+  say(`   ${replay.scored} answers, every one committed to the audit log (GET ${server.url}/v1/requests)`);
+  say('3. the nightly drift report for that day:');
+  const report = await services.reports.run(DEMO_MODEL, { from: dayStart, to: today }, 'demo');
+  for (const line of formatReportSummary(report).split('\n')) say(`   ${line}`);
+  const url = `${server.url}/v1/drift-reports/${report.id}.html`;
+  say();
+  say(`The report, with its charts: ${url}`);
+  say(`What the stuck sensor looked like to the model: ${server.url}/v1/requests?in_domain=false&limit=3`);
+  say(`The API: ${server.url}/docs`);
+  if (ctx.exit) {
+    await close();
+  } else if (ctx.signals) {
+    say('Serving until Ctrl-C; the temporary database is removed on exit.');
+    process.once('exit', () => rmSync(dir, { recursive: true, force: true }));
+  }
+  return { server, report, url, close };
+}

@@ -1,0 +1,58 @@
+import { writeFile } from 'node:fs/promises';
+import { renderReportHtml } from '../../reports/html.js';
+import type { DriftReport } from '../../reports/report-types.js';
+import { REPORT_DEFAULTS } from '../../reports/build-report.js';
+import { ReportError, createReportService } from '../../reports/service.js';
+import { openStore } from '../../store/store.js';
+import { type CliIo, UsageError, fileProblem } from '../io.js';
+
+export interface DriftContext {
+  db: string;
+  model: string;
+  from: Date;
+  to: Date;
+  json?: string;
+  html?: string;
+  minRows: number;
+  sampleCap: number;
+}
+
+/** The summary a person reads at the terminal: verdict, counts, findings. */
+export function formatReportSummary(r: DriftReport): string {
+  const o = r.out_of_domain;
+  return [
+    `drift report ${r.id}: ${r.model.name} version ${r.model.version}, ${r.window.from} to ${r.window.to}`,
+    `verdict: ${r.verdict}`,
+    `scored ${r.counts.scored}, refused ${r.counts.rejected}, out of domain ${r.counts.out_of_domain}${o.rate !== null ? ` (${(o.rate * 100).toFixed(2)}%, expected ${(o.expected_rate * 100).toFixed(2)}%)` : ''}`,
+    ...r.findings.map((f, i) => `${i + 1}. ${f}`),
+  ].join('\n');
+}
+
+/** `plumbline drift`: a report over the audit log in the database, stored there and printed. */
+export async function driftAction(ctx: DriftContext, io: CliIo): Promise<DriftReport> {
+  if (!(ctx.from.getTime() < ctx.to.getTime())) throw new UsageError(`--from ${ctx.from.toISOString()} must be before --to ${ctx.to.toISOString()}`);
+  const store = openStore(ctx.db, { sync: 'normal', flushMs: 0, flushRows: 512, queueRows: 1000, rejectedRows: 1000 });
+  let report: DriftReport;
+  try {
+    const reports = createReportService(store, { ...REPORT_DEFAULTS, minRows: ctx.minRows, sampleCap: ctx.sampleCap, worker: false });
+    report = await reports.run(ctx.model, { from: ctx.from.getTime(), to: ctx.to.getTime() }, 'cli');
+  } catch (err) {
+    if (err instanceof ReportError) throw new UsageError(`${ctx.db}: ${err.message}`);
+    throw err;
+  } finally {
+    store.close();
+  }
+  for (const [flag, path, text] of [
+    ['--json', ctx.json, `${JSON.stringify(report, null, 2)}\n`],
+    ['--html', ctx.html, renderReportHtml(report)],
+  ] as const) {
+    if (path === undefined) continue;
+    try {
+      await writeFile(path, text);
+    } catch (err) {
+      throw fileProblem(flag, path, err);
+    }
+  }
+  io.stdout.write(`${formatReportSummary(report)}\n`);
+  return report;
+}

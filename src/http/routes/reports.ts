@@ -1,0 +1,118 @@
+import type { FastifyPluginAsyncZod } from 'fastify-type-provider-zod';
+import { z } from 'zod';
+import { ProblemError } from '../../errors.js';
+import type { DriftReport } from '../../reports/report-types.js';
+import { renderReportHtml } from '../../reports/html.js';
+import { ReportError } from '../../reports/service.js';
+import {
+  commonErrors,
+  driftReportSchema,
+  jsonResponse,
+  problemResponse,
+  reportIdParam,
+  reportListQuerySchema,
+  reportRequestSchema,
+  reportSummarySchema,
+} from '../schemas.js';
+
+/** A POSTed window may span at most this long; the nightly job covers longer histories day by day. */
+const MAX_WINDOW_MS = 366 * 24 * 3_600_000;
+
+// Opaque page cursor: "d1." + the last seq seen, base64url (as for the audit log).
+const encodeCursor = (seq: number): string => Buffer.from(`d1.${seq}`).toString('base64url');
+function decodeCursor(c: string): number {
+  const m = /^d1\.(\d{1,16})$/.exec(Buffer.from(c, 'base64url').toString('utf8'));
+  if (!m || encodeCursor(Number(m[1])) !== c) throw new ProblemError('invalid-request', 'the cursor is not valid', [{ parameter: 'cursor', detail: 'is not a cursor this service gave out' }]);
+  return Number(m[1]);
+}
+
+const reports: FastifyPluginAsyncZod = async (app) => {
+  const { store } = app.services;
+  const load = (id: string): DriftReport => {
+    const stored = store.drift.getReport(id);
+    if (!stored) throw new ProblemError('unknown-report', `no drift report has the id ${JSON.stringify(id)}`);
+    return JSON.parse(stored.report) as DriftReport;
+  };
+
+  app.get(
+    '/v1/drift-reports',
+    {
+      schema: {
+        summary: 'Stored drift reports, newest first',
+        tags: ['drift'],
+        querystring: reportListQuerySchema,
+        response: { 200: jsonResponse('a page of report summaries', z.object({ items: z.array(reportSummarySchema), next_cursor: z.string().nullable() })), 400: problemResponse('a filter or the cursor is not valid'), ...commonErrors },
+      },
+    },
+    async (req) => {
+      const q = req.query;
+      const rows = store.drift.listReports(
+        { ...(q.model !== undefined ? { model: q.model } : {}), ...(q.from !== undefined ? { from: Date.parse(q.from) } : {}), ...(q.to !== undefined ? { to: Date.parse(q.to) } : {}) },
+        q.limit + 1,
+        q.cursor !== undefined ? decodeCursor(q.cursor) : undefined,
+      );
+      const page = rows.slice(0, q.limit);
+      return {
+        items: page.map((r) => {
+          const report = JSON.parse(r.report) as DriftReport;
+          return { id: r.id, model: report.model, window: report.window, created_at: report.created_at, trigger: r.trigger as 'nightly', verdict: report.verdict, counts: report.counts };
+        }),
+        next_cursor: rows.length > q.limit ? encodeCursor((page[page.length - 1] as { seq: number }).seq) : null,
+      };
+    },
+  );
+
+  app.get(
+    '/v1/drift-reports/:id',
+    {
+      schema: {
+        summary: 'One drift report',
+        tags: ['drift'],
+        params: reportIdParam,
+        response: { 200: jsonResponse('the report', driftReportSchema), 404: problemResponse('no report has that id'), ...commonErrors },
+      },
+    },
+    async (req) => load(req.params.id),
+  );
+
+  app.get(
+    '/v1/drift-reports/:id.html',
+    {
+      schema: {
+        summary: 'One drift report as a self-contained HTML page (charts in inline SVG, nothing fetched)',
+        tags: ['drift'],
+        params: reportIdParam,
+        response: { 200: { description: 'the page', content: { 'text/html': { schema: z.string() } } }, 404: problemResponse('no report has that id'), ...commonErrors },
+      },
+    },
+    async (req, reply) => reply.type('text/html; charset=utf-8').send(renderReportHtml(load(req.params.id))),
+  );
+
+  app.post(
+    '/v1/drift-reports',
+    {
+      schema: {
+        summary: 'Run a drift report now for a model and a window',
+        description: 'Built on a worker thread over the audit log, stored, and returned. The model is compared with the training reference of the bundle the log holds for it (the one loaded last).',
+        tags: ['drift'],
+        body: reportRequestSchema,
+        response: { 201: jsonResponse('the report, stored', driftReportSchema), 400: problemResponse('the window is not valid'), 404: problemResponse('the audit log holds no bundle of that model'), ...commonErrors },
+      },
+    },
+    async (req, reply) => {
+      const from = Date.parse(req.body.from);
+      const to = Date.parse(req.body.to);
+      if (!(from < to)) throw new ProblemError('invalid-request', 'the window is empty', [{ pointer: '#/to', detail: 'must be later than from' }]);
+      if (to - from > MAX_WINDOW_MS) throw new ProblemError('invalid-request', 'the window is too long', [{ pointer: '#/to', detail: 'the window may span at most 366 days' }]);
+      try {
+        const report = await app.services.reports.run(req.body.model, { from, to }, 'request');
+        return reply.code(201).send(report);
+      } catch (err) {
+        if (err instanceof ReportError && err.reason === 'unknown-model') throw new ProblemError('unknown-model', err.message);
+        throw err;
+      }
+    },
+  );
+};
+
+export default reports;

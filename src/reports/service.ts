@@ -1,0 +1,73 @@
+import { Worker } from 'node:worker_threads';
+import { parseBundle } from '../bundle/verify.js';
+import { uuidv7 } from '../ids.js';
+import type { Store } from '../store/store.js';
+import { type ReportOptions, buildDriftReport } from './build-report.js';
+import type { DriftReport } from './report-types.js';
+import type { WorkerJob } from './worker.js';
+
+export type ReportTrigger = 'nightly' | 'request' | 'cli' | 'demo';
+
+export class ReportError extends Error {
+  constructor(
+    message: string,
+    readonly reason: 'unknown-model' | 'failed',
+  ) {
+    super(message);
+    this.name = 'ReportError';
+  }
+}
+
+export interface ReportService {
+  /** Builds, stores and returns a report of a model over [from, to), with the bundle the log holds for it. */
+  run(model: string, window: { from: number; to: number }, trigger: ReportTrigger, sha256?: string): Promise<DriftReport>;
+}
+
+/**
+ * The worker's module next to this one. Built, it is plain JavaScript. Run from the TypeScript
+ * sources (tests, tsx), the worker first registers tsx's loader, since workers on Node 20 do not
+ * take --import from execArgv.
+ */
+function startWorker(job: WorkerJob): Worker {
+  if (!import.meta.url.endsWith('.ts')) return new Worker(new URL('./worker.js', import.meta.url), { workerData: job });
+  const target = new URL('./worker.ts', import.meta.url).href;
+  const boot = `import('tsx/esm/api').then((m) => { m.register(); return import(${JSON.stringify(target)}); });`;
+  return new Worker(boot, { eval: true, workerData: job });
+}
+
+function inWorker(job: WorkerJob): Promise<DriftReport> {
+  return new Promise((resolve, reject) => {
+    const worker = startWorker(job);
+    worker.once('message', (m: { ok: true; report: DriftReport } | { ok: false; message: string }) => (m.ok ? resolve(m.report) : reject(new ReportError(m.message, 'failed'))));
+    worker.once('error', (err) => reject(new ReportError(err.message, 'failed')));
+    worker.once('exit', (code) => code !== 0 && reject(new ReportError(`report worker exited with code ${code}`, 'failed')));
+  });
+}
+
+/**
+ * Drift reports over the audit log. With `worker` (the service) each report is built on a worker
+ * thread with its own read-only connection; without it (the CLI) in the calling thread.
+ */
+export function createReportService(store: Store, options: ReportOptions & { worker: boolean }): ReportService {
+  return {
+    async run(model, window, trigger, sha256) {
+      const stored = store.drift.bundleText(model, sha256);
+      if (!stored) throw new ReportError(`the audit log holds no bundle for a model named ${JSON.stringify(model)}`, 'unknown-model');
+      const meta = { id: uuidv7(), createdAt: new Date() };
+      const report = options.worker
+        ? await inWorker({ dbFile: store.file, bundleText: stored.text, window, meta: { id: meta.id, createdAt: meta.createdAt.toISOString() }, options })
+        : buildDriftReport(store.drift, parseBundle(stored.text, 'stored bundle'), window, meta, options);
+      store.drift.saveReport({
+        id: report.id,
+        model_name: report.model.name,
+        model_sha256: report.model.sha256,
+        window_from: window.from,
+        window_to: window.to,
+        created_at: meta.createdAt.getTime(),
+        trigger,
+        report,
+      });
+      return report;
+    },
+  };
+}

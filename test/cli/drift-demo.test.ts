@@ -1,0 +1,71 @@
+import { existsSync, readFileSync } from 'node:fs';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import BetterSqlite3 from 'better-sqlite3';
+import { demoAction } from '../../src/cli/actions/demo.js';
+import { driftAction } from '../../src/cli/actions/drift.js';
+import type { CliIo } from '../../src/cli/io.js';
+import { DAY_END, DAY_START, demoDayService } from '../helpers/demo.js';
+import { tempDir } from '../helpers/datasets.js';
+import { sink } from '../helpers/sink.js';
+
+const tmp = tempDir();
+afterAll(() => tmp.remove());
+const io = (): CliIo & { out: ReturnType<typeof sink> } => {
+  const out = sink();
+  return { stdout: out, stderr: sink(), interactive: false, out };
+};
+
+describe('plumbline drift', () => {
+  let db = '';
+  beforeAll(async () => {
+    const svc = await demoDayService();
+    db = tmp.file('audit.db');
+    // a copy of the logged day, as an engineer would point the command at the service's file
+    svc.store.log.flush();
+    const source = new BetterSqlite3(svc.dbFile, { readonly: true });
+    await source.backup(db);
+    source.close();
+    await svc.close();
+  });
+
+  it('reports on the database, stores the report there, prints the findings and writes JSON and HTML', async () => {
+    const t = io();
+    const json = tmp.file('r.json');
+    const html = tmp.file('r.html');
+    const report = await driftAction({ db, model: 'moulding-quality', from: new Date(DAY_START), to: new Date(DAY_END), json, html, minRows: 30, sampleCap: 10_000 }, t);
+    expect(t.out.text()).toMatch(/^drift report [0-9a-f-]{36}: moulding-quality version 1, 2026-11-30T00:00:00\.000Z to 2026-12-01T00:00:00\.000Z\nverdict: shifted\n/);
+    expect(t.out.text()).toMatch(/^\d\. melt_temp_c has shifted: PSI/m);
+    expect(JSON.parse(readFileSync(json, 'utf8')).id).toBe(report.id);
+    expect(readFileSync(html, 'utf8')).toContain('data-chart="psi"');
+    const check = new BetterSqlite3(db, { readonly: true });
+    expect(check.prepare('SELECT trigger FROM drift_reports WHERE id = ?').get(report.id)).toEqual({ trigger: 'cli' });
+    check.close();
+  });
+
+  it('names a model the log has never seen and a window that is empty', async () => {
+    await expect(driftAction({ db, model: 'press-9', from: new Date(DAY_START), to: new Date(DAY_END), minRows: 30, sampleCap: 10_000 }, io())).rejects.toThrow(/holds no bundle for a model named "press-9"/);
+    await expect(driftAction({ db, model: 'moulding-quality', from: new Date(DAY_END), to: new Date(DAY_START), minRows: 30, sampleCap: 10_000 }, io())).rejects.toThrow(/must be before --to/);
+  });
+});
+
+describe('plumbline demo', () => {
+  it('serves the demo bundle, replays a day, reports on it and prints where to look', async () => {
+    const t = io();
+    const demo = await demoAction({ host: '127.0.0.1', port: 0, exit: false, signals: false }, t);
+    try {
+      const text = t.out.text();
+      expect(text).toMatch(/^plumbline demo: an invented injection-moulding cell/);
+      expect(text).toMatch(/18:00-19:00 {5}83 shots, {3}83 out of domain {2}\(cushion transducer stuck at 0 mm\)/);
+      expect(text).toContain('verdict: shifted');
+      expect(text).toContain(`The report, with its charts: ${demo.url}`);
+      const page = await fetch(demo.url);
+      expect(page.status).toBe(200);
+      expect(await page.text()).toContain('data-verdict="shifted"');
+      const ood = (await (await fetch(`${demo.server.url}/v1/requests?in_domain=false&limit=1000`)).json()) as { items: unknown[] };
+      expect(ood.items.length).toBe(demo.report.counts.out_of_domain);
+    } finally {
+      await demo.close();
+    }
+    expect(existsSync(demo.server.store.file)).toBe(false);
+  });
+});

@@ -1,0 +1,57 @@
+import { once } from 'node:events';
+import { connect } from 'node:net';
+import { join } from 'node:path';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { configSchema } from '../../src/config.js';
+import { type RunningServer, startServer } from '../../src/http/server.js';
+import { tempDir } from '../helpers/datasets.js';
+
+const tmp = tempDir();
+let server: RunningServer;
+beforeAll(async () => {
+  server = await startServer(configSchema.parse({ port: 0, models_dir: new URL('../../demo-data/models', import.meta.url).pathname, db: join(tmp.dir, 'raw.db'), logger: { level: 'silent' }, reports: { schedule: 'off' } }));
+});
+afterAll(async () => {
+  await server.close();
+  tmp.remove();
+});
+
+/** Sends bytes on a fresh connection and returns everything the server writes back. */
+async function raw(bytes: string): Promise<string> {
+  const { port } = new URL(server.url);
+  const socket = connect(Number(port), '127.0.0.1');
+  await once(socket, 'connect');
+  let text = '';
+  socket.on('data', (c: Buffer) => (text += c.toString()));
+  socket.end(bytes);
+  await once(socket, 'close');
+  return text;
+}
+
+describe('requests that are not well-formed HTTP', () => {
+  it('headers larger than Node accepts get 431 problem+json', async () => {
+    const answer = await raw(`GET /healthz HTTP/1.1\r\nHost: x\r\nX-Big: ${'a'.repeat(40_000)}\r\n\r\n`);
+    expect(answer).toMatch(/^HTTP\/1\.1 431 /);
+    expect(answer).toMatch(/content-type: application\/problem\+json/i);
+    expect(answer).toContain('urn:plumbline:problem:headers-too-large');
+  });
+
+  it('a request line that is not HTTP gets 400 problem+json', async () => {
+    const answer = await raw('HELLO there\r\n\r\n');
+    expect(answer).toMatch(/^HTTP\/1\.1 400 /);
+    expect(answer).toContain('urn:plumbline:problem:invalid-request');
+  });
+
+  it('a URL that cannot be decoded and an overlong path segment get problem+json', async () => {
+    const bad = await fetch(`${server.url}/v1/models/%zz`);
+    expect(bad.status).toBe(400);
+    expect(bad.headers.get('content-type')).toMatch(/^application\/problem\+json/);
+    const long = await fetch(`${server.url}/v1/models/${'m'.repeat(300)}/score`, { method: 'POST', headers: { 'content-type': 'application/json' }, body: '{}' });
+    expect(long.status).toBe(404);
+    expect(((await long.json()) as { type: string }).type).toBe('urn:plumbline:problem:not-found');
+  });
+
+  it('keeps serving afterwards', async () => {
+    expect((await fetch(`${server.url}/healthz`)).status).toBe(200);
+  });
+});

@@ -1,0 +1,82 @@
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { buildDriftReport } from '../../src/reports/build-report.js';
+import type { DriftReport } from '../../src/reports/report-types.js';
+import { DAY_END, DAY_START, demoDayService } from '../helpers/demo.js';
+import type { TestService } from '../helpers/service.js';
+
+let svc: TestService;
+let report: DriftReport;
+const bundle = () => svc.registry.get('moulding-quality')!.bundle;
+beforeAll(async () => {
+  svc = await demoDayService();
+  report = buildDriftReport(svc.store.drift, bundle(), { from: DAY_START, to: DAY_END }, { id: 'r1', createdAt: new Date('2026-12-01T02:00:00Z') });
+});
+afterAll(async () => {
+  await svc.close();
+});
+
+describe('drift report over the invented demo day (normal morning, resin-lot change at noon, stuck cushion sensor 18:00-19:00)', () => {
+  it('counts every scored row of the window', () => {
+    expect(report.counts).toEqual({ scored: 1999, rejected: 0, out_of_domain: report.counts.out_of_domain, other_versions: 0 });
+    expect(report.features.every((f) => f.n === 1999)).toBe(true);
+  });
+
+  it('finds the drifted feature shifted and no other feature shifted', () => {
+    const byName = Object.fromEntries(report.features.map((f) => [f.name, f]));
+    expect(byName.melt_temp_c!.band).toBe('shifted');
+    expect(byName.melt_temp_c!.p_adjusted).toBeLessThan(1e-10);
+    expect(report.features.filter((f) => f.band === 'shifted').map((f) => f.name)).toEqual(['melt_temp_c']);
+    // melt temperature +7 degC on 916 of 1999 rows: about 3.2 degC on the mean
+    expect(byName.melt_temp_c!.mean! - byName.melt_temp_c!.reference_mean).toBeGreaterThan(2.5);
+    expect(byName.melt_temp_c!.mean! - byName.melt_temp_c!.reference_mean).toBeLessThan(4);
+  });
+
+  it('shows the faulted hour in the hourly series', () => {
+    const hours = Object.fromEntries(report.hourly.map((h) => [h.hour, h]));
+    const faulted = hours['2026-11-30T18:00:00.000Z']!;
+    expect(faulted.out_of_domain).toBe(faulted.scored);
+    expect(hours['2026-11-30T06:00:00.000Z']!.out_of_domain).toBeLessThan(5);
+    expect(report.findings.some((f) => f.startsWith('Between 18:00 and 19:00 UTC on 2026-11-30'))).toBe(true);
+  });
+
+  it('tests the out-of-domain rate against the false-alarm rate measured at calibration', () => {
+    const o = report.out_of_domain;
+    expect(o.expected_rate).toBe(bundle().file.domain.held_out.false_alarm_rate);
+    expect(o.rate).toBeCloseTo(report.counts.out_of_domain / 1999, 15);
+    expect(o.ci_low!).toBeLessThan(o.rate!);
+    expect(o.ci_high!).toBeGreaterThan(o.rate!);
+    expect(o.p_value).toBeLessThan(1e-10);
+    expect(report.verdict).toBe('shifted');
+  });
+
+  it('compares predicted classes with the validation split: more flash after the hotter barrel', () => {
+    expect(report.predictions.fractions.flash!).toBeGreaterThan(2 * report.predictions.reference_fractions.flash!);
+    expect(report.predictions.chi_square.p_value).toBeLessThan(1e-10);
+    expect(report.predictions.js_distance!).toBeGreaterThan(0.05);
+  });
+
+  it('puts the worst findings first', () => {
+    expect(report.findings[0]).toMatch(/^Out-of-domain answers: /);
+    expect(report.findings.findIndex((f) => f.startsWith('melt_temp_c has shifted'))).toBeLessThan(report.findings.findIndex((f) => f.startsWith('Predicted classes')));
+  });
+
+  it('says so instead of giving p-values when the window holds too few rows', () => {
+    const small = buildDriftReport(svc.store.drift, bundle(), { from: DAY_START, to: DAY_START + 20 * 60_000 }, { id: 'r2', createdAt: new Date() });
+    expect(small.counts.scored).toBeLessThan(30);
+    expect(small.verdict).toBe('insufficient data');
+    expect(small.out_of_domain.p_value).toBeNull();
+    expect(small.features.every((f) => f.ks.p_value === null && f.p_adjusted === null)).toBe(true);
+    expect(small.findings[0]).toMatch(/^Only \d+ rows were scored in the window; at least 30 are needed/);
+  });
+
+  it('keeps memory bounded: above the cap the KS sample is a seeded uniform reservoir, and the report says so', () => {
+    const opts = { minRows: 30, sampleCap: 300, seed: 7 };
+    const a = buildDriftReport(svc.store.drift, bundle(), { from: DAY_START, to: DAY_END }, { id: 'r3', createdAt: new Date() }, opts);
+    const b = buildDriftReport(svc.store.drift, bundle(), { from: DAY_START, to: DAY_END }, { id: 'r3', createdAt: new Date(0) }, opts);
+    expect(a.sample).toEqual({ rows: 300, cap: 300, reservoir: true, seed: 7 });
+    expect(a.features.map((f) => f.ks.d)).toEqual(b.features.map((f) => f.ks.d));
+    expect(a.findings.some((f) => f.includes('seeded uniform sample of 300 of the 1999 rows'))).toBe(true);
+    // the PSI bins count every row, so they do not depend on the sample
+    expect(a.features.map((f) => f.psi)).toEqual(report.features.map((f) => f.psi));
+  });
+});
