@@ -1,5 +1,6 @@
 import type { Database } from 'better-sqlite3';
 import type { DomainCheck, OutsideFeature } from '../bundle/scorer.js';
+import { cursorCodec } from '../cursor.js';
 import { fromFloat64Blob } from './float64-blob.js';
 import { createModelCache } from './models-table.js';
 
@@ -36,13 +37,6 @@ export interface RequestPage {
   next_cursor: string | null;
 }
 
-export class CursorError extends Error {
-  constructor() {
-    super('is not a cursor this service gave out');
-    this.name = 'CursorError';
-  }
-}
-
 interface Row {
   seq: number;
   request_id: string;
@@ -62,17 +56,8 @@ interface Row {
   latency_us: number;
 }
 
-// Opaque to clients: "r1." + the last seq seen, base64url. The prefix lets the format change later.
-function encodeCursor(seq: number): string {
-  return Buffer.from(`r1.${seq}`).toString('base64url');
-}
-
-function decodeCursor(cursor: string): number {
-  const text = Buffer.from(cursor, 'base64url').toString('utf8');
-  const m = /^r1\.(\d{1,16})$/.exec(text);
-  if (!m || Buffer.from(text).toString('base64url') !== cursor) throw new CursorError();
-  return Number(m[1]);
-}
+// Opaque to clients; the "r1" tag lets the format change later.
+const codec = cursorCodec('r1');
 
 /** Pages through the audit log, newest first; the cursor continues where the last page ended. */
 export function createRequestQuery(db: Database): (filter: RequestFilter, limit: number, cursor?: string) => RequestPage {
@@ -82,7 +67,7 @@ export function createRequestQuery(db: Database): (filter: RequestFilter, limit:
     const args: unknown[] = [];
     if (cursor !== undefined) {
       where.push('seq < ?');
-      args.push(decodeCursor(cursor));
+      args.push(codec.decode(cursor));
     }
     if (filter.model !== undefined) {
       where.push('model_name = ?');
@@ -114,7 +99,7 @@ export function createRequestQuery(db: Database): (filter: RequestFilter, limit:
     const page = more ? rows.slice(0, limit) : rows;
     return {
       items: page.map((r) => toItem(r, model(r.model_sha256))),
-      next_cursor: more ? encodeCursor((page[page.length - 1] as Row).seq) : null,
+      next_cursor: more ? codec.encode((page[page.length - 1] as Row).seq) : null,
     };
   };
 }
@@ -138,3 +123,5 @@ function toItem(r: Row, m: ReturnType<ReturnType<typeof createModelCache>>): Log
     latency_ms: r.latency_us / 1000,
   };
 }
+
+export { CursorError } from '../cursor.js';

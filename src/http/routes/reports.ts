@@ -1,5 +1,7 @@
 import type { FastifyPluginAsyncZod } from 'fastify-type-provider-zod';
 import { z } from 'zod';
+import { cursorCodec } from '../../cursor.js';
+import { withCursor } from '../cursor-param.js';
 import { ProblemError } from '../../errors.js';
 import type { DriftReport } from '../../reports/report-types.js';
 import { renderReportHtml } from '../../reports/html.js';
@@ -19,12 +21,7 @@ import {
 const MAX_WINDOW_MS = 366 * 24 * 3_600_000;
 
 // Opaque page cursor: "d1." + the last seq seen, base64url (as for the audit log).
-const encodeCursor = (seq: number): string => Buffer.from(`d1.${seq}`).toString('base64url');
-function decodeCursor(c: string): number {
-  const m = /^d1\.(\d{1,16})$/.exec(Buffer.from(c, 'base64url').toString('utf8'));
-  if (!m || encodeCursor(Number(m[1])) !== c) throw new ProblemError('invalid-request', 'the cursor is not valid', [{ parameter: 'cursor', detail: 'is not a cursor this service gave out' }]);
-  return Number(m[1]);
-}
+const codec = cursorCodec('d1');
 
 const reports: FastifyPluginAsyncZod = async (app) => {
   const { store } = app.services;
@@ -49,7 +46,7 @@ const reports: FastifyPluginAsyncZod = async (app) => {
       const rows = store.drift.listReports(
         { ...(q.model !== undefined ? { model: q.model } : {}), ...(q.from !== undefined ? { from: Date.parse(q.from) } : {}), ...(q.to !== undefined ? { to: Date.parse(q.to) } : {}) },
         q.limit + 1,
-        q.cursor !== undefined ? decodeCursor(q.cursor) : undefined,
+        q.cursor !== undefined ? withCursor(() => codec.decode(q.cursor as string)) : undefined,
       );
       const page = rows.slice(0, q.limit);
       return {
@@ -57,7 +54,7 @@ const reports: FastifyPluginAsyncZod = async (app) => {
           const report = JSON.parse(r.report) as DriftReport;
           return { id: r.id, model: report.model, window: report.window, created_at: report.created_at, trigger: r.trigger as 'nightly', verdict: report.verdict, counts: report.counts };
         }),
-        next_cursor: rows.length > q.limit ? encodeCursor((page[page.length - 1] as { seq: number }).seq) : null,
+        next_cursor: rows.length > q.limit ? codec.encode((page[page.length - 1] as { seq: number }).seq) : null,
       };
     },
   );

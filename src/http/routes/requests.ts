@@ -1,6 +1,7 @@
 import type { FastifyPluginAsyncZod } from 'fastify-type-provider-zod';
 import { type FieldError, ProblemError } from '../../errors.js';
-import { CursorError, type RequestFilter } from '../../store/request-query.js';
+import type { RequestFilter } from '../../store/request-query.js';
+import { withCursor } from '../cursor-param.js';
 import { commonErrors, jsonResponse, problemResponse, requestPageSchema, requestsQuerySchema } from '../schemas.js';
 
 const requests: FastifyPluginAsyncZod = async (app) => {
@@ -36,12 +37,7 @@ const requests: FastifyPluginAsyncZod = async (app) => {
         ...(q.label !== undefined ? { label: q.label } : {}),
         ...(tags.length > 0 ? { tags } : {}),
       };
-      try {
-        return app.services.store.queryRequests(filter, q.limit, q.cursor);
-      } catch (err) {
-        if (err instanceof CursorError) throw new ProblemError('invalid-request', 'the cursor is not valid', [{ parameter: 'cursor', detail: err.message }]);
-        throw err;
-      }
+      return withCursor(() => app.services.store.queryRequests(filter, q.limit, q.cursor));
     },
   );
 };
