@@ -2,6 +2,7 @@
 import { readFileSync } from 'node:fs';
 import { Cron } from 'croner';
 import { z } from 'zod';
+import { alertsSchema } from './alerts/rules.js';
 
 /**
  * The build time for reproducible artefacts: SOURCE_DATE_EPOCH (seconds since the epoch, see
@@ -82,6 +83,14 @@ export const configSchema = z
       sample_cap: int(100, 1_000_000).default(10_000),
     })
     .prefault({}),
+  /** Rules that raise alerts from the audit log, and the webhooks that hear of them (config file only). */
+  alerts: alertsSchema.prefault({}),
+  metrics: z
+    .strictObject({
+      /** Serve GET /metrics in the Prometheus text format. */
+      enabled: z.boolean().default(true),
+    })
+    .prefault({}),
   limits: z
     .strictObject({
       body_bytes: int(1024, 1 << 30).default(1 << 20),
@@ -120,6 +129,8 @@ function leavesOf(schema: z.ZodType, path: string[] = []): Leaf[] {
   if (s.def.type === 'object') {
     return Object.entries((s as z.ZodObject).shape).flatMap(([k, v]) => leavesOf(v as z.ZodType, [...path, k]));
   }
+  // Lists and maps (alert rules, webhooks) come from the file only.
+  if (s.def.type === 'array' || s.def.type === 'record') return [];
   const kind = s.def.type === 'number' ? 'number' : s.def.type === 'boolean' ? 'boolean' : 'string';
   return [{ path, kind, env: `PLUMBLINE_${path.join('_').toUpperCase()}` }];
 }
@@ -220,15 +231,28 @@ export function loadConfig(sources: ConfigSources): { config: Config; warnings: 
     for (const issue of parsed.error.issues) {
       const key = issue.path.join('.');
       if (issue.code === 'unrecognized_keys') {
-        for (const k of issue.keys) problems.push(`${[key, k].filter(Boolean).join('.')} is not a configuration key (${origin.get([key, k].filter(Boolean).join('.')) ?? 'config file'})`);
+        for (const k of issue.keys) problems.push(`${[describeKey(issue.path, merged), k].filter(Boolean).join('.')} is not a configuration key (${origin.get([key, k].filter(Boolean).join('.')) ?? 'config file'})`);
         continue;
       }
       const value = getPath(merged, issue.path);
-      problems.push(`${key} = ${JSON.stringify(value)} (${origin.get(key) ?? 'default'}): ${issue.message}`);
+      // A value inside a list (an alert rule's key) has the origin of the list.
+      let from: string | undefined;
+      for (let n = issue.path.length; n > 0 && from === undefined; n--) from = origin.get(issue.path.slice(0, n).join('.'));
+      problems.push(`${describeKey(issue.path, merged)} = ${JSON.stringify(value)} (${from ?? 'default'}): ${issue.message}`);
     }
   }
   if (problems.length > 0) throw new ConfigError(problems);
   return { config: parsed.data as Config, warnings };
+}
+
+/** A key for an error message; an alert rule is named by its name as well as its index. */
+function describeKey(path: readonly PropertyKey[], merged: unknown): string {
+  const key = path.join('.');
+  if (path[0] === 'alerts' && path[1] === 'rules' && typeof path[2] === 'number') {
+    const name = getPath(merged, ['alerts', 'rules', path[2], 'name']);
+    if (typeof name === 'string') return `alerts.rules[${path[2]}] (${name}).${path.slice(3).join('.')}`;
+  }
+  return key;
 }
 
 /** Flags of `plumbline serve` whose name differs from their key. */

@@ -10,6 +10,8 @@ import { zodValidatorCompiler } from './validation.js';
 import docs from './routes/docs.js';
 import health from './routes/health.js';
 import models from './routes/models.js';
+import alerts from './routes/alerts.js';
+import metrics from './routes/metrics.js';
 import reports from './routes/reports.js';
 import requests from './routes/requests.js';
 import scoring from './routes/scoring.js';
@@ -90,6 +92,7 @@ export async function buildApp(svc: Services, options: AppOptions = {}): Promise
         { name: 'models', description: 'the loaded bundles' },
         { name: 'audit', description: 'the audit log' },
         { name: 'drift', description: 'drift reports against the training distribution' },
+        { name: 'alerts', description: 'alerts raised by the rules of the configuration' },
         { name: 'health', description: 'liveness and readiness' },
       ],
     },
@@ -103,12 +106,15 @@ export async function buildApp(svc: Services, options: AppOptions = {}): Promise
     onRejected: ({ code, status, request }) => {
       const path = request.url.split('?')[0] ?? '';
       const length = Number(request.headers['content-length']);
+      const model = PATH_MODEL.exec(path)?.[1]?.slice(0, 64) ?? null;
+      // Only loaded models become label values: garbage paths must not grow the series.
+      svc.metrics.rejected.inc({ model: model === null ? '' : svc.registry.get(model) ? model : 'unknown', problem: code });
       svc.store.log.appendRejected({
         requestId: request.id,
         receivedAt: Date.now(),
         method: request.method,
         route: path.slice(0, 512),
-        modelName: PATH_MODEL.exec(path)?.[1]?.slice(0, 64) ?? null,
+        modelName: model,
         status,
         problemType: code,
         bodyBytes: Number.isFinite(length) ? length : null,
@@ -137,6 +143,8 @@ export async function buildApp(svc: Services, options: AppOptions = {}): Promise
   await app.register(scoring);
   await app.register(requests);
   await app.register(reports);
+  await app.register(alerts);
+  await app.register(metrics);
   await app.register(docs);
   return app;
 }

@@ -3,12 +3,20 @@ import { type Logger, pino } from 'pino';
 import { type ModelEntry, createModelRegistry } from '../bundle/registry.js';
 import type { Config } from '../config.js';
 import { serializeBundle } from '../bundle/write.js';
+import { type Alerting, startAlerting } from '../alerts/runtime.js';
 import { startNightlyReports } from '../jobs/nightly-reports.js';
 import { createServices } from '../services.js';
 import type { ModelRecord } from '../store/models-table.js';
 import { type Store, openStore } from '../store/store.js';
 import { VERSION } from '../version.js';
 import { buildApp } from './app.js';
+
+declare module 'fastify' {
+  interface FastifyInstance {
+    /** The alert rules and webhook deliveries of a running server. */
+    alerting?: Alerting;
+  }
+}
 
 export interface RunningServer {
   app: FastifyInstance;
@@ -32,7 +40,10 @@ export function modelRecord(e: ModelEntry): ModelRecord {
  * Opens the audit log, loads the models, builds the app and listens. With `handleSignals`,
  * SIGTERM and SIGINT shut down gracefully and SIGHUP reloads the models directory.
  */
-export async function startServer(config: Config, options: { logger?: Logger; handleSignals?: boolean; warnings?: string[] } = {}): Promise<RunningServer> {
+export async function startServer(
+  config: Config,
+  options: { logger?: Logger; handleSignals?: boolean; warnings?: string[]; env?: NodeJS.ProcessEnv; alertTimers?: boolean } = {},
+): Promise<RunningServer> {
   const log = options.logger ?? pino({ level: config.logger.level });
   for (const w of options.warnings ?? []) log.warn(w);
   const store = openStore(config.db, {
@@ -43,11 +54,15 @@ export async function startServer(config: Config, options: { logger?: Logger; ha
     rejectedRows: config.log.rejected_rows,
   });
   let app: FastifyInstance | null = null;
+  let alerting: Alerting | null = null;
   try {
     const registry = await createModelRegistry(config.models_dir, (e) => store.recordModel(modelRecord(e)));
     if (registry.list().length === 0) log.warn({ dir: config.models_dir }, 'no *.bundle.json in the models directory; scoring answers 404 until one is added and SIGHUP sent');
     const services = createServices(config, registry, store);
+    // Webhook secrets are resolved before listening, so that a missing one stops the start.
+    alerting = startAlerting({ config, registry, store, metrics: services.metrics, log, env: options.env ?? {}, timers: options.alertTimers ?? true });
     app = await buildApp(services, { logger: log, version: VERSION });
+    app.decorate('alerting', alerting);
     await app.listen({ host: config.host, port: config.port });
     log.info({ models: registry.list().map((e) => `${e.name}@${e.bundle.file.version}`), db: config.db, sync: config.log.sync }, 'serving');
 
@@ -62,6 +77,7 @@ export async function startServer(config: Config, options: { logger?: Logger; ha
       (closing ??= (async () => {
         await running.close();
         await nightly?.stop();
+        await alerting?.stop();
         store.close();
       })());
 
@@ -97,6 +113,7 @@ export async function startServer(config: Config, options: { logger?: Logger; ha
     const url = typeof address === 'object' && address ? `http://${address.family === 'IPv6' ? `[${address.address}]` : address.address}:${address.port}` : String(address);
     return { app, store, url, close };
   } catch (err) {
+    await alerting?.stop();
     await app?.close().catch(() => undefined);
     store.close();
     throw err;

@@ -48,7 +48,7 @@ function inWorker(job: WorkerJob): Promise<DriftReport> {
  * Drift reports over the audit log. With `worker` (the service) each report is built on a worker
  * thread with its own read-only connection; without it (the CLI) in the calling thread.
  */
-export function createReportService(store: Store, options: ReportOptions & { worker: boolean }): ReportService {
+export function createReportService(store: Store, options: ReportOptions & { worker: boolean }, onStored?: (r: DriftReport) => void): ReportService {
   return {
     async run(model, window, trigger, sha256) {
       const stored = store.drift.bundleText(model, sha256);
@@ -67,6 +67,7 @@ export function createReportService(store: Store, options: ReportOptions & { wor
         trigger,
         report,
       });
+      onStored?.(report);
       return report;
     },
   };

@@ -77,7 +77,12 @@ function toProblem(err: unknown): never {
  * Scores and logs. An answer is returned only after its audit rows are committed; a request
  * with any bad item is refused whole, before anything is scored or logged.
  */
-export function createScoringService(registry: ModelRegistry, log: RequestLog): ScoringService {
+/** Told of every committed answer, for the metrics. */
+export interface ScoringObserver {
+  scored(model: string, answers: ScoreResponse[], latencyMs: number): void;
+}
+
+export function createScoringService(registry: ModelRegistry, log: RequestLog, observer?: ScoringObserver): ScoringService {
   const run = async (name: string, items: ScoreItem[], ctx: CallContext, batch: boolean): Promise<ScoreResponse[]> => {
     const entry = requireModel(registry, name);
     const d = entry.scorer.featureNames.length;
@@ -125,6 +130,7 @@ export function createScoringService(registry: ModelRegistry, log: RequestLog): 
     } catch (err) {
       toProblem(err);
     }
+    observer?.scored(entry.name, responses, latencyUs / 1000);
     return responses;
   };
   return {

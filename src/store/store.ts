@@ -1,4 +1,5 @@
 import type { Database } from 'better-sqlite3';
+import { type AlertsStore, createAlertsStore } from './alerts-store.js';
 import { type OpenOptions, openDatabase } from './database.js';
 import { type DriftStore, createDriftStore } from './drift-store.js';
 import { type ModelRecord, recordModel } from './models-table.js';
@@ -11,6 +12,8 @@ export interface Store {
   readonly log: RequestLog;
   /** Reads and writes of the drift reports. */
   readonly drift: DriftStore;
+  /** Window aggregates, alert records and the webhook outbox. */
+  readonly alerts: AlertsStore;
   recordModel(m: ModelRecord): void;
   queryRequests(filter: RequestFilter, limit: number, cursor?: string): RequestPage;
   /** Whether a write transaction can be opened now (readiness). */
@@ -23,12 +26,14 @@ export function openStore(file: string, options: OpenOptions & WriterOptions): S
   const log = createRequestLog(db, options);
   const query = createRequestQuery(db);
   const drift = createDriftStore(db);
+  const alerts = createAlertsStore(db);
   const probe = db.prepare('SELECT 1');
   let closed = false;
   return {
     file,
     log,
     drift,
+    alerts,
     recordModel: (m) => recordModel(db, m),
     queryRequests: query,
     isWritable() {

@@ -22,7 +22,9 @@ describe('openapi/openapi.json', () => {
     const doc = JSON.parse(committedText) as { paths: Record<string, Record<string, { responses: Record<string, unknown>; requestBody?: unknown }>> };
     expect(Object.keys(doc.paths).sort()).toEqual([
       '/healthz',
+      '/metrics',
       '/readyz',
+      '/v1/alerts',
       '/v1/drift-reports',
       '/v1/drift-reports/{id}',
       '/v1/drift-reports/{id}.html',

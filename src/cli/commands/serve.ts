@@ -28,7 +28,7 @@ export function registerServe(program: Command): void {
         flags: { host: flags.host, port: flags.port, models_dir: flags.models, db: flags.db },
       });
       try {
-        await startServer(config, { handleSignals: true, warnings });
+        await startServer(config, { handleSignals: true, warnings, env: processEnv() });
       } catch (err) {
         const code = (err as NodeJS.ErrnoException).code;
         if (code === 'EADDRINUSE' || code === 'EACCES' || code === 'EADDRNOTAVAIL') {

@@ -2,6 +2,7 @@ import type { FastifyInstance } from 'fastify';
 import fp from 'fastify-plugin';
 import type { ModelRegistry } from '../../bundle/registry.js';
 import type { Config } from '../../config.js';
+import type { Metrics } from '../../metrics.js';
 import type { ReportService } from '../../reports/service.js';
 import type { ScoringService } from '../../scoring/service.js';
 import type { Store } from '../../store/store.js';
@@ -12,6 +13,7 @@ export interface Services {
   store: Store;
   scoring: ScoringService;
   reports: ReportService;
+  metrics: Metrics;
 }
 
 declare module 'fastify' {

@@ -1,0 +1,139 @@
+import type { Logger } from 'pino';
+import type { ModelRegistry } from '../bundle/registry.js';
+import { uuidv7 } from '../ids.js';
+import type { AlertsStore, NewDelivery } from '../store/alerts-store.js';
+import { type AlertEventType, type AlertFacts, alertEvent, describeAlert } from './cloudevents.js';
+import { formatDuration } from './durations.js';
+import type { AlertRule } from './rules.js';
+import { computeSignal } from './signals.js';
+
+export type AlertPhase = 'ok' | 'pending' | 'raised';
+
+export interface AlertState {
+  rule: string;
+  model: string;
+  phase: AlertPhase;
+  /** The signal at the last evaluation; null when too few requests were logged to say. */
+  value: number | null;
+  threshold: number | null;
+  requests: number;
+  alertId: string | null;
+}
+
+interface Track {
+  phase: AlertPhase;
+  since: number;
+  /** While raised: since when the condition has been false. */
+  clearSince: number | null;
+  alertId: string | null;
+  raisedAt: number | null;
+  value: number | null;
+  threshold: number | null;
+  requests: number;
+}
+
+export interface Evaluator {
+  /** Evaluates every rule for every model it applies to, raising and clearing alerts. */
+  tick(now?: number): void;
+  states(): AlertState[];
+}
+
+/**
+ * The alert rules' state machine. A condition must hold for `sustain` before an alert is raised,
+ * and an alert clears only after the condition has been false for one whole window, so that a
+ * signal hovering at its threshold does not flap. Too few requests (min_requests) neither raise
+ * nor clear. Raises and clears are stored with their webhook deliveries in one transaction.
+ */
+export function createEvaluator(deps: { rules: AlertRule[]; registry: ModelRegistry; store: AlertsStore; log: Logger; onChange?: (s: AlertState) => void }): Evaluator {
+  const { rules, registry, store, log } = deps;
+  const tracks = new Map<string, Track>();
+  const key = (rule: string, model: string): string => `${rule}\u0000${model}`;
+  for (const a of store.openAlerts()) {
+    // A restart keeps raised alerts raised, so that recovery is announced and nothing twice.
+    tracks.set(key(a.rule, a.model_name), { phase: 'raised', since: a.raised_at, clearSince: null, alertId: a.id, raisedAt: a.raised_at, value: a.raised_value, threshold: a.threshold, requests: 0 });
+  }
+
+  const deliveries = (rule: AlertRule, model: string, type: AlertEventType, at: number, facts: AlertFacts): NewDelivery[] => {
+    const eventId = uuidv7(at);
+    const body = alertEvent(eventId, type, at, facts);
+    return rule.notify.map((webhook) => ({ eventId, webhook, orderingKey: key(rule.name, model), body }));
+  };
+
+  const thresholdFor = (rule: AlertRule, model: string): number | null => {
+    if (rule.above !== undefined) return rule.above;
+    if (rule.below !== undefined) return rule.below;
+    const entry = registry.get(model);
+    return entry && rule.above_expected !== undefined ? rule.above_expected * entry.bundle.file.domain.held_out.false_alarm_rate : null;
+  };
+
+  const evaluate = (rule: AlertRule, model: string, now: number): void => {
+    const k = key(rule.name, model);
+    const t = tracks.get(k) ?? { phase: 'ok', since: now, clearSince: null, alertId: null, raisedAt: null, value: null, threshold: null, requests: 0 };
+    tracks.set(k, t);
+    const direction = rule.below !== undefined ? 'below' : 'above';
+    const threshold = thresholdFor(rule, model);
+    const signal = computeSignal(store, rule, model, now);
+    t.requests = signal?.requests ?? 0;
+    t.threshold = threshold;
+    const enough = signal !== null && signal.requests >= rule.min_requests && threshold !== null;
+    t.value = enough ? signal.value : null;
+    if (!enough) {
+      if (t.phase === 'pending') t.phase = 'ok';
+      return;
+    }
+    const holds = direction === 'above' ? signal.value > threshold : signal.value < threshold;
+    const facts = (alertId: string, raisedAt: number, clearedAt: number | null): AlertFacts => {
+      const f = { signal: rule.signal, value: signal.value, direction, threshold, window: formatDuration(rule.window), model } as const;
+      return { alert_id: alertId, rule: rule.name, ...f, raised_at: new Date(raisedAt).toISOString(), cleared_at: clearedAt === null ? null : new Date(clearedAt).toISOString(), message: describeAlert(f, clearedAt !== null) };
+    };
+    if (holds) {
+      t.clearSince = null;
+      if (t.phase === 'ok') {
+        t.phase = 'pending';
+        t.since = now;
+      }
+      if (t.phase === 'pending' && now - t.since >= rule.sustain) {
+        const id = uuidv7(now);
+        store.raise(
+          { id, rule: rule.name, model_name: model, signal: rule.signal, direction, threshold, window_ms: rule.window, raised_value: signal.value, raised_at: now },
+          deliveries(rule, model, 'plumbline.alert.raised', now, facts(id, now, null)),
+          now,
+        );
+        Object.assign(t, { phase: 'raised', since: now, alertId: id, raisedAt: now });
+        log.warn({ alert: id, rule: rule.name, model, signal: rule.signal, value: signal.value, threshold }, 'alert raised');
+      }
+      return;
+    }
+    if (t.phase === 'pending') t.phase = 'ok';
+    if (t.phase === 'raised' && t.alertId !== null) {
+      t.clearSince ??= now;
+      if (now - t.clearSince >= rule.window) {
+        store.clear(t.alertId, signal.value, now, deliveries(rule, model, 'plumbline.alert.cleared', now, facts(t.alertId, t.raisedAt ?? now, now)));
+        log.info({ alert: t.alertId, rule: rule.name, model, value: signal.value }, 'alert cleared');
+        Object.assign(t, { phase: 'ok', since: now, alertId: null, raisedAt: null, clearSince: null });
+      }
+    }
+  };
+
+  return {
+    tick(now = Date.now()) {
+      for (const rule of rules) {
+        const models = rule.model === '*' ? registry.list().map((e) => e.name) : [rule.model];
+        for (const model of models) {
+          try {
+            evaluate(rule, model, now);
+          } catch (err) {
+            log.error({ rule: rule.name, model, err: (err as Error).message }, 'alert rule could not be evaluated');
+          }
+          deps.onChange?.(stateOf(rule.name, model));
+        }
+      }
+    },
+    states: () => [...tracks.keys()].map((k) => stateOf(...(k.split('\u0000') as [string, string]))),
+  };
+
+  function stateOf(rule: string, model: string): AlertState {
+    const t = tracks.get(key(rule, model));
+    return { rule, model, phase: t?.phase ?? 'ok', value: t?.value ?? null, threshold: t?.threshold ?? null, requests: t?.requests ?? 0, alertId: t?.alertId ?? null };
+  }
+}

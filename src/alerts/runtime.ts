@@ -1,0 +1,66 @@
+import type { Logger } from 'pino';
+import type { ModelRegistry } from '../bundle/registry.js';
+import type { Config } from '../config.js';
+import type { Metrics } from '../metrics.js';
+import type { Store } from '../store/store.js';
+import { type Evaluator, createEvaluator } from './evaluator.js';
+import { type Deliverer, createDeliverer, resolveWebhooks } from './outbox.js';
+
+export interface Alerting {
+  evaluator: Evaluator;
+  deliverer: Deliverer;
+  /** One evaluation and one delivery pass, now: what the timers do. */
+  tick(now?: number): Promise<void>;
+  stop(): Promise<void>;
+}
+
+const PHASE = { ok: 0, pending: 1, raised: 2 } as const;
+
+/**
+ * Alerts in the server: rules evaluated every alerts.evaluate_every, deliveries attempted every
+ * second (a pending one survives restarts in the outbox). Timers are unref'd: they never keep the
+ * process alive, and evaluation is a few indexed aggregates, so scoring is not held up.
+ */
+export function startAlerting(deps: { config: Config; registry: ModelRegistry; store: Store; metrics: Metrics; log: Logger; env: NodeJS.ProcessEnv; timers?: boolean }): Alerting {
+  const { config, store, metrics, log } = deps;
+  const evaluator = createEvaluator({
+    rules: config.alerts.rules,
+    registry: deps.registry,
+    store: store.alerts,
+    log,
+    onChange: (s) => {
+      metrics.alertState.set({ rule: s.rule, model: s.model }, PHASE[s.phase]);
+      metrics.alertSignal.set({ rule: s.rule, model: s.model }, s.value ?? Number.NaN);
+    },
+  });
+  const d = config.alerts.delivery;
+  const deliverer = createDeliverer({ store: store.alerts, webhooks: resolveWebhooks(config.alerts.webhooks, deps.env), policy: { retryBase: d.retry_base, retryCap: d.retry_cap, giveUpAfter: d.give_up_after }, log });
+  let stopped = false;
+  let delivering: Promise<void> = Promise.resolve();
+  const deliver = (now?: number): Promise<void> => {
+    if (stopped) return delivering;
+    delivering = deliverer.tick(now).then(() => metrics.outboxDepth.set(store.alerts.pendingDeliveries()));
+    return delivering;
+  };
+  const tick = async (now?: number): Promise<void> => {
+    evaluator.tick(now);
+    await deliver(now);
+  };
+  const timers: NodeJS.Timeout[] = [];
+  if (deps.timers !== false) {
+    if (config.alerts.rules.length > 0) timers.push(setInterval(() => void tick().catch((err: unknown) => log.error({ err }, 'alert evaluation failed')), config.alerts.evaluate_every));
+    timers.push(setInterval(() => void deliver().catch((err: unknown) => log.error({ err }, 'alert delivery failed')), 1000));
+    for (const t of timers) t.unref();
+  }
+  metrics.outboxDepth.set(store.alerts.pendingDeliveries());
+  return {
+    evaluator,
+    deliverer,
+    tick,
+    async stop() {
+      stopped = true;
+      for (const t of timers) clearInterval(t);
+      await delivering;
+    },
+  };
+}
