@@ -7,6 +7,7 @@ export const PROBLEMS = {
   'invalid-request': { status: 400, title: 'The request does not match what this endpoint takes' },
   'invalid-json': { status: 400, title: 'The body is not valid JSON' },
   'unknown-model': { status: 404, title: 'No model of that name is loaded' },
+  'unlogged-model': { status: 404, title: 'The audit log holds no bundle of a model of that name' },
   'unknown-report': { status: 404, title: 'No drift report has that id' },
   'not-found': { status: 404, title: 'There is nothing at this path' },
   'method-not-allowed': { status: 405, title: 'This path does not take that method' },

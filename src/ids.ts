@@ -23,6 +23,19 @@ export function uuidv7(now: number = Date.now()): string {
     counter = 0;
   }
   lastMs = ms;
+  return format(ms, counter);
+}
+
+/**
+ * A UUID version 7 stamped with a given time, such as a replayed request's: rand_a is random,
+ * and the id does not take part in uuidv7's ordering of ids made now.
+ */
+export function uuidv7At(ms: number): string {
+  randomFillSync(random);
+  return format(Math.round(ms), (((random[8] as number) << 8) | (random[9] as number)) & 0xfff);
+}
+
+function format(ms: number, randA: number): string {
   randomFillSync(random);
   const b = new Uint8Array(16);
   let t = ms;
@@ -30,8 +43,8 @@ export function uuidv7(now: number = Date.now()): string {
     b[i] = t % 256;
     t = Math.floor(t / 256);
   }
-  b[6] = 0x70 | (counter >>> 8);
-  b[7] = counter & 0xff;
+  b[6] = 0x70 | (randA >>> 8);
+  b[7] = randA & 0xff;
   b[8] = 0x80 | ((random[0] as number) & 0x3f);
   b.set(random.subarray(1, 8), 9);
   const hex = Buffer.from(b).toString('hex');

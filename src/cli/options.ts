@@ -50,3 +50,14 @@ export function listOf<T extends string>(values: readonly T[]): (v: string) => T
     return [...new Set(items)] as T[];
   };
 }
+
+/**
+ * An ISO 8601 date or date-time. A date is midnight UTC; a date-time without an offset is UTC
+ * too, not the machine's local time as Date.parse would read it.
+ */
+export function isoTime(v: string): Date {
+  const m = /^\d{4}-\d{2}-\d{2}(T\d{2}:\d{2}(:\d{2}(\.\d+)?)?(Z|[+-]\d{2}:\d{2})?)?$/.exec(v);
+  const t = m ? Date.parse(m[1] !== undefined && m[4] === undefined ? `${v}Z` : v) : Number.NaN;
+  if (Number.isNaN(t)) throw new InvalidArgumentError('expected an ISO 8601 date or date-time, e.g. 2026-11-30 or 2026-11-30T06:00:00Z (UTC unless an offset is given)');
+  return new Date(t);
+}

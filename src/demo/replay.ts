@@ -1,7 +1,7 @@
 import { join } from 'node:path';
 import { openCsv } from '../io/csv.js';
 import { parseFeatures, planColumns } from '../io/feature-table.js';
-import { uuidv7 } from '../ids.js';
+import { uuidv7At } from '../ids.js';
 import type { ScoringService } from '../scoring/service.js';
 
 const HOUR = 3_600_000;
@@ -54,7 +54,7 @@ export async function replayDemoDay(scoring: ScoringService, model: string, dir:
         const receivedAt = Math.round(dayStart + stretch.fromHour * HOUR + (index - stretch.first) * step);
         pending.push(
           scoring
-            .scoreOne(model, { features: Array.from(x), tags: { line: '3', cell: 'moulding-3', shot: row.fields[0] ?? '' } }, { requestId: uuidv7(), receivedAt, elapsedMs: () => 0 })
+            .scoreOne(model, { features: Array.from(x), tags: { line: '3', cell: 'moulding-3', shot: row.fields[0] ?? '' } }, { requestId: uuidv7At(receivedAt), receivedAt, elapsedMs: () => 0 })
             .then((a) => !a.domain.in_domain),
         );
       }

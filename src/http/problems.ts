@@ -54,14 +54,20 @@ export interface ProblemsOptions {
   onRejected?: (r: Rejection) => void;
 }
 
-/** Maps any error to RFC 9457 problem+json; the stack and internals stay in the service log. */
-export function toProblem(err: FastifyError, bodyLimit: number): ProblemError {
+/** Scoring routes say that a refused body scored nothing; the others need not. */
+const scores = (route: string | undefined): boolean => route !== undefined && /\/score(-batch)?$/.test(route);
+
+/**
+ * Maps any error to RFC 9457 problem+json; the stack and internals stay in the service log.
+ * `route` is the matched route pattern, when there is one.
+ */
+export function toProblem(err: FastifyError, bodyLimit: number, route?: string): ProblemError {
   if (err instanceof ProblemError) return err;
   if (err instanceof RequestValidationError) {
     const errors = validationErrors(err);
     const where = err.validationContext === 'querystring' ? 'query string' : err.validationContext === 'params' ? 'path' : 'body';
     const count = `${errors.length} problem${errors.length === 1 ? '' : 's'}`;
-    return new ProblemError('invalid-request', where === 'body' ? `the body has ${count}; nothing was scored` : `the ${where} has ${count}`, errors);
+    return new ProblemError('invalid-request', where === 'body' ? `the body has ${count}${scores(route) ? '; nothing was scored' : ''}` : `the ${where} has ${count}`, errors);
   }
   switch (err.code) {
     case 'FST_ERR_BAD_URL':
@@ -126,7 +132,7 @@ async function problems(app: FastifyInstance, options: ProblemsOptions): Promise
   };
 
   app.setErrorHandler((err: FastifyError, request, reply) => {
-    const problem = toProblem(err, options.bodyLimit);
+    const problem = toProblem(err, options.bodyLimit, request.routeOptions.url);
     if (problem.status >= 500) request.log.error({ err: problem.code === 'internal' ? err : (err.cause ?? err), problem: problem.code }, 'request failed');
     else request.log.info({ problem: problem.code, status: problem.status }, 'request refused');
     return refuse(request, reply, problem);

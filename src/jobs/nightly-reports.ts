@@ -6,8 +6,9 @@ import type { DriftStore } from '../store/drift-store.js';
 
 /** [midnight before the day before `at`, midnight before `at`) in the time zone: "yesterday". */
 export function previousDayWindow(at: Date, timezone: string): { from: number; to: number } {
-  // croner knows the time zone rules; its last two midnights before `at` bound yesterday.
-  const midnights = new Cron('0 0 * * *', { timezone, paused: true }).previousRuns(2, at);
+  // croner knows the time zone rules; the last two midnights up to and including `at` bound
+  // yesterday (+1 ms: a run scheduled at exactly midnight belongs to the day that just began).
+  const midnights = new Cron('0 0 * * *', { timezone, paused: true }).previousRuns(2, new Date(at.getTime() + 1));
   const [today, yesterday] = midnights;
   if (!today || !yesterday) throw new Error(`no midnight found before ${at.toISOString()} in ${timezone}`);
   return { from: yesterday.getTime(), to: today.getTime() };

@@ -127,7 +127,8 @@ export function buildDriftReport(
       mean: scored > 0 ? (sums[j] as number) / scored : null,
       reference_mean: r.mean,
       psi: p,
-      band: p === null ? null : psiBand(p),
+      // Below min_rows a PSI is mostly sampling noise: it is given, but not read as a band.
+      band: p === null || !enough ? null : psiBand(p),
       ks: { d: ks?.d ?? null, p_value: ks?.p_value ?? null, method: ks?.method ?? null },
       p_adjusted: null,
       wasserstein: scored > 0 && r.std > 0 && refSample.length > 0 ? wasserstein1(win, refSample) / r.std : null,

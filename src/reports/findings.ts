@@ -4,6 +4,19 @@ import type { DriftReport } from './report-types.js';
 
 type Verdict = DriftReport['verdict'];
 
+/** An hour whose out-of-domain count has a binomial p below this is a fault hour. */
+export const FAULT_HOUR_P = 1e-6;
+
+/**
+ * P(at least this many out-of-domain answers in the hour) at the expected rate, or null when the
+ * hour is too thin (fewer than 10 answers) or clean to say anything. The findings and the hourly
+ * chart both mark an hour by this one rule.
+ */
+export function faultHourP(h: { scored: number; out_of_domain: number }, expectedRate: number): number | null {
+  if (h.scored < 10 || h.out_of_domain === 0) return null;
+  return binomialUpperTail(h.out_of_domain, h.scored, Math.max(expectedRate, 1e-6));
+}
+
 /** Significance levels behind the words (common practice): below 0.001 a shift, below 0.01 watch. */
 const SHIFT_P = 0.001;
 const WATCH_P = 0.01;
@@ -46,9 +59,14 @@ export function writeFindings(r: DriftReport, options: ReportOptions): { verdict
     const ks = f.ks.d !== null && f.p_adjusted !== null ? `KS D ${f.ks.d.toFixed(3)} (adjusted p ${formatP(f.p_adjusted)})` : '';
     const w = f.wasserstein !== null ? `Wasserstein ${f.wasserstein.toFixed(2)} training SD` : '';
     const detail = [means, ks, w].filter(Boolean).join('; ');
-    if (f.band === 'shifted') {
+    const ksAgrees = f.p_adjusted !== null && f.p_adjusted < WATCH_P;
+    if (f.band === 'shifted' && ksAgrees) {
       raise('shifted');
       found.push({ severity: 80 + Math.min(9, f.psi ?? 0), text: `${f.name} has shifted: PSI ${(f.psi ?? 0).toFixed(2)}; ${detail}.` });
+    } else if (f.band === 'shifted') {
+      // PSI alone on a modest window can come from a few heavy bins; without KS evidence it is a watch.
+      raise('watch');
+      found.push({ severity: 45 + Math.min(9, f.psi ?? 0), text: `${f.name} has a PSI of ${(f.psi ?? 0).toFixed(2)}, in the shifted band, but the KS test finds no evidence of a shift; worth watching: ${detail}.` });
     } else if (f.band === 'watch') {
       raise('watch');
       found.push({ severity: 40 + (f.psi ?? 0), text: `${f.name} is worth watching: PSI ${(f.psi ?? 0).toFixed(2)}; ${detail}.` });
@@ -57,6 +75,7 @@ export function writeFindings(r: DriftReport, options: ReportOptions): { verdict
       found.push({ severity: 35, text: `${f.name} differs from training although its PSI (${(f.psi ?? 0).toFixed(2)}) is in the stable band: ${detail}.` });
     }
     if (n > 0 && f.outside_count >= 5 && f.outside_count / n >= 0.01) {
+      raise('watch');
       found.push({ severity: 70, text: `${f.name} was outside its training envelope in ${f.outside_count} of ${n} rows (${pct(f.outside_count / n)}).` });
     }
   }
@@ -64,9 +83,8 @@ export function writeFindings(r: DriftReport, options: ReportOptions): { verdict
   // Hours whose out-of-domain count the expected rate cannot explain (binomial p < 1e-6): the
   // signature of a fault with a start and an end, such as a failed sensor.
   for (const h of r.hourly) {
-    if (h.scored < 10 || h.out_of_domain === 0) continue;
-    const p = binomialUpperTail(h.out_of_domain, h.scored, Math.max(o.expected_rate, 1e-6));
-    if (p < 1e-6) {
+    const p = faultHourP(h, o.expected_rate);
+    if (p !== null && p < FAULT_HOUR_P) {
       raise('watch');
       const end = new Date(Date.parse(h.hour) + 3_600_000).toISOString().slice(11, 16);
       found.push({ severity: 70 + (10 * h.out_of_domain) / h.scored, text: `Between ${h.hour.slice(11, 16)} and ${end} UTC on ${h.hour.slice(0, 10)}, ${h.out_of_domain} of ${h.scored} answers were out of domain (binomial p ${formatP(p)} against the expected rate).` });
@@ -91,6 +109,7 @@ export function writeFindings(r: DriftReport, options: ReportOptions): { verdict
 
   const m = r.margin;
   if (m.ks.p_value !== null && m.mean !== null && m.ks.p_value < WATCH_P) {
+    raise('watch');
     found.push({
       severity: 25,
       text: `Margins (top-1 minus top-2 probability) are ${m.mean < m.reference_mean ? 'lower' : 'higher'} than on the validation split: mean ${m.mean.toFixed(3)} against ${m.reference_mean.toFixed(3)}; KS p ${formatP(m.ks.p_value)}; ${pct(m.review_rate ?? 0)} of answers were marked for review.`,

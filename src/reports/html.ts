@@ -1,4 +1,5 @@
 import type { DriftReport, FeatureDrift } from './report-types.js';
+import { FAULT_HOUR_P, faultHourP } from './findings.js';
 
 // A self-contained page: inline CSS and SVG, no script, no font or image from anywhere.
 
@@ -27,7 +28,8 @@ function hourlyChart(r: DriftReport): string {
   const bars = r.hourly
     .map((x, i) => {
       const rate = rates[i] as number;
-      const over = rate > r.out_of_domain.expected_rate * 3 && x.out_of_domain >= 3;
+      const fault = faultHourP(x, r.out_of_domain.expected_rate);
+      const over = fault !== null && fault < FAULT_HOUR_P;
       return `<rect x="${(left + i * bw + 1).toFixed(1)}" y="${y(rate).toFixed(1)}" width="${Math.max(1, bw - 2).toFixed(1)}" height="${(h - bottom - y(rate)).toFixed(1)}" fill="${over ? COLOURS.shifted : COLOURS.window}"><title>${esc(x.hour.slice(0, 16))}Z: ${x.out_of_domain} of ${x.scored} out of domain</title></rect>`;
     })
     .join('');

@@ -47,7 +47,7 @@ export interface DriftStore {
 
 export function createDriftStore(db: Database): DriftStore {
   const bundleBySha = db.prepare('SELECT sha256, bundle FROM models WHERE sha256 = ? AND bundle IS NOT NULL');
-  const bundleByName = db.prepare('SELECT sha256, bundle FROM models WHERE name = ? AND bundle IS NOT NULL ORDER BY first_loaded_at DESC, rowid DESC LIMIT 1');
+  const bundleByName = db.prepare('SELECT sha256, bundle FROM models WHERE name = ? AND bundle IS NOT NULL ORDER BY last_loaded_at DESC, rowid DESC LIMIT 1');
   const rows: Statement = db.prepare(
     'SELECT received_at, features, label, margin, in_domain, review FROM scored_requests WHERE model_sha256 = ? AND received_at >= ? AND received_at < ? ORDER BY received_at, seq',
   );

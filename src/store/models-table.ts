@@ -10,13 +10,16 @@ export interface ModelRecord {
   bundle?: string;
 }
 
-/** Records a bundle the first time it is loaded, so that logged vectors can always be decoded. */
+/**
+ * Records a bundle the first time it is loaded, so that logged vectors can always be decoded,
+ * and when it was loaded last, so that reports by name use the bundle serving now.
+ */
 export function recordModel(db: Database, m: ModelRecord, now = Date.now()): void {
   db.prepare(
-    `INSERT INTO models (sha256, name, version, features, classes, first_loaded_at, bundle)
-     VALUES (?, ?, ?, ?, ?, ?, ?)
-     ON CONFLICT (sha256) DO UPDATE SET bundle = COALESCE(models.bundle, excluded.bundle)`,
-  ).run(m.sha256, m.name, m.version, JSON.stringify(m.features.map((f) => ({ name: f.name, unit: f.unit }))), JSON.stringify(m.classes), now, m.bundle ?? null);
+    `INSERT INTO models (sha256, name, version, features, classes, first_loaded_at, last_loaded_at, bundle)
+     VALUES (?, ?, ?, ?, ?, ?, ?, ?)
+     ON CONFLICT (sha256) DO UPDATE SET bundle = COALESCE(models.bundle, excluded.bundle), last_loaded_at = excluded.last_loaded_at`,
+  ).run(m.sha256, m.name, m.version, JSON.stringify(m.features.map((f) => ({ name: f.name, unit: f.unit }))), JSON.stringify(m.classes), now, now, m.bundle ?? null);
 }
 
 /** Looks models up by hash, caching them: a sealed bundle never changes. */

@@ -1,8 +1,11 @@
-import { existsSync, readFileSync } from 'node:fs';
+import { existsSync, readFileSync, readdirSync } from 'node:fs';
+import { createServer } from 'node:net';
+import { tmpdir } from 'node:os';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import BetterSqlite3 from 'better-sqlite3';
 import { demoAction } from '../../src/cli/actions/demo.js';
 import { driftAction } from '../../src/cli/actions/drift.js';
+import { UsageError } from '../../src/cli/io.js';
 import type { CliIo } from '../../src/cli/io.js';
 import { DAY_END, DAY_START, demoDayService } from '../helpers/demo.js';
 import { tempDir } from '../helpers/datasets.js';
@@ -42,6 +45,20 @@ describe('plumbline drift', () => {
     check.close();
   });
 
+  it('refuses an output path it cannot write before building the report, and leaves no empty file when the report fails', async () => {
+    const before = new BetterSqlite3(db, { readonly: true });
+    const reportsBefore = (before.prepare('SELECT COUNT(*) AS n FROM drift_reports').get() as { n: number }).n;
+    before.close();
+    const run = driftAction({ db, model: 'moulding-quality', from: new Date(DAY_START), to: new Date(DAY_END), html: tmp.file('no/such/dir/r.html'), minRows: 30, sampleCap: 10_000 }, io());
+    await expect(run).rejects.toThrow('--html ' + tmp.file('no/such/dir/r.html') + ': cannot be written (ENOENT)');
+    const after = new BetterSqlite3(db, { readonly: true });
+    expect((after.prepare('SELECT COUNT(*) AS n FROM drift_reports').get() as { n: number }).n).toBe(reportsBefore);
+    after.close();
+    const json = tmp.file('never.json');
+    await expect(driftAction({ db, model: 'press-9', from: new Date(DAY_START), to: new Date(DAY_END), json, minRows: 30, sampleCap: 10_000 }, io())).rejects.toThrow(/press-9/);
+    expect(existsSync(json)).toBe(false);
+  });
+
   it('names a model the log has never seen and a window that is empty', async () => {
     await expect(driftAction({ db, model: 'press-9', from: new Date(DAY_START), to: new Date(DAY_END), minRows: 30, sampleCap: 10_000 }, io())).rejects.toThrow(/holds no bundle for a model named "press-9"/);
     await expect(driftAction({ db, model: 'moulding-quality', from: new Date(DAY_END), to: new Date(DAY_START), minRows: 30, sampleCap: 10_000 }, io())).rejects.toThrow(/must be before --to/);
@@ -56,6 +73,7 @@ describe('plumbline demo', () => {
       const text = t.out.text();
       expect(text).toMatch(/^plumbline demo: an invented injection-moulding cell/);
       expect(text).toMatch(/18:00-19:00 {5}83 shots, {3}83 out of domain {2}\(cushion transducer stuck at 0 mm\)/);
+      expect(text).toContain('3. the drift report for that day (what the nightly job makes):');
       expect(text).toContain('verdict: shifted');
       expect(text).toContain(`The report, with its charts: ${demo.url}`);
       const page = await fetch(demo.url);
@@ -67,5 +85,21 @@ describe('plumbline demo', () => {
       await demo.close();
     }
     expect(existsSync(demo.server.store.file)).toBe(false);
+  });
+
+  it('says the port is taken, as a usage error, and leaves no temporary directory behind', async () => {
+    const blocker = createServer();
+    await new Promise<void>((resolve) => blocker.listen(0, '127.0.0.1', resolve));
+    const port = (blocker.address() as { port: number }).port;
+    const demoDirs = (): string[] => readdirSync(tmpdir()).filter((d) => d.startsWith('plumbline-demo-'));
+    const before = demoDirs();
+    try {
+      const err = await demoAction({ host: '127.0.0.1', port, exit: true, signals: false }, io()).catch((e: unknown) => e);
+      expect(err).toBeInstanceOf(UsageError);
+      expect((err as Error).message).toBe(`cannot listen on 127.0.0.1:${port} (EADDRINUSE: another process has the port; stop it or pass --port)`);
+      expect(demoDirs()).toEqual(before);
+    } finally {
+      await new Promise((resolve) => blocker.close(resolve));
+    }
   });
 });

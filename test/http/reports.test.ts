@@ -67,10 +67,16 @@ describe('drift report routes', () => {
     expect(long.statusCode).toBe(400);
     const unknown = await svc.app.inject({ method: 'POST', url: '/v1/drift-reports', payload: { ...day, model: 'press-9' } });
     expect(unknown.statusCode).toBe(404);
-    expect(unknown.json().type).toBe('urn:plumbline:problem:unknown-model');
+    expect(unknown.json()).toMatchObject({ type: 'urn:plumbline:problem:unlogged-model', errors: [{ pointer: '#/model' }] });
+    expect(unknown.json().detail).toMatch(/press-9/);
     const bad = await svc.app.inject({ method: 'POST', url: '/v1/drift-reports', payload: { model: 'moulding-quality', from: 'yesterday', to: day.to } });
     expect(bad.statusCode).toBe(400);
     expect(bad.json().errors[0].pointer).toBe('#/from');
+    // a refused body here is not a scoring request, so the detail does not speak of scoring
+    expect(bad.json().detail).toBe('the body has 1 problem');
+    const backwards = await svc.app.inject(`/v1/drift-reports?from=${encodeURIComponent(day.to)}&to=${encodeURIComponent(day.from)}`);
+    expect(backwards.statusCode).toBe(400);
+    expect(backwards.json().errors).toEqual([{ parameter: 'to', detail: 'must be later than from' }]);
   });
 
   it('keeps scoring while a report is being built', async () => {

@@ -200,5 +200,6 @@ describe('POST /v1/models/{name}/score-batch', () => {
     const res = await svc.app.inject({ method: 'POST', url: '/v1/models/iris/score-batch', payload: { items: [{ features: SETOSA }, { features: SETOSA }, { features: SETOSA }] } });
     expect(res.statusCode).toBe(400);
     expect(res.json().errors[0]).toEqual({ pointer: '#/items', detail: 'a batch holds at most 2 items (limits.batch_items)' });
+    expect(res.json().detail).toBe('the body has 1 problem; nothing was scored');
   });
 });

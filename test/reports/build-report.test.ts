@@ -1,5 +1,6 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { buildDriftReport } from '../../src/reports/build-report.js';
+import { REPORT_DEFAULTS, buildDriftReport } from '../../src/reports/build-report.js';
+import { writeFindings } from '../../src/reports/findings.js';
 import type { DriftReport } from '../../src/reports/report-types.js';
 import { DAY_END, DAY_START, demoDayService } from '../helpers/demo.js';
 import type { TestService } from '../helpers/service.js';
@@ -66,6 +67,9 @@ describe('drift report over the invented demo day (normal morning, resin-lot cha
     expect(small.verdict).toBe('insufficient data');
     expect(small.out_of_domain.p_value).toBeNull();
     expect(small.features.every((f) => f.ks.p_value === null && f.p_adjusted === null)).toBe(true);
+    // a PSI over so few rows is given but not read as a band, and no finding is made of it
+    expect(small.features.every((f) => f.psi !== null && f.band === null)).toBe(true);
+    expect(small.findings.some((f) => f.includes('PSI'))).toBe(false);
     expect(small.findings[0]).toMatch(/^Only \d+ rows were scored in the window; at least 30 are needed/);
   });
 
@@ -78,5 +82,52 @@ describe('drift report over the invented demo day (normal morning, resin-lot cha
     expect(a.findings.some((f) => f.includes('seeded uniform sample of 300 of the 1999 rows'))).toBe(true);
     // the PSI bins count every row, so they do not depend on the sample
     expect(a.features.map((f) => f.psi)).toEqual(report.features.map((f) => f.psi));
+  });
+
+  describe('findings on an otherwise quiet report', () => {
+    // The real report with every sign of drift removed, then one sign put back at a time.
+    const quiet = (): DriftReport => {
+      const r = structuredClone(report);
+      r.out_of_domain = { ...r.out_of_domain, p_value: 0.5, rate: r.out_of_domain.expected_rate };
+      r.hourly = [];
+      r.predictions.chi_square.p_value = 0.5;
+      r.margin.ks.p_value = 0.5;
+      r.sample.reservoir = false;
+      for (const f of r.features) Object.assign(f, { band: 'stable', psi: 0.01, p_adjusted: 0.9, outside_count: 0 });
+      return r;
+    };
+
+    it('reads a quiet report as stable', () => {
+      const { verdict, findings } = writeFindings(quiet(), REPORT_DEFAULTS);
+      expect(verdict).toBe('stable');
+      expect(findings).toHaveLength(1);
+      expect(findings[0]).toMatch(/^No drift found over 1999 rows/);
+    });
+
+    it('calls a feature shifted only when the KS test agrees with its PSI', () => {
+      const r = quiet();
+      Object.assign(r.features[0]!, { band: 'shifted', psi: 0.4, p_adjusted: 0.3 });
+      const alone = writeFindings(r, REPORT_DEFAULTS);
+      expect(alone.verdict).toBe('watch');
+      expect(alone.findings[0]).toMatch(new RegExp(`^${r.features[0]!.name} has a PSI of 0.40, in the shifted band, but the KS test finds no evidence`));
+      Object.assign(r.features[0]!, { p_adjusted: 0.001 });
+      const both = writeFindings(r, REPORT_DEFAULTS);
+      expect(both.verdict).toBe('shifted');
+      expect(both.findings[0]).toMatch(new RegExp(`^${r.features[0]!.name} has shifted: PSI 0.40`));
+    });
+
+    it('raises watch for rows outside the training envelope and for lower margins', () => {
+      const envelope = quiet();
+      envelope.features[1]!.outside_count = 40;
+      const e = writeFindings(envelope, REPORT_DEFAULTS);
+      expect(e.verdict).toBe('watch');
+      expect(e.findings[0]).toBe(`${envelope.features[1]!.name} was outside its training envelope in 40 of 1999 rows (2.00%).`);
+
+      const margins = quiet();
+      margins.margin.ks.p_value = 0.001;
+      const m = writeFindings(margins, REPORT_DEFAULTS);
+      expect(m.verdict).toBe('watch');
+      expect(m.findings[0]).toMatch(/^Margins \(top-1 minus top-2 probability\) are/);
+    });
   });
 });

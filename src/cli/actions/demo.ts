@@ -8,6 +8,7 @@ import { replayDemoDay } from '../../demo/replay.js';
 import { type RunningServer, startServer } from '../../http/server.js';
 import type { DriftReport } from '../../reports/report-types.js';
 import type { CliIo } from '../io.js';
+import { asListenError } from '../listen-error.js';
 import { formatReportSummary } from './drift.js';
 
 export interface DemoContext {
@@ -37,7 +38,13 @@ export async function demoAction(ctx: DemoContext, io: CliIo): Promise<DemoResul
   const dir = mkdtempSync(join(tmpdir(), 'plumbline-demo-'));
   const say = (line = ''): void => void io.stdout.write(`${line}\n`);
   const config = configSchema.parse({ host: ctx.host, port: ctx.port, models_dir: join(DEMO_DATA_DIR, 'models'), db: join(dir, 'demo.db'), logger: { level: 'warn' }, reports: { schedule: 'off' } });
-  const server = await startServer(config, { logger: pino({ level: 'warn' }, io.stderr), handleSignals: ctx.signals && !ctx.exit });
+  let server: RunningServer;
+  try {
+    server = await startServer(config, { logger: pino({ level: 'warn' }, io.stderr), handleSignals: ctx.signals && !ctx.exit });
+  } catch (err) {
+    rmSync(dir, { recursive: true, force: true });
+    throw asListenError(err, ctx.host, ctx.port);
+  }
   const close = async (): Promise<void> => {
     await server.close();
     rmSync(dir, { recursive: true, force: true });
@@ -54,7 +61,7 @@ export async function demoAction(ctx: DemoContext, io: CliIo): Promise<DemoResul
     say(`   ${String(s.fromHour).padStart(2, '0')}:00-${String(s.toHour).padStart(2, '0')}:00  ${String(s.count).padStart(5)} shots, ${String(s.outOfDomain).padStart(4)} out of domain  (${s.story})`);
   }
   say(`   ${replay.scored} answers, every one committed to the audit log (GET ${server.url}/v1/requests)`);
-  say('3. the nightly drift report for that day:');
+  say('3. the drift report for that day (what the nightly job makes):');
   const report = await services.reports.run(DEMO_MODEL, { from: dayStart, to: today }, 'demo');
   for (const line of formatReportSummary(report).split('\n')) say(`   ${line}`);
   const url = `${server.url}/v1/drift-reports/${report.id}.html`;

@@ -1,4 +1,5 @@
-import { writeFile } from 'node:fs/promises';
+import { existsSync, rmSync } from 'node:fs';
+import { type FileHandle, open } from 'node:fs/promises';
 import { renderReportHtml } from '../../reports/html.js';
 import type { DriftReport } from '../../reports/report-types.js';
 import { REPORT_DEFAULTS } from '../../reports/build-report.js';
@@ -28,29 +29,59 @@ export function formatReportSummary(r: DriftReport): string {
   ].join('\n');
 }
 
+/** An output file opened before the report runs, so that a bad path fails in a second, not after the report. */
+interface Output {
+  flag: string;
+  path: string;
+  file: FileHandle;
+  /** It did not exist before: removed again if the report fails. */
+  created: boolean;
+}
+
+async function openOutputs(ctx: DriftContext): Promise<Output[]> {
+  const outputs: Output[] = [];
+  for (const [flag, path] of [['--json', ctx.json], ['--html', ctx.html]] as const) {
+    if (path === undefined) continue;
+    const created = !existsSync(path);
+    try {
+      outputs.push({ flag, path, file: await open(path, 'w'), created });
+    } catch (err) {
+      await discard(outputs);
+      throw fileProblem(flag, path, err);
+    }
+  }
+  return outputs;
+}
+
+async function discard(outputs: Output[]): Promise<void> {
+  for (const o of outputs) {
+    await o.file.close();
+    if (o.created) rmSync(o.path, { force: true });
+  }
+}
+
 /** `plumbline drift`: a report over the audit log in the database, stored there and printed. */
 export async function driftAction(ctx: DriftContext, io: CliIo): Promise<DriftReport> {
   if (!(ctx.from.getTime() < ctx.to.getTime())) throw new UsageError(`--from ${ctx.from.toISOString()} must be before --to ${ctx.to.toISOString()}`);
+  const outputs = await openOutputs(ctx);
   const store = openStore(ctx.db, { sync: 'normal', flushMs: 0, flushRows: 512, queueRows: 1000, rejectedRows: 1000 });
   let report: DriftReport;
   try {
     const reports = createReportService(store, { ...REPORT_DEFAULTS, minRows: ctx.minRows, sampleCap: ctx.sampleCap, worker: false });
     report = await reports.run(ctx.model, { from: ctx.from.getTime(), to: ctx.to.getTime() }, 'cli');
   } catch (err) {
+    await discard(outputs);
     if (err instanceof ReportError) throw new UsageError(`${ctx.db}: ${err.message}`);
     throw err;
   } finally {
     store.close();
   }
-  for (const [flag, path, text] of [
-    ['--json', ctx.json, `${JSON.stringify(report, null, 2)}\n`],
-    ['--html', ctx.html, renderReportHtml(report)],
-  ] as const) {
-    if (path === undefined) continue;
+  for (const o of outputs) {
     try {
-      await writeFile(path, text);
+      await o.file.writeFile(o.flag === '--json' ? `${JSON.stringify(report, null, 2)}\n` : renderReportHtml(report));
+      await o.file.close();
     } catch (err) {
-      throw fileProblem(flag, path, err);
+      throw fileProblem(o.flag, o.path, err);
     }
   }
   io.stdout.write(`${formatReportSummary(report)}\n`);

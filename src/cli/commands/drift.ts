@@ -1,17 +1,9 @@
 import { existsSync } from 'node:fs';
-import { type Command, InvalidArgumentError } from 'commander';
+import type { Command } from 'commander';
 import { REPORT_DEFAULTS } from '../../reports/build-report.js';
 import { driftAction } from '../actions/drift.js';
 import { UsageError, processIo } from '../io.js';
-import { integerIn } from '../options.js';
-
-function isoTime(v: string): Date {
-  const t = Date.parse(v);
-  if (!/^\d{4}-\d{2}-\d{2}(T\d{2}:\d{2}(:\d{2}(\.\d+)?)?(Z|[+-]\d{2}:\d{2})?)?$/.test(v) || Number.isNaN(t)) {
-    throw new InvalidArgumentError('expected an ISO 8601 date or date-time, e.g. 2026-11-30 or 2026-11-30T06:00:00Z');
-  }
-  return new Date(t);
-}
+import { integerIn, isoTime } from '../options.js';
 
 const DAY = 86_400_000;
 
@@ -21,8 +13,8 @@ export function registerDrift(program: Command): void {
     .description('build a drift report over the audit log, store it, and print its findings')
     .requiredOption('--db <file>', 'the audit log database')
     .requiredOption('--model <name>', 'model name')
-    .option('--from <iso>', 'start of the window, inclusive (default: 24 hours before --to)', isoTime)
-    .option('--to <iso>', 'end of the window, exclusive (default: now)', isoTime)
+    .option('--from <iso>', 'start of the window, inclusive, UTC unless an offset is given (default: 24 hours before --to)', isoTime)
+    .option('--to <iso>', 'end of the window, exclusive, UTC unless an offset is given (default: now)', isoTime)
     .option('--json <file>', 'also write the report as JSON')
     .option('--html <file>', 'also write the report as a self-contained HTML page')
     .option('--min-rows <n>', 'fewer scored rows give counts instead of p-values', integerIn(1, 1_000_000), REPORT_DEFAULTS.minRows)

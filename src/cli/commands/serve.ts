@@ -1,7 +1,7 @@
 import type { Command } from 'commander';
 import { loadConfig, processEnv } from '../../config.js';
 import { startServer } from '../../http/server.js';
-import { UsageError } from '../io.js';
+import { asListenError } from '../listen-error.js';
 import { integerIn } from '../options.js';
 
 interface ServeFlags {
@@ -30,11 +30,7 @@ export function registerServe(program: Command): void {
       try {
         await startServer(config, { handleSignals: true, warnings, env: processEnv() });
       } catch (err) {
-        const code = (err as NodeJS.ErrnoException).code;
-        if (code === 'EADDRINUSE' || code === 'EACCES' || code === 'EADDRNOTAVAIL') {
-          throw new UsageError(`cannot listen on ${config.host}:${config.port} (${code}${code === 'EADDRINUSE' ? ': another process has the port; stop it or pass --port' : ''})`);
-        }
-        throw err;
+        throw asListenError(err, config.host, config.port);
       }
     });
 }

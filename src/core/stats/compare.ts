@@ -1,4 +1,4 @@
-import chisquareCdf from '@stdlib/stats-base-dists-chisquare-cdf';
+import gammainc from '@stdlib/math-base-special-gammainc';
 
 /** Floor on a bin fraction in PSI, so that an empty bin gives a large but finite term (common practice). */
 export const PSI_FLOOR = 1e-4;
@@ -63,7 +63,7 @@ export function jensenShannonDistance(p: ArrayLike<number>, q: ArrayLike<number>
 /**
  * Pearson's chi-square goodness of fit of observed counts to expected fractions (Pearson 1900):
  * statistic sum (O - E)^2 / E over categories with E > 0, df = their number - 1, and the p-value
- * from the chi-square distribution (@stdlib/stats-base-dists-chisquare-cdf).
+ * from the chi-square distribution (@stdlib's regularized incomplete gamma).
  */
 export function chiSquareGoodnessOfFit(observed: ArrayLike<number>, expectedFractions: ArrayLike<number>): { statistic: number; df: number; p_value: number } {
   let total = 0;
@@ -81,7 +81,9 @@ export function chiSquareGoodnessOfFit(observed: ArrayLike<number>, expectedFrac
   const df = Math.max(1, cells - 1);
   // A count where none was expected is impossible under the reference: p = 0.
   if (unexpected) return { statistic: Infinity, df, p_value: 0 };
-  return { statistic: stat, df, p_value: Math.max(0, 1 - chisquareCdf(stat, df)) };
+  // Upper tail as the regularized upper incomplete gamma Q(df/2, x/2), not 1 - CDF, so that a
+  // large statistic gives a small p-value rather than 0.
+  return { statistic: stat, df, p_value: gammainc(stat / 2, df / 2, true, true) };
 }
 
 /**

@@ -1,4 +1,4 @@
-import binomialCdf from '@stdlib/stats-base-dists-binomial-cdf';
+import betainc from '@stdlib/math-base-special-betainc';
 import normalQuantile from '@stdlib/stats-base-dists-normal-quantile';
 
 /**
@@ -15,8 +15,15 @@ export function wilsonInterval(k: number, n: number, confidence = 0.95): { low: 
   return { low: k === 0 ? 0 : Math.max(0, centre - half), high: k === n ? 1 : Math.min(1, centre + half) };
 }
 
-/** Exact one-sided binomial test: P(X >= k) for X ~ Binomial(n, p). */
+/**
+ * Exact one-sided binomial test: P(X >= k) for X ~ Binomial(n, p), as the regularized incomplete
+ * beta function I_p(k, n - k + 1) (Abramowitz & Stegun 26.5.24), which keeps small tails that
+ * 1 - CDF would round to 0.
+ */
 export function binomialUpperTail(k: number, n: number, p: number): number {
   if (k <= 0) return 1;
-  return Math.max(0, 1 - binomialCdf(k - 1, n, p));
+  if (k > n) return 0;
+  if (p <= 0) return 0;
+  if (p >= 1) return 1;
+  return betainc(p, k, n - k + 1);
 }

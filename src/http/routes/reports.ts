@@ -43,6 +43,9 @@ const reports: FastifyPluginAsyncZod = async (app) => {
     },
     async (req) => {
       const q = req.query;
+      if (q.from !== undefined && q.to !== undefined && !(Date.parse(q.from) < Date.parse(q.to))) {
+        throw new ProblemError('invalid-request', 'the window is empty', [{ parameter: 'to', detail: 'must be later than from' }]);
+      }
       const rows = store.drift.listReports(
         { ...(q.model !== undefined ? { model: q.model } : {}), ...(q.from !== undefined ? { from: Date.parse(q.from) } : {}), ...(q.to !== undefined ? { to: Date.parse(q.to) } : {}) },
         q.limit + 1,
@@ -105,7 +108,7 @@ const reports: FastifyPluginAsyncZod = async (app) => {
         const report = await app.services.reports.run(req.body.model, { from, to }, 'request');
         return reply.code(201).send(report);
       } catch (err) {
-        if (err instanceof ReportError && err.reason === 'unknown-model') throw new ProblemError('unknown-model', err.message);
+        if (err instanceof ReportError && err.reason === 'unknown-model') throw new ProblemError('unlogged-model', err.message, [{ pointer: '#/model', detail: 'no bundle of this name was ever loaded by a service writing to this audit log' }]);
         throw err;
       }
     },
