@@ -47,6 +47,21 @@ export const configSchema = z
   models_dir: z.string().min(1).default('models'),
   /** SQLite database file of the audit log; created with its directory when missing. */
   db: z.string().min(1).default('var/plumbline.db'),
+  /**
+   * "keys": once one API key exists in the database, every /v1 route needs one (and with none
+   * the server listens on loopback only). "off": no key is asked for, on any address.
+   */
+  auth: z.enum(['keys', 'off']).default('keys'),
+  /** Serve HTTPS with this PEM certificate chain and private key (both or neither). */
+  tls: z
+    .strictObject({
+      cert: z.string().min(1).optional(),
+      key: z.string().min(1).optional(),
+    })
+    .prefault({})
+    .refine((t) => (t.cert === undefined) === (t.key === undefined), { message: 'give both tls.cert and tls.key, or neither' }),
+  /** Scored rows older than this many days are pruned nightly; 0 keeps them for ever. */
+  retention_days: int(0, 36_500).default(90),
   logger: z
     .strictObject({
       level: z.enum(['fatal', 'error', 'warn', 'info', 'debug', 'trace', 'silent']).default('info'),
@@ -65,6 +80,8 @@ export const configSchema = z
       queue_rows: int(1, 10_000_000).default(50_000),
       /** Newest rejected requests kept for inspection; older ones are pruned. */
       rejected_rows: int(0, 10_000_000).default(100_000),
+      /** When a commit fails: "fail" answers 503 (no unaudited answer); "serve" answers and counts what was not logged. */
+      on_error: z.enum(['fail', 'serve']).default('fail'),
     })
     .prefault({}),
   /** The nightly drift report. */
@@ -83,12 +100,14 @@ export const configSchema = z
       sample_cap: int(100, 1_000_000).default(10_000),
     })
     .prefault({}),
-  /** Rules that raise alerts from the audit log, and the webhooks that hear of them (config file only). */
+  /** Rules that raise alerts from the audit log, and the webhooks that hear of them (rules and webhooks from the config file only). */
   alerts: alertsSchema.prefault({}),
   metrics: z
     .strictObject({
       /** Serve GET /metrics in the Prometheus text format. */
       enabled: z.boolean().default(true),
+      /** Serve it without an API key (to a scraper that cannot send one); otherwise it needs a reader key. */
+      public: z.boolean().default(false),
     })
     .prefault({}),
   limits: z
@@ -98,6 +117,10 @@ export const configSchema = z
       tags: int(0, 256).default(16),
       tag_key_chars: int(1, 1024).default(64),
       tag_value_chars: int(1, 4096).default(256),
+      /** Requests per minute per API key (per client address without keys); 0 for no limit. */
+      requests_per_minute: int(0, 10_000_000).default(60_000),
+      /** Answer 503 overloaded while the event loop lags more than this; 0 to never. */
+      event_loop_delay_ms: int(0, 60_000).default(1000),
     })
     .prefault({}),
   })
@@ -215,6 +238,9 @@ export function loadConfig(sources: ConfigSources): { config: Config; warnings: 
     origin.set(leaf.path.join('.'), `environment ${leaf.env}`);
   }
   const known = new Set(CONFIG_KEYS.map((l) => l.env));
+  // Webhook secrets may be kept in variables of any name, ours included.
+  const fileWebhooks = (merged as { alerts?: { webhooks?: Record<string, { secret_env?: unknown }> } } | undefined)?.alerts?.webhooks ?? {};
+  for (const w of Object.values(fileWebhooks)) if (typeof w?.secret_env === 'string') known.add(w.secret_env);
   for (const name of Object.keys(env)) {
     // A warning, not an error: other tools, and secrets kept in the environment, may share the prefix.
     if (name.startsWith('PLUMBLINE_') && !known.has(name)) warnings.push(`environment ${name} is not a configuration key; ignored`);

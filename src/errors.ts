@@ -6,6 +6,8 @@ export const PROBLEM_BASE = 'urn:plumbline:problem:';
 export const PROBLEMS = {
   'invalid-request': { status: 400, title: 'The request does not match what this endpoint takes' },
   'invalid-json': { status: 400, title: 'The body is not valid JSON' },
+  unauthorized: { status: 401, title: 'An API key is needed: Authorization: Bearer <key>' },
+  forbidden: { status: 403, title: 'This API key may not do that' },
   'unknown-model': { status: 404, title: 'No model of that name is loaded' },
   'unlogged-model': { status: 404, title: 'The audit log holds no bundle of a model of that name' },
   'unknown-report': { status: 404, title: 'No drift report has that id' },
@@ -14,10 +16,13 @@ export const PROBLEMS = {
   'request-timeout': { status: 408, title: 'The request did not arrive in time' },
   'body-too-large': { status: 413, title: 'The body is larger than this service accepts' },
   'unsupported-media-type': { status: 415, title: 'The body must be application/json' },
+  'reload-refused': { status: 422, title: 'The models directory cannot be served as it is; the models served before still are' },
+  'rate-limited': { status: 429, title: 'Too many requests for this key; slow down and retry' },
   'headers-too-large': { status: 431, title: 'The request headers are larger than this service accepts' },
   'log-backpressure': { status: 503, title: 'The audit log is behind; nothing was scored, retry shortly' },
   'log-unavailable': { status: 503, title: 'The audit log cannot be written; nothing was scored' },
   'not-ready': { status: 503, title: 'The service is not ready' },
+  overloaded: { status: 503, title: 'The service is overloaded; retry shortly' },
   internal: { status: 500, title: 'The service failed; the error is in its log' },
 } as const satisfies Record<string, { status: number; title: string }>;
 

@@ -8,6 +8,7 @@ export interface Metrics {
   registry: Registry;
   scored: Counter<'model' | 'label' | 'in_domain'>;
   rejected: Counter<'model' | 'problem'>;
+  unlogged: Counter<'model'>;
   scoreLatency: Histogram<'model'>;
   alertSignal: Gauge<'rule' | 'model'>;
   alertState: Gauge<'rule' | 'model'>;
@@ -22,6 +23,7 @@ export function createMetrics(): Metrics {
     registry,
     scored: new Counter({ name: 'plumbline_scored_total', help: 'Vectors scored and committed to the audit log.', labelNames: ['model', 'label', 'in_domain'], registers: [registry] }),
     rejected: new Counter({ name: 'plumbline_rejected_total', help: 'Requests refused with a problem+json answer, by problem type.', labelNames: ['model', 'problem'], registers: [registry] }),
+    unlogged: new Counter({ name: 'plumbline_unlogged_answers_total', help: 'Answers served although their audit rows could not be committed (log.on_error "serve").', labelNames: ['model'], registers: [registry] }),
     scoreLatency: new Histogram({
       name: 'plumbline_score_latency_seconds',
       help: 'Time from receipt of a scoring request to its answer being ready, before the commit.',
@@ -29,7 +31,7 @@ export function createMetrics(): Metrics {
       buckets: [0.0005, 0.001, 0.002, 0.005, 0.01, 0.025, 0.05, 0.1, 0.25, 1],
       registers: [registry],
     }),
-    alertSignal: new Gauge({ name: 'plumbline_alert_signal', help: "An alert rule's signal at its last evaluation (NaN when too few requests).", labelNames: ['rule', 'model'], registers: [registry] }),
+    alertSignal: new Gauge({ name: 'plumbline_alert_signal', help: "An alert rule's signal at its last evaluation (NaN when it could not be computed: too few requests, or no loaded bundle to compare with).", labelNames: ['rule', 'model'], registers: [registry] }),
     alertState: new Gauge({ name: 'plumbline_alert_state', help: 'An alert rule: 0 ok, 1 condition holding (pending), 2 raised.', labelNames: ['rule', 'model'], registers: [registry] }),
     driftMaxPsi: new Gauge({ name: 'plumbline_drift_max_psi', help: 'Largest feature PSI of the newest drift report of a model.', labelNames: ['model'], registers: [registry] }),
     outboxDepth: new Gauge({ name: 'plumbline_outbox_depth', help: 'Webhook deliveries waiting to be sent or retried.', registers: [registry] }),

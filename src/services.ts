@@ -1,3 +1,4 @@
+import type { Logger } from 'pino';
 import type { ModelRegistry } from './bundle/registry.js';
 import type { Config } from './config.js';
 import type { Services } from './http/plugins/services.js';
@@ -8,7 +9,8 @@ import { createScoringService } from './scoring/service.js';
 import type { Store } from './store/store.js';
 
 /** The services the routes call, built once from the configuration, the registry and the store. */
-export function createServices(config: Config, registry: ModelRegistry, store: Store, options: { reportWorker?: boolean } = {}): Services {
+export function createServices(config: Config, registry: ModelRegistry, store: Store, options: { reportWorker?: boolean; log?: Logger } = {}): Services {
+  const log = options.log;
   const metrics = createMetrics();
   // The gauges start from what the log already holds.
   for (const e of registry.list()) {
@@ -25,7 +27,11 @@ export function createServices(config: Config, registry: ModelRegistry, store: S
         for (const a of answers) metrics.scored.inc({ model, label: a.label, in_domain: String(a.domain.in_domain) });
         metrics.scoreLatency.observe({ model }, latencyMs / 1000);
       },
-    }),
+      unlogged(model, answers, err) {
+        metrics.unlogged.inc({ model }, answers);
+        log?.error({ model, answers, err: err.message }, 'answers served without their audit rows (log.on_error is "serve")');
+      },
+    }, { onLogError: config.log.on_error }),
     reports: createReportService(
       store,
       { minRows: config.reports.min_rows, sampleCap: config.reports.sample_cap, seed: 1, worker: options.reportWorker ?? true },

@@ -1,3 +1,4 @@
+import { ConfigError } from '../config.js';
 import type { Logger } from 'pino';
 import type { AlertsStore, OutboxRow } from '../store/alerts-store.js';
 import { secretKey, signDelivery } from './signing.js';
@@ -37,8 +38,8 @@ export function resolveWebhooks(
   const out: Record<string, WebhookTarget> = {};
   for (const [name, w] of Object.entries(webhooks)) {
     const secret = w.secret ?? (w.secret_env !== undefined ? env[w.secret_env] : undefined);
-    if (secret === undefined || secret === '') throw new Error(`webhook ${name}: environment variable ${w.secret_env} holds no secret`);
-    if (!/^whsec_[A-Za-z0-9+/]+={0,2}$/.test(secret)) throw new Error(`webhook ${name}: the secret${w.secret_env ? ` in ${w.secret_env}` : ''} must be whsec_ followed by base64`);
+    if (secret === undefined || secret === '') throw new ConfigError([`alerts.webhooks.${name}.secret_env = ${JSON.stringify(w.secret_env)}: that environment variable holds no secret`]);
+    if (!/^whsec_[A-Za-z0-9+/]+={0,2}$/.test(secret)) throw new ConfigError([`alerts.webhooks.${name}: the secret${w.secret_env ? ` in ${w.secret_env}` : ''} must be whsec_ followed by base64`]);
     out[name] = { url: w.url, key: secretKey(secret), timeoutMs: w.timeout_s * 1000 };
   }
   return out;

@@ -1,11 +1,15 @@
 import { z } from 'zod';
-import { parseDuration } from './durations.js';
+import { formatDuration, parseDuration } from './durations.js';
 
-const duration = (what: string) =>
+const DAY_MS = 86_400_000;
+
+/** A duration in [min, max] ms; timers cannot wait longer than about 24.8 days, so no bound is above 7 days but windows'. */
+const duration = (what: string, min = 1, max = 7 * DAY_MS) =>
   z
     .string()
-    .refine((s) => parseDuration(s) !== null, `${what} must be a duration such as 30s, 15m, 2h or 1d`)
-    .transform((s) => parseDuration(s) as number);
+    .refine((s) => parseDuration(s) !== null, `${what} must be a whole number of milliseconds written as a duration such as 30s, 15m, 2h or 1d`)
+    .transform((s) => parseDuration(s) as number)
+    .refine((ms) => ms >= min && ms <= max, `${what} must be from ${formatDuration(min)} to ${formatDuration(max)}`);
 
 /** The signals a rule can watch; class_fraction takes a class name after the colon. */
 export const SIGNAL = /^(out_of_domain_rate|rejected_rate|review_rate|mean_margin|max_psi|class_fraction:.+)$/;
@@ -16,13 +20,13 @@ export const ruleSchema = z
     /** A model name, or "*" for one alert per loaded model. */
     model: z.string().min(1),
     signal: z.string().regex(SIGNAL, 'must be out_of_domain_rate, rejected_rate, review_rate, mean_margin, max_psi or class_fraction:<class>'),
-    window: duration('window').default(15 * 60_000),
+    window: duration('window', 1000, 31 * DAY_MS).default(15 * 60_000),
     above: z.number().optional(),
     below: z.number().optional(),
     /** A multiple of the bundle's measured false-alarm rate, for out_of_domain_rate: raise above k x that rate. */
     above_expected: z.number().positive().optional(),
     min_requests: z.number().int().min(1).default(30),
-    sustain: duration('sustain').default(0),
+    sustain: duration('sustain', 0).default(0),
     notify: z.array(z.string().min(1)).default([]),
   })
   .superRefine((r, ctx) => {
@@ -47,7 +51,7 @@ export const webhookSchema = z
 
 export const alertsSchema = z
   .strictObject({
-    evaluate_every: duration('evaluate_every').default(30_000),
+    evaluate_every: duration('evaluate_every', 1000, DAY_MS).default(30_000),
     rules: z.array(ruleSchema).default([]),
     webhooks: z.record(z.string().regex(/^[A-Za-z0-9][A-Za-z0-9._-]{0,63}$/, 'webhook names are 1-64 letters, digits, dots, dashes or underscores'), webhookSchema).default({}),
     delivery: z

@@ -1,12 +1,16 @@
 #!/usr/bin/env node
 import { Command, CommanderError } from 'commander';
+import { ExposureError } from '../auth/exposure.js';
 import { RegistryError } from '../bundle/registry.js';
 import { BundleError } from '../bundle/verify.js';
 import { ConfigError } from '../config.js';
 import { MigrationError } from '../store/migrate.js';
+import { StoreIntegrityError } from '../store/store.js';
 import { DataFileError } from '../io/csv.js';
 import { DataFileErrors } from '../io/feature-table.js';
+import { registerAudit } from './commands/audit.js';
 import { registerDemo } from './commands/demo.js';
+import { registerKeys } from './commands/keys.js';
 import { registerDrift } from './commands/drift.js';
 import { registerScore } from './commands/score.js';
 import { registerServe } from './commands/serve.js';
@@ -24,6 +28,8 @@ export function buildProgram(): Command {
   registerScore(program);
   registerDrift(program);
   registerDemo(program);
+  registerKeys(program);
+  registerAudit(program);
   return program;
 }
 
@@ -35,7 +41,7 @@ function report(err: unknown): number {
     process.stderr.write(`plumbline: ${err.message}\n`);
     return err.exitCode;
   }
-  if (err instanceof BundleError || err instanceof DataFileError || err instanceof DataFileErrors || err instanceof ConfigError || err instanceof RegistryError || err instanceof MigrationError) {
+  if (err instanceof BundleError || err instanceof DataFileError || err instanceof DataFileErrors || err instanceof ConfigError || err instanceof RegistryError || err instanceof MigrationError || err instanceof ExposureError || err instanceof StoreIntegrityError) {
     process.stderr.write(`plumbline: ${err.message}\n`);
     return 2;
   }

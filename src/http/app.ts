@@ -1,9 +1,12 @@
 import swagger from '@fastify/swagger';
 import Fastify, { type FastifyInstance, type FastifyServerOptions, LogController } from 'fastify';
 import { type ZodTypeProvider, jsonSchemaTransform, jsonSchemaTransformObject, serializerCompiler } from 'fastify-type-provider-zod';
+import { ProblemError } from '../errors.js';
 import { uuidv7 } from '../ids.js';
 import { parseJsonBody } from './json-body.js';
 import { VERSION } from '../version.js';
+import auth from './plugins/auth.js';
+import guards from './plugins/guards.js';
 import services, { type Services } from './plugins/services.js';
 import problems, { clientErrorHandler, sendProblem, toProblem } from './problems.js';
 import { zodValidatorCompiler } from './validation.js';
@@ -21,6 +24,8 @@ export interface AppOptions {
   logger?: FastifyServerOptions['logger'] | FastifyServerOptions['loggerInstance'];
   /** Version shown in the OpenAPI document; the package's by default. */
   version?: string;
+  /** Serve HTTPS with this PEM certificate chain and key. */
+  https?: { cert: Buffer; key: Buffer };
 }
 
 const PATH_MODEL = /^\/v1\/models\/([^/?]+)/;
@@ -55,6 +60,7 @@ export async function buildApp(svc: Services, options: AppOptions = {}): Promise
   const logger = options.logger ?? false;
   const isInstance = typeof logger === 'object' && logger !== null && 'child' in logger;
   const app = Fastify({
+    ...(options.https ? { https: options.https } : {}),
     ...(isInstance ? { loggerInstance: logger as FastifyServerOptions['loggerInstance'] } : { logger: logger as FastifyServerOptions['logger'] }),
     bodyLimit: svc.config.limits.body_bytes,
     genReqId: () => uuidv7(),
@@ -86,6 +92,15 @@ export async function buildApp(svc: Services, options: AppOptions = {}): Promise
         version: options.version ?? VERSION,
         description:
           'Scores feature vectors with loaded classifier bundles, says whether each vector lies inside the training domain, and keeps an audit log of every answer. Errors are RFC 9457 problem+json.',
+      },
+      components: {
+        securitySchemes: {
+          apiKey: {
+            type: 'http',
+            scheme: 'bearer',
+            description: 'An API key made with `plumbline keys create`. Needed by every route but the public ones once one key exists in the database.',
+          },
+        },
       },
       tags: [
         { name: 'scoring', description: 'class probabilities, margin and domain checks' },
@@ -121,6 +136,16 @@ export async function buildApp(svc: Services, options: AppOptions = {}): Promise
       });
     },
   });
+
+  // Node would answer a missing Host with a bare 400; we answer it as problem+json instead.
+  (app.server as { requireHostHeader?: boolean }).requireHostHeader = false;
+  app.addHook('onRequest', async (req) => {
+    if (req.raw.httpVersion === '1.1' && req.headers.host === undefined) {
+      throw new ProblemError('invalid-request', 'an HTTP/1.1 request must carry a Host header (RFC 9112, section 3.2)', [{ header: 'host', detail: 'is missing' }]);
+    }
+  });
+  await app.register(auth, { mode: svc.config.auth, keys: svc.store.keys });
+  await app.register(guards, { requestsPerMinute: svc.config.limits.requests_per_minute, eventLoopDelayMs: svc.config.limits.event_loop_delay_ms });
 
   // While shutting down, every answer asks the client to close its connection, so that keep-alive
   // sockets neither hold the process open nor carry further requests (the listener is closed).

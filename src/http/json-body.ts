@@ -13,6 +13,12 @@ export function parseJsonBody(req: FastifyRequest, body: string | Buffer, done: 
     done(new ProblemError('unsupported-media-type', `the body must be UTF-8 JSON, not charset=${charset}`, [{ header: 'content-type', detail: 'charset must be utf-8 when given' }]));
     return;
   }
+  // Bodies are taken as sent; a compressed one would be parsed as garbage (RFC 9110, 8.4 and 15.5.16).
+  const coding = req.headers['content-encoding'];
+  if (coding !== undefined && coding.trim().toLowerCase() !== 'identity') {
+    done(new ProblemError('unsupported-media-type', `the body must not be encoded (content-encoding: ${coding.slice(0, 64)}); send plain JSON`, [{ header: 'content-encoding', detail: 'must be absent or identity' }]));
+    return;
+  }
   const text = typeof body === 'string' ? body : body.toString('utf8');
   if (text.trim() === '') {
     done(new ProblemError('invalid-json', 'the body is empty but the content-type says application/json'));

@@ -36,8 +36,15 @@ export function jsonResponse<T extends z.ZodType>(description: string, schema: T
 }
 
 /** Every route can also answer with these, as problem+json. */
+// A lone UTF-16 surrogate (from a "\ud800" escape) has no UTF-8 form: it could not be stored as sent.
+const LONE_SURROGATE = /[\ud800-\udbff](?![\udc00-\udfff])|(?<![\ud800-\udbff])[\udc00-\udfff]/;
+const wellFormed = (s: string): boolean => !LONE_SURROGATE.test(s);
+const WELL_FORMED = 'must be well-formed Unicode (no lone surrogate escapes such as \\ud800)';
+
 export const commonErrors = {
-  default: problemResponse('any other error: 404 not-found, 405 method-not-allowed (with Allow), 500 internal'),
+  default: problemResponse(
+    'any other error: 401 unauthorized (no valid API key, once keys are in use), 403 forbidden (a key of another role), 404 not-found, 405 method-not-allowed (with Allow), 429 rate-limited and 503 overloaded (with Retry-After), 500 internal',
+  ),
 };
 
 export const modelNameParam = z.object({ name: z.string().min(1, 'a model name is needed').describe('model name, as in the bundle') });
@@ -49,8 +56,9 @@ export function scoringSchemas(limits: Config['limits']) {
         .string()
         .min(1, 'a tag key must not be empty')
         .max(limits.tag_key_chars, `a tag key has at most ${limits.tag_key_chars} characters (limits.tag_key_chars)`)
-        .regex(/^[^\u0000-\u001f\u007f]+$/, 'a tag key must not hold control characters'),
-      z.string().max(limits.tag_value_chars, `a tag value has at most ${limits.tag_value_chars} characters (limits.tag_value_chars)`),
+        .regex(/^[^\u0000-\u001f\u007f]+$/, 'a tag key must not hold control characters')
+        .refine(wellFormed, WELL_FORMED),
+      z.string().max(limits.tag_value_chars, `a tag value has at most ${limits.tag_value_chars} characters (limits.tag_value_chars)`).refine(wellFormed, WELL_FORMED),
     )
     .refine((t) => Object.keys(t).length <= limits.tags, `at most ${limits.tags} tags (limits.tags)`)
     .describe('where the vector came from: line, station, part number ... (stored with the request)');
@@ -160,11 +168,12 @@ export const modelDetailSchema = modelSummarySchema
 const isoTime = z.iso.datetime({ offset: true }).describe('ISO 8601 date-time, e.g. 2026-12-01T06:00:00Z');
 
 export const requestsQuerySchema = z.strictObject({
-  model: z.string().optional(),
+  // No bundle has a longer model name (64) or class name (64): a longer one is a mistake.
+  model: z.string().max(64, 'a model name has at most 64 characters').optional(),
   from: isoTime.optional().describe('inclusive'),
   to: isoTime.optional().describe('exclusive'),
   in_domain: z.enum(['true', 'false']).optional(),
-  label: z.string().optional().describe('predicted class'),
+  label: z.string().max(64, 'a class name has at most 64 characters').optional().describe('predicted class'),
   tag: z.union([z.string(), z.array(z.string())]).optional().describe('key:value; repeat to require several'),
   limit: z.coerce.number().int().min(1).max(1000).default(100),
   cursor: z.string().optional().describe('next_cursor of the previous page'),

@@ -1,10 +1,15 @@
+import { readFileSync } from 'node:fs';
+import { createSecureContext } from 'node:tls';
 import type { FastifyInstance } from 'fastify';
+import { checkExposure } from '../auth/exposure.js';
 import { type Logger, pino } from 'pino';
 import { type ModelEntry, createModelRegistry } from '../bundle/registry.js';
 import type { Config } from '../config.js';
 import { serializeBundle } from '../bundle/write.js';
 import { type Alerting, startAlerting } from '../alerts/runtime.js';
 import { startNightlyReports } from '../jobs/nightly-reports.js';
+import { type RetentionJob, startRetention } from '../jobs/retention.js';
+import { ConfigError } from '../config.js';
 import { createServices } from '../services.js';
 import type { ModelRecord } from '../store/models-table.js';
 import { type Store, openStore } from '../store/store.js';
@@ -29,6 +34,23 @@ export interface RunningServer {
 
 /** Milliseconds a shutdown may take before the process gives up waiting for in-flight requests. */
 const SHUTDOWN_GRACE_MS = 10_000;
+
+function readTls(certFile: string, keyFile: string): { cert: Buffer; key: Buffer } {
+  const read = (key: string, file: string): Buffer => {
+    try {
+      return readFileSync(file);
+    } catch (err) {
+      throw new ConfigError([`${key} = ${JSON.stringify(file)}: cannot be read (${(err as NodeJS.ErrnoException).code ?? (err as Error).message})`]);
+    }
+  };
+  const pair = { cert: read('tls.cert', certFile), key: read('tls.key', keyFile) };
+  try {
+    createSecureContext(pair);
+  } catch (err) {
+    throw new ConfigError([`tls.cert and tls.key (${certFile}, ${keyFile}) are not a PEM certificate chain and its private key: ${(err as Error).message}`]);
+  }
+  return pair;
+}
 
 /** What the audit log keeps of a bundle: enough to decode its rows, and the file for drift reports. */
 export function modelRecord(e: ModelEntry): ModelRecord {
@@ -55,13 +77,17 @@ export async function startServer(
   });
   let app: FastifyInstance | null = null;
   let alerting: Alerting | null = null;
+  let retention: RetentionJob | null = null;
   try {
+    const exposure = checkExposure({ host: config.host, auth: config.auth, keys: store.keys.list().filter((k) => k.revoked_at === null).length });
+    if (exposure) log.warn(exposure);
+    const https = config.tls.cert !== undefined && config.tls.key !== undefined ? readTls(config.tls.cert, config.tls.key) : undefined;
     const registry = await createModelRegistry(config.models_dir, (e) => store.recordModel(modelRecord(e)));
     if (registry.list().length === 0) log.warn({ dir: config.models_dir }, 'no *.bundle.json in the models directory; scoring answers 404 until one is added and SIGHUP sent');
-    const services = createServices(config, registry, store);
+    const services = createServices(config, registry, store, { log });
     // Webhook secrets are resolved before listening, so that a missing one stops the start.
     alerting = startAlerting({ config, registry, store, metrics: services.metrics, log, env: options.env ?? {}, timers: options.alertTimers ?? true });
-    app = await buildApp(services, { logger: log, version: VERSION });
+    app = await buildApp(services, { logger: log, version: VERSION, ...(https ? { https } : {}) });
     app.decorate('alerting', alerting);
     await app.listen({ host: config.host, port: config.port });
     log.info({ models: registry.list().map((e) => `${e.name}@${e.bundle.file.version}`), db: config.db, sync: config.log.sync }, 'serving');
@@ -70,6 +96,8 @@ export async function startServer(
       config.reports.schedule === 'off'
         ? null
         : startNightlyReports({ registry, reports: services.reports, drift: store.drift, schedule: config.reports.schedule, timezone: config.reports.timezone, log });
+    retention = config.retention_days > 0 ? startRetention({ retention: store.retention, days: config.retention_days, timezone: config.reports.timezone, log }) : null;
+    const pruning = retention;
 
     const running = app;
     let closing: Promise<void> | null = null;
@@ -77,6 +105,7 @@ export async function startServer(
       (closing ??= (async () => {
         await running.close();
         await nightly?.stop();
+        await pruning?.stop();
         await alerting?.stop();
         store.close();
       })());
@@ -110,10 +139,11 @@ export async function startServer(
       });
     }
     const address = app.server.address();
-    const url = typeof address === 'object' && address ? `http://${address.family === 'IPv6' ? `[${address.address}]` : address.address}:${address.port}` : String(address);
+    const url = typeof address === 'object' && address ? `${https ? 'https' : 'http'}://${address.family === 'IPv6' ? `[${address.address}]` : address.address}:${address.port}` : String(address);
     return { app, store, url, close };
   } catch (err) {
     await alerting?.stop();
+    await retention?.stop();
     await app?.close().catch(() => undefined);
     store.close();
     throw err;

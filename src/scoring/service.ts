@@ -2,7 +2,7 @@ import type { ModelEntry, ModelRegistry } from '../bundle/registry.js';
 import { type ScoreResponse, ScoreOverflowError, modelRef } from '../bundle/scorer.js';
 import { type FieldError, ProblemError, pointer } from '../errors.js';
 import { uuidv7 } from '../ids.js';
-import { LogBackpressureError, LogClosedError, type RequestLog, type ScoredRow } from '../store/request-log.js';
+import { LogBackpressureError, LogClosedError, LogWriteError, type RequestLog, type ScoredRow } from '../store/request-log.js';
 
 export interface ScoreItem {
   features: Record<string, number> | number[];
@@ -16,6 +16,10 @@ export interface CallContext {
   receivedAt: number;
   /** Milliseconds since the request arrived, read when the answer is ready. */
   elapsedMs: () => number;
+  /** Label of the API key the request came with, stored with its rows; null without keys. */
+  keyLabel?: string | null;
+  /** Called when the answer is sent although its rows could not be logged (log.on_error "serve"). */
+  onUnlogged?: () => void;
 }
 
 export interface ScoringService {
@@ -77,12 +81,20 @@ function toProblem(err: unknown): never {
  * Scores and logs. An answer is returned only after its audit rows are committed; a request
  * with any bad item is refused whole, before anything is scored or logged.
  */
-/** Told of every committed answer, for the metrics. */
+/** Told of every answer, for the metrics. */
 export interface ScoringObserver {
   scored(model: string, answers: ScoreResponse[], latencyMs: number): void;
+  /** Answers sent although their rows could not be committed (log.on_error "serve"). */
+  unlogged?(model: string, answers: number, err: Error): void;
 }
 
-export function createScoringService(registry: ModelRegistry, log: RequestLog, observer?: ScoringObserver): ScoringService {
+export interface ScoringOptions {
+  /** "fail" (default): no answer without its audit rows. "serve": answer, and count what was not logged. */
+  onLogError?: 'fail' | 'serve';
+}
+
+export function createScoringService(registry: ModelRegistry, log: RequestLog, observer?: ScoringObserver, options: ScoringOptions = {}): ScoringService {
+  const serveUnlogged = options.onLogError === 'serve';
   const run = async (name: string, items: ScoreItem[], ctx: CallContext, batch: boolean): Promise<ScoreResponse[]> => {
     const entry = requireModel(registry, name);
     const d = entry.scorer.featureNames.length;
@@ -123,12 +135,16 @@ export function createScoringService(registry: ModelRegistry, log: RequestLog, o
         review: o.review,
         domain: { checks: o.domain.checks, outside: o.domain.outside },
         latencyUs,
+        keyLabel: ctx.keyLabel ?? null,
       };
     });
     try {
       await log.append(rows);
     } catch (err) {
-      toProblem(err);
+      // Only a failed commit may be served past: backpressure and shutdown still refuse.
+      if (!(serveUnlogged && err instanceof LogWriteError)) toProblem(err);
+      observer?.unlogged?.(entry.name, responses.length, err as Error);
+      ctx.onUnlogged?.();
     }
     observer?.scored(entry.name, responses, latencyUs / 1000);
     return responses;

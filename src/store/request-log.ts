@@ -1,4 +1,6 @@
 import type { Database, Statement } from 'better-sqlite3';
+import { type ChainHead, createChainHeadReader } from './chain-head.js';
+import { type ChainedRow, chainHash } from './chain.js';
 import { toFloat64Blob } from './float64-blob.js';
 
 export interface ScoredRow {
@@ -15,6 +17,8 @@ export interface ScoredRow {
   review: boolean;
   domain: { checks: unknown[]; outside: unknown[] };
   latencyUs: number;
+  /** Label of the API key the request came with; null when keys are not in use. */
+  keyLabel?: string | null;
 }
 
 export interface RejectedRow {
@@ -102,9 +106,12 @@ export interface RequestLog {
  */
 export function createRequestLog(db: Database, options: WriterOptions): RequestLog {
   const insertScored: Statement = db.prepare(`INSERT INTO scored_requests
-    (request_id, batch_id, received_at, model_sha256, model_name, model_version, features, tags, label,
-     probabilities, margin, in_domain, review, domain, latency_us)
-    VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`);
+    (seq, request_id, batch_id, received_at, model_sha256, model_name, model_version, features, tags, label,
+     probabilities, margin, in_domain, review, domain, latency_us, key_label, chain_hash)
+    VALUES (@seq, @request_id, @batch_id, @received_at, @model_sha256, @model_name, @model_version, @features, @tags, @label,
+     @probabilities, @margin, @in_domain, @review, @domain, @latency_us, @key_label, @chain_hash)`);
+  // Every row is sealed with the hash of the one before (src/store/chain.ts).
+  const readHead = createChainHeadReader(db);
   const insertRejected: Statement = db.prepare(`INSERT INTO rejected_requests
     (request_id, received_at, method, route, model_name, status, problem_type, body_bytes)
     VALUES (?, ?, ?, ?, ?, ?, ?, ?)`);
@@ -125,34 +132,45 @@ export function createRequestLog(db: Database, options: WriterOptions): RequestL
     stats.lastError = (err as Error).message;
   }
 
-  const writeScored = (r: ScoredRow): void => {
-    insertScored.run(
-      r.requestId,
-      r.batchId,
-      r.receivedAt,
-      r.model.sha256,
-      r.model.name,
-      r.model.version,
-      toFloat64Blob(r.features),
-      r.tags ? JSON.stringify(r.tags) : null,
-      r.label,
-      toFloat64Blob(r.probabilities),
-      r.margin,
-      r.inDomain ? 1 : 0,
-      r.review ? 1 : 0,
-      JSON.stringify(r.domain),
-      Math.round(r.latencyUs),
-    );
+  /** Inserts a row after `at` in the chain and returns the new head; the caller commits it. */
+  const writeScored = (r: ScoredRow, at: ChainHead): ChainHead => {
+    const row: ChainedRow = {
+      seq: at.seq + 1,
+      request_id: r.requestId,
+      batch_id: r.batchId,
+      received_at: r.receivedAt,
+      model_sha256: r.model.sha256,
+      model_name: r.model.name,
+      model_version: r.model.version,
+      features: toFloat64Blob(r.features),
+      tags: r.tags ? JSON.stringify(r.tags) : null,
+      label: r.label,
+      probabilities: toFloat64Blob(r.probabilities),
+      margin: r.margin,
+      in_domain: r.inDomain ? 1 : 0,
+      review: r.review ? 1 : 0,
+      domain: JSON.stringify(r.domain),
+      latency_us: Math.round(r.latencyUs),
+      key_label: r.keyLabel ?? null,
+    };
+    const hash = chainHash(at.hash, row);
+    insertScored.run({ ...row, chain_hash: hash });
+    return { seq: row.seq, hash };
   };
   const writeRejected = (r: RejectedRow): void => {
     insertRejected.run(r.requestId, r.receivedAt, r.method, r.route, r.modelName, r.status, r.problemType, r.bodyBytes);
   };
-  const commitGroup = db.transaction((group: Pending[], refused: RejectedRow[]) => {
-    for (const p of group) for (const r of p.rows) writeScored(r);
+  // The head is read inside the transaction, so a rolled-back one leaves nothing to undo.
+  const commitGroup = db.transaction((group: Pending[], refused: RejectedRow[]): void => {
+    if (group.length > 0) {
+      let at = readHead();
+      for (const p of group) for (const r of p.rows) at = writeScored(r, at);
+    }
     for (const r of refused) writeRejected(r);
   });
-  const commitOne = db.transaction((p: Pending) => {
-    for (const r of p.rows) writeScored(r);
+  const commitOne = db.transaction((p: Pending): void => {
+    let at = readHead();
+    for (const r of p.rows) at = writeScored(r, at);
   });
 
   const settle = (group: Pending[]): void => {

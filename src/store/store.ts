@@ -1,6 +1,11 @@
 import type { Database } from 'better-sqlite3';
 import { type AlertsStore, createAlertsStore } from './alerts-store.js';
+import { type ChainAnchor, type ChainVerdict, verifyChain } from './audit-verify.js';
 import { type OpenOptions, openDatabase } from './database.js';
+import { type KeysStore, createKeysStore } from './keys-store.js';
+import { type Retention, createRetention } from './retention.js';
+import { createChainHeadReader } from './chain-head.js';
+import { sealPreChainRows } from './seal.js';
 import { type DriftStore, createDriftStore } from './drift-store.js';
 import { type ModelRecord, recordModel } from './models-table.js';
 import { type RequestLog, type WriterOptions, createRequestLog } from './request-log.js';
@@ -14,6 +19,12 @@ export interface Store {
   readonly drift: DriftStore;
   /** Window aggregates, alert records and the webhook outbox. */
   readonly alerts: AlertsStore;
+  /** API keys, stored as hashes. */
+  readonly keys: KeysStore;
+  /** Prunes old rows, keeping the hash chain verifiable. */
+  readonly retention: Retention;
+  /** Recomputes the audit log's hash chain (plumbline audit verify). */
+  verifyChain(anchor?: ChainAnchor): ChainVerdict;
   recordModel(m: ModelRecord): void;
   queryRequests(filter: RequestFilter, limit: number, cursor?: string): RequestPage;
   /** Whether a write transaction can be opened now (readiness). */
@@ -23,10 +34,19 @@ export interface Store {
 
 export function openStore(file: string, options: OpenOptions & WriterOptions): Store {
   const db: Database = openDatabase(file, options);
+  sealPreChainRows(db);
+  try {
+    // The newest row must be sealed for the next to chain on; if not, the log was tampered with.
+    createChainHeadReader(db)();
+  } catch (err) {
+    db.close();
+    throw new StoreIntegrityError(`${file}: ${(err as Error).message}; run plumbline audit verify --db ${file}`);
+  }
   const log = createRequestLog(db, options);
   const query = createRequestQuery(db);
   const drift = createDriftStore(db);
   const alerts = createAlertsStore(db);
+  const keys = createKeysStore(db);
   const probe = db.prepare('SELECT 1');
   let closed = false;
   return {
@@ -34,6 +54,9 @@ export function openStore(file: string, options: OpenOptions & WriterOptions): S
     log,
     drift,
     alerts,
+    keys,
+    retention: createRetention(db),
+    verifyChain: (anchor) => verifyChain(db, anchor),
     recordModel: (m) => recordModel(db, m),
     queryRequests: query,
     isWritable() {
@@ -56,4 +79,12 @@ export function openStore(file: string, options: OpenOptions & WriterOptions): S
       db.close();
     },
   };
+}
+
+/** The audit log cannot be written on: its hash chain is broken at its head. */
+export class StoreIntegrityError extends Error {
+  constructor(message: string) {
+    super(message);
+    this.name = 'StoreIntegrityError';
+  }
 }

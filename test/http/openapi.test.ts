@@ -29,6 +29,7 @@ describe('openapi/openapi.json', () => {
       '/v1/drift-reports/{id}',
       '/v1/drift-reports/{id}.html',
       '/v1/models',
+      '/v1/models/reload',
       '/v1/models/{name}',
       '/v1/models/{name}/score',
       '/v1/models/{name}/score-batch',
@@ -38,5 +39,12 @@ describe('openapi/openapi.json', () => {
     expect(score.requestBody).toBeDefined();
     expect(Object.keys(score.responses).sort()).toEqual(['200', '400', '404', '413', '415', '503', 'default']);
     expect(JSON.stringify(score.responses['400'])).toContain('application/problem+json');
+  });
+
+  it('says which routes need an API key: all but health and the documents', () => {
+    const doc = JSON.parse(committedText) as { components: { securitySchemes: Record<string, { type: string; scheme: string }> }; paths: Record<string, Record<string, { security?: unknown }>> };
+    expect(doc.components.securitySchemes.apiKey).toMatchObject({ type: 'http', scheme: 'bearer' });
+    const open = Object.entries(doc.paths).flatMap(([path, ops]) => Object.entries(ops).filter(([, op]) => op.security === undefined).map(([m]) => `${m} ${path}`));
+    expect(open.sort()).toEqual(['get /healthz', 'get /readyz']);
   });
 });

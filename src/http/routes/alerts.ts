@@ -3,6 +3,8 @@ import { z } from 'zod';
 import { formatDuration } from '../../alerts/durations.js';
 import { cursorCodec } from '../../cursor.js';
 import { withCursor } from '../cursor-param.js';
+import { queryWindow } from '../query-window.js';
+import { ProblemError } from '../../errors.js';
 import { commonErrors, jsonResponse, problemResponse } from '../schemas.js';
 
 const isoTime = z.iso.datetime({ offset: true });
@@ -30,6 +32,7 @@ const alerts: FastifyPluginAsyncZod = async (app) => {
   app.get(
     '/v1/alerts',
     {
+      config: { access: 'reader' },
       schema: {
         summary: 'Alerts raised and cleared by the rules, newest first',
         tags: ['alerts'],
@@ -46,12 +49,13 @@ const alerts: FastifyPluginAsyncZod = async (app) => {
     },
     async (req) => {
       const q = req.query;
+      const { errors, ...window } = queryWindow(q);
+      if (errors.length > 0) throw new ProblemError('invalid-request', 'the window is empty', errors);
       const rows = app.services.store.alerts.listAlerts(
         {
           ...(q.state ? { state: q.state } : {}),
           ...(q.model !== undefined ? { model: q.model } : {}),
-          ...(q.from !== undefined ? { from: Date.parse(q.from) } : {}),
-          ...(q.to !== undefined ? { to: Date.parse(q.to) } : {}),
+          ...window,
         },
         q.limit + 1,
         q.cursor !== undefined ? withCursor(() => codec.decode(q.cursor as string)) : undefined,

@@ -2,13 +2,14 @@ import type { FastifyPluginAsyncZod } from 'fastify-type-provider-zod';
 import { healthSchema, jsonResponse, readySchema } from '../schemas.js';
 
 const health: FastifyPluginAsyncZod = async (app) => {
-  app.get('/healthz', { schema: { summary: 'Liveness: the process answers', tags: ['health'], response: { 200: jsonResponse('the process is up', healthSchema) } } }, async () => ({
+  app.get('/healthz', { config: { access: 'public' }, schema: { summary: 'Liveness: the process answers', tags: ['health'], response: { 200: jsonResponse('the process is up', healthSchema) } } }, async () => ({
     status: 'ok' as const,
   }));
 
   app.get(
     '/readyz',
     {
+      config: { access: 'public' },
       schema: {
         summary: 'Readiness: at least one model is loaded and the audit log can be written',
         tags: ['health'],

@@ -6,6 +6,7 @@ const metrics: FastifyPluginAsyncZod = async (app) => {
   app.get(
     '/metrics',
     {
+      config: { access: app.services.config.metrics.public ? 'public' : 'reader' },
       schema: {
         summary: 'Metrics in the Prometheus text exposition format (docs/metrics.md lists them)',
         tags: ['health'],

@@ -1,5 +1,6 @@
 import type { FastifyPluginAsyncZod } from 'fastify-type-provider-zod';
-import type { ModelEntry } from '../../bundle/registry.js';
+import { type ModelEntry, RegistryError } from '../../bundle/registry.js';
+import { ProblemError } from '../../errors.js';
 import { OPTIONAL_DETECTORS } from '../../bundle/domain-fit.js';
 import { requireModel } from '../../scoring/service.js';
 import { commonErrors, jsonResponse, modelDetailSchema, modelNameParam, modelSummarySchema, problemResponse } from '../schemas.js';
@@ -51,13 +52,14 @@ function detail(e: ModelEntry) {
 const models: FastifyPluginAsyncZod = async (app) => {
   app.get(
     '/v1/models',
-    { schema: { summary: 'The loaded models', tags: ['models'], response: { 200: jsonResponse('the loaded models', z.object({ items: z.array(modelSummarySchema) })), ...commonErrors } } },
+    { config: { access: 'reader' }, schema: { summary: 'The loaded models', tags: ['models'], response: { 200: jsonResponse('the loaded models', z.object({ items: z.array(modelSummarySchema) })), ...commonErrors } } },
     async () => ({ items: app.services.registry.list().map(summary) }),
   );
 
   app.get(
     '/v1/models/:name',
     {
+      config: { access: 'reader' },
       schema: {
         summary: "One model's manifest: features, classes, domain settings and training metrics (no weights)",
         tags: ['models'],
@@ -66,6 +68,29 @@ const models: FastifyPluginAsyncZod = async (app) => {
       },
     },
     async (req) => detail(requireModel(app.services.registry, req.params.name)),
+  );
+
+  app.post(
+    '/v1/models/reload',
+    {
+      config: { access: 'admin' },
+      schema: {
+        summary: 'Load the models directory again (as SIGHUP does) and serve what it holds',
+        description: 'Every bundle is verified before any is swapped in; when one fails, nothing changes and the answer names the files.',
+        tags: ['models'],
+        response: { 200: jsonResponse('the models now served', z.object({ items: z.array(modelSummarySchema) })), 422: problemResponse('a bundle in the directory cannot be served; nothing changed'), ...commonErrors },
+      },
+    },
+    async (req) => {
+      try {
+        const entries = await app.services.registry.reload();
+        req.log.info({ models: entries.map((e) => `${e.name}@${e.bundle.file.version}`), by: req.apiKey?.label ?? null }, 'models reloaded');
+        return { items: entries.map(summary) };
+      } catch (err) {
+        if (err instanceof RegistryError) throw new ProblemError('reload-refused', `${err.problems.join('; ')}`);
+        throw err;
+      }
+    },
   );
 };
 

@@ -2,6 +2,7 @@ import type { FastifyPluginAsyncZod } from 'fastify-type-provider-zod';
 import { z } from 'zod';
 import { cursorCodec } from '../../cursor.js';
 import { withCursor } from '../cursor-param.js';
+import { queryWindow } from '../query-window.js';
 import { ProblemError } from '../../errors.js';
 import type { DriftReport } from '../../reports/report-types.js';
 import { renderReportHtml } from '../../reports/html.js';
@@ -34,6 +35,7 @@ const reports: FastifyPluginAsyncZod = async (app) => {
   app.get(
     '/v1/drift-reports',
     {
+      config: { access: 'reader' },
       schema: {
         summary: 'Stored drift reports, newest first',
         tags: ['drift'],
@@ -43,11 +45,10 @@ const reports: FastifyPluginAsyncZod = async (app) => {
     },
     async (req) => {
       const q = req.query;
-      if (q.from !== undefined && q.to !== undefined && !(Date.parse(q.from) < Date.parse(q.to))) {
-        throw new ProblemError('invalid-request', 'the window is empty', [{ parameter: 'to', detail: 'must be later than from' }]);
-      }
+      const { errors, ...window } = queryWindow(q);
+      if (errors.length > 0) throw new ProblemError('invalid-request', 'the window is empty', errors);
       const rows = store.drift.listReports(
-        { ...(q.model !== undefined ? { model: q.model } : {}), ...(q.from !== undefined ? { from: Date.parse(q.from) } : {}), ...(q.to !== undefined ? { to: Date.parse(q.to) } : {}) },
+        { ...(q.model !== undefined ? { model: q.model } : {}), ...window },
         q.limit + 1,
         q.cursor !== undefined ? withCursor(() => codec.decode(q.cursor as string)) : undefined,
       );
@@ -65,6 +66,7 @@ const reports: FastifyPluginAsyncZod = async (app) => {
   app.get(
     '/v1/drift-reports/:id',
     {
+      config: { access: 'reader' },
       schema: {
         summary: 'One drift report',
         tags: ['drift'],
@@ -78,6 +80,7 @@ const reports: FastifyPluginAsyncZod = async (app) => {
   app.get(
     '/v1/drift-reports/:id.html',
     {
+      config: { access: 'reader' },
       schema: {
         summary: 'One drift report as a self-contained HTML page (charts in inline SVG, nothing fetched)',
         tags: ['drift'],
@@ -91,6 +94,7 @@ const reports: FastifyPluginAsyncZod = async (app) => {
   app.post(
     '/v1/drift-reports',
     {
+      config: { access: 'admin' },
       schema: {
         summary: 'Run a drift report now for a model and a window',
         description: 'Built on a worker thread over the audit log, stored, and returned. The model is compared with the training reference of the bundle the log holds for it (the one loaded last).',

@@ -2,12 +2,14 @@ import type { FastifyPluginAsyncZod } from 'fastify-type-provider-zod';
 import { type FieldError, ProblemError } from '../../errors.js';
 import type { RequestFilter } from '../../store/request-query.js';
 import { withCursor } from '../cursor-param.js';
+import { queryWindow } from '../query-window.js';
 import { commonErrors, jsonResponse, problemResponse, requestPageSchema, requestsQuerySchema } from '../schemas.js';
 
 const requests: FastifyPluginAsyncZod = async (app) => {
   app.get(
     '/v1/requests',
     {
+      config: { access: 'reader' },
       schema: {
         summary: 'The audit log, newest first',
         description: 'Every scored vector with its inputs, answer and model version. Filters combine with AND; page with `cursor`.',
@@ -25,9 +27,8 @@ const requests: FastifyPluginAsyncZod = async (app) => {
         if (at <= 0) errors.push({ parameter: 'tag', detail: `${JSON.stringify(t)} is not key:value` });
         else tags.push([t.slice(0, at), t.slice(at + 1)]);
       }
-      const from = q.from === undefined ? undefined : Date.parse(q.from);
-      const to = q.to === undefined ? undefined : Date.parse(q.to);
-      if (from !== undefined && to !== undefined && from >= to) errors.push({ parameter: 'to', detail: 'must be later than from' });
+      const { from, to, errors: windowErrors } = queryWindow(q);
+      errors.push(...windowErrors);
       if (errors.length > 0) throw new ProblemError('invalid-request', 'the query string has problems', errors);
       const filter: RequestFilter = {
         ...(q.model !== undefined ? { model: q.model } : {}),

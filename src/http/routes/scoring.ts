@@ -3,8 +3,17 @@ import type { CallContext } from '../../scoring/service.js';
 import type { FastifyReply, FastifyRequest } from 'fastify';
 import { commonErrors, jsonResponse, modelNameParam, problemResponse, scoreBatchResponseSchema, scoreResponseSchema, scoringSchemas } from '../schemas.js';
 
+/** Sent with an answer whose rows could not be logged (log.on_error "serve"). */
+export const UNLOGGED_HEADER = 'plumbline-audit';
+
 function context(req: FastifyRequest, reply: FastifyReply): CallContext {
-  return { requestId: req.id, receivedAt: Math.round(Date.now() - reply.elapsedTime), elapsedMs: () => reply.elapsedTime };
+  return {
+    requestId: req.id,
+    receivedAt: Math.round(Date.now() - reply.elapsedTime),
+    elapsedMs: () => reply.elapsedTime,
+    keyLabel: req.apiKey?.label ?? null,
+    onUnlogged: () => void reply.header(UNLOGGED_HEADER, 'not-logged'),
+  };
 }
 
 const errors = {
@@ -22,6 +31,7 @@ const scoring: FastifyPluginAsyncZod = async (app) => {
   app.post(
     '/v1/models/:name/score',
     {
+      config: { access: 'scorer' },
       schema: {
         summary: 'Score one feature vector',
         description: 'Answers with class probabilities, the margin and the domain checks, after the request is committed to the audit log.',
@@ -37,6 +47,7 @@ const scoring: FastifyPluginAsyncZod = async (app) => {
   app.post(
     '/v1/models/:name/score-batch',
     {
+      config: { access: 'scorer' },
       schema: {
         summary: 'Score many feature vectors in one call',
         description: `At most limits.batch_items items (default 1,000). One bad item refuses the whole batch, naming its index; nothing of a refused batch is scored or logged.`,

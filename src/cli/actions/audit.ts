@@ -1,0 +1,41 @@
+import { existsSync } from 'node:fs';
+import BetterSqlite3 from 'better-sqlite3';
+import { type ChainAnchor, type ChainVerdict, verifyChain } from '../../store/audit-verify.js';
+import { type CliIo, UsageError } from '../io.js';
+
+/** seq:hash, as `audit verify` prints the head. */
+export function parseAnchor(v: string): ChainAnchor {
+  const m = /^(\d{1,15}):([0-9a-fA-F]{64})$/.exec(v.trim());
+  if (!m) throw new UsageError('--head must be SEQ:HASH as audit verify printed it, e.g. 1999:3f2a…(64 hex digits)');
+  return { seq: Number(m[1]), hash: (m[2] as string).toLowerCase() };
+}
+
+/**
+ * `plumbline audit verify`: recomputes the hash chain of the audit log, read-only, and says
+ * whether it is intact; exit 0 only when it is. With --head, also checks that the log still
+ * holds a head recorded earlier (which catches rows cut from the end).
+ */
+export function auditVerifyAction(ctx: { db: string; head?: ChainAnchor; json: boolean }, io: CliIo): ChainVerdict {
+  if (!existsSync(ctx.db)) throw new UsageError(`--db ${ctx.db}: no such file`);
+  const db = new BetterSqlite3(ctx.db, { readonly: true, fileMustExist: true });
+  let v: ChainVerdict;
+  try {
+    const hasChain = db.prepare("SELECT 1 FROM pragma_table_info('scored_requests') WHERE name = 'chain_hash'").get() !== undefined;
+    if (!hasChain) throw new UsageError(`${ctx.db} has no hash chain yet: start this version of plumbline on it once, to migrate and seal it`);
+    v = verifyChain(db, ctx.head);
+  } finally {
+    db.close();
+  }
+  if (ctx.json) {
+    io.stdout.write(`${JSON.stringify(v, null, 2)}\n`);
+  } else if (v.intact) {
+    const from = v.from.checkpoint ? `the retention checkpoint after row ${v.from.seq}` : 'the first row';
+    io.stdout.write(`intact: ${v.rows} rows chain from ${from} to row ${v.head.seq}${ctx.head ? `, through the recorded head ${ctx.head.seq}` : ''}\n`);
+    io.stdout.write(`head ${v.head.seq}:${v.head.hash}\n`);
+  } else {
+    const p = v.problem!;
+    io.stdout.write(`NOT intact: ${p.kind} at row ${p.seq}${p.request_id ? ` (request ${p.request_id})` : ''}\n${p.detail}\n`);
+    io.stdout.write(`${v.rows} rows before it verify; the chain up to them ends at ${v.head.seq}:${v.head.hash}\n`);
+  }
+  return v;
+}

@@ -1,0 +1,17 @@
+import type { Command } from 'commander';
+import { auditVerifyAction, parseAnchor } from '../actions/audit.js';
+import { processIo } from '../io.js';
+
+export function registerAudit(program: Command): void {
+  const audit = program.command('audit').description('the audit log');
+  audit
+    .command('verify')
+    .description('recompute the hash chain of the audit log (read-only); exit 0 only when intact, 1 when not')
+    .requiredOption('--db <file>', 'the audit log database')
+    .option('--head <seq:hash>', 'a head printed by an earlier verify, which the log must still hold')
+    .option('--json', 'print the verdict as JSON', false)
+    .action((flags: { db: string; head?: string; json: boolean }) => {
+      const v = auditVerifyAction({ db: flags.db, json: flags.json, ...(flags.head !== undefined ? { head: parseAnchor(flags.head) } : {}) }, processIo());
+      if (!v.intact) process.exitCode = 1;
+    });
+}

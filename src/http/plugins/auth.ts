@@ -1,0 +1,117 @@
+import { timingSafeEqual } from 'node:crypto';
+import type { FastifyInstance, FastifyRequest } from 'fastify';
+import fp from 'fastify-plugin';
+import { bearerToken, hashKey, keyPrefix } from '../../auth/keys.js';
+import { ProblemError } from '../../errors.js';
+import type { KeysStore, Role } from '../../store/keys-store.js';
+
+/** What a route needs: a key of this role (admin keys may do everything), or nothing. */
+export type Access = Role | 'public';
+
+export interface ApiKeyIdentity {
+  id: string;
+  label: string;
+  role: Role;
+}
+
+declare module 'fastify' {
+  interface FastifyContextConfig {
+    access?: Access;
+  }
+  interface FastifyRequest {
+    /** The key the request came with; null when keys are not in use. */
+    apiKey: ApiKeyIdentity | null;
+  }
+}
+
+export interface AuthOptions {
+  mode: 'keys' | 'off';
+  keys: KeysStore;
+  now?: () => number;
+}
+
+/** Whether keys are in use is read again at most this often, so that a new key takes effect within it. */
+const ACTIVE_TTL_MS = 1000;
+/** last_used_at is written at most this often per key. */
+const TOUCH_EVERY_MS = 60_000;
+
+const CHALLENGE = 'Bearer realm="plumbline"';
+
+const VERBS: Record<Role, string> = { scorer: 'score', reader: 'read models, the audit log, reports, alerts and metrics', admin: 'do this' };
+
+function allowed(role: Role, access: Role): boolean {
+  return role === 'admin' || role === access;
+}
+
+/**
+ * API keys (Authorization: Bearer). Once one live key exists in the database, every route but
+ * the public ones needs a key whose role the route accepts: 401 without a valid key, 403 with
+ * a key of the wrong role. Runs on onRequest, before the body is read.
+ */
+async function auth(app: FastifyInstance, options: AuthOptions): Promise<void> {
+  const now = options.now ?? Date.now;
+  let active = { value: false, at: Number.NEGATIVE_INFINITY };
+  const enforced = (): boolean => {
+    if (options.mode === 'off') return false;
+    const t = now();
+    if (t - active.at > ACTIVE_TTL_MS) active = { value: options.keys.anyActive(), at: t };
+    return active.value;
+  };
+  const touched = new Map<string, number>();
+
+  const identify = (token: string): ApiKeyIdentity | null => {
+    const hash = Buffer.from(hashKey(token), 'hex');
+    let found: ApiKeyIdentity | null = null;
+    // Every candidate is compared, in constant time, whatever the first comparison gave.
+    for (const k of options.keys.findByPrefix(keyPrefix(token))) {
+      const stored = Buffer.from(k.hash, 'hex');
+      if (stored.length === hash.length && timingSafeEqual(stored, hash)) found = { id: k.id, label: k.label, role: k.role };
+    }
+    return found;
+  };
+
+  // The OpenAPI document says which routes need a key, and of which role.
+  app.addHook('onRoute', (route) => {
+    const access = route.config?.access;
+    if (!route.schema || access === undefined || access === 'public') return;
+    const schema = route.schema as { security?: unknown; description?: string };
+    schema.security = [{ apiKey: [] }];
+    const note = access === 'admin' ? 'Needs an admin key once keys are in use.' : `Needs a ${access} key or an admin key once keys are in use.`;
+    schema.description = schema.description ? `${schema.description} ${note}` : note;
+  });
+
+  app.decorateRequest('apiKey', null);
+  app.addHook('onRequest', async (req: FastifyRequest) => {
+    const path = req.url.split('?')[0] ?? '';
+    // A route says what it needs; a path no route has is treated as needing a reader key.
+    const access: Access = req.routeOptions.config.access ?? (path.startsWith('/v1/') ? 'reader' : 'public');
+    if (access === 'public' || !enforced()) return;
+    const header = req.headers.authorization;
+    const token = bearerToken(header);
+    if (token === null) {
+      throw new ProblemError(
+        'unauthorized',
+        header === undefined ? 'this route needs an API key: send it as Authorization: Bearer <key>' : 'the Authorization header must be "Bearer <key>"',
+        [{ header: 'authorization', detail: header === undefined ? 'is missing' : 'is not "Bearer <key>"' }],
+        { 'www-authenticate': CHALLENGE },
+      );
+    }
+    const key = identify(token);
+    if (!key) {
+      throw new ProblemError('unauthorized', 'the API key is not one this service knows, or it was revoked', [{ header: 'authorization', detail: 'holds no valid key' }], {
+        'www-authenticate': `${CHALLENGE}, error="invalid_token"`,
+      });
+    }
+    if (!allowed(key.role, access)) {
+      throw new ProblemError('forbidden', `a ${key.role} key may ${VERBS[key.role]}; this needs a ${access} or admin key`, [{ header: 'authorization', detail: `holds a ${key.role} key` }]);
+    }
+    req.apiKey = key;
+    const t = now();
+    if (t - (touched.get(key.id) ?? Number.NEGATIVE_INFINITY) >= TOUCH_EVERY_MS) {
+      touched.set(key.id, t);
+      options.keys.touch(key.id, t);
+    }
+  });
+}
+
+export default fp(auth, { name: 'auth', fastify: '5.x' });

@@ -1,0 +1,60 @@
+import type { FastifyInstance, FastifyReply, FastifyRequest } from 'fastify';
+import fp from 'fastify-plugin';
+import rateLimit from '@fastify/rate-limit';
+import underPressure from '@fastify/under-pressure';
+import { ProblemError } from '../../errors.js';
+
+export interface GuardOptions {
+  /** Requests per minute per API key (per client address without keys); 0 for no limit. */
+  requestsPerMinute: number;
+  /** Refuse with 503 while the mean event-loop delay is above this many ms; 0 never. */
+  eventLoopDelayMs: number;
+}
+
+const isPublic = (req: FastifyRequest): boolean => req.routeOptions.config.access === 'public';
+
+// Our pages hold inline CSS and no script; nothing else may load or frame them.
+const HTML_POLICY = "default-src 'none'; style-src 'unsafe-inline'; img-src data:; base-uri 'none'; form-action 'none'; frame-ancestors 'none'";
+
+/**
+ * What keeps the service up and its answers where they belong: shedding load while the event
+ * loop lags (@fastify/under-pressure), a rate limit per key (@fastify/rate-limit), and security
+ * headers on every answer. Liveness and readiness are never shed or limited.
+ */
+async function guards(app: FastifyInstance, options: GuardOptions): Promise<void> {
+  if (options.eventLoopDelayMs > 0) {
+    await app.register(underPressure, {
+      maxEventLoopDelay: options.eventLoopDelayMs,
+      sampleInterval: 250,
+      pressureHandler: (req: FastifyRequest, _reply: FastifyReply, _type: string, value: number | undefined) =>
+        isPublic(req)
+          ? undefined
+          : Promise.reject(
+              new ProblemError('overloaded', `the event loop lags ${Math.round(value ?? 0)} ms behind (limits.event_loop_delay_ms is ${options.eventLoopDelayMs}); nothing was done, retry shortly`, undefined, { 'retry-after': '1' }),
+            ),
+    });
+  }
+  if (options.requestsPerMinute > 0) {
+    await app.register(rateLimit, {
+      max: options.requestsPerMinute,
+      timeWindow: 60_000,
+      // Per key when keys are in use (auth runs first, on onRequest), else per client address.
+      keyGenerator: (req) => (req.apiKey ? `key:${req.apiKey.id}` : `ip:${req.ip}`),
+      allowList: (req) => isPublic(req),
+      errorResponseBuilder: (req, ctx) =>
+        new ProblemError('rate-limited', `more than ${ctx.max} requests a minute came from this ${req.apiKey ? 'key' : 'address'} (limits.requests_per_minute); retry in ${ctx.after}`, undefined, {
+          'retry-after': String(Math.max(1, Math.ceil(ctx.ttl / 1000))),
+        }),
+    });
+  }
+  app.addHook('onSend', async (_req, reply, payload) => {
+    reply.header('x-content-type-options', 'nosniff');
+    reply.header('referrer-policy', 'no-referrer');
+    reply.header('x-frame-options', 'DENY');
+    if (!reply.hasHeader('cache-control')) reply.header('cache-control', 'no-store');
+    if (String(reply.getHeader('content-type') ?? '').startsWith('text/html')) reply.header('content-security-policy', HTML_POLICY);
+    return payload;
+  });
+}
+
+export default fp(guards, { name: 'guards', fastify: '5.x', dependencies: ['auth'] });

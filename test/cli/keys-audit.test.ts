@@ -1,0 +1,116 @@
+import { spawnSync } from 'node:child_process';
+import { fileURLToPath } from 'node:url';
+import BetterSqlite3 from 'better-sqlite3';
+import { afterAll, describe, expect, it } from 'vitest';
+import { auditVerifyAction, parseAnchor } from '../../src/cli/actions/audit.js';
+import { createKeyAction, listKeysAction, revokeKeyAction } from '../../src/cli/actions/keys.js';
+import type { CliIo } from '../../src/cli/io.js';
+import { openStore } from '../../src/store/store.js';
+import { tempDir } from '../helpers/datasets.js';
+import { sink } from '../helpers/sink.js';
+
+const tmp = tempDir();
+afterAll(() => tmp.remove());
+const io = () => {
+  const out = sink();
+  const err = sink();
+  return { stdout: out, stderr: err, interactive: false, out, err } satisfies CliIo & Record<string, unknown>;
+};
+const MAIN = fileURLToPath(new URL('../../src/cli/main.ts', import.meta.url));
+const cli = (...args: string[]) => spawnSync(process.execPath, ['--import', 'tsx', MAIN, ...args], { encoding: 'utf8' });
+
+describe('plumbline keys', () => {
+  const db = tmp.file('keys.db');
+
+  it('create prints the key once, as the last line of stdout, and stores only its hash', () => {
+    const t = io();
+    const { id, key } = createKeyAction({ db, role: 'scorer', label: 'line-3 app' }, t);
+    const lines = t.out.text().trimEnd().split('\n');
+    expect(lines.at(-1)).toBe(key);
+    // "plk_" and 32 random bytes in base64url: 43 characters
+    expect(key).toMatch(/^plk_[A-Za-z0-9_-]{43}$/);
+    expect(t.err.text()).toContain(`created scorer key ${id} ("line-3 app")`);
+    const raw = new BetterSqlite3(db, { readonly: true });
+    const row = raw.prepare('SELECT * FROM api_keys').get() as Record<string, unknown>;
+    raw.close();
+    expect(JSON.stringify(row)).not.toContain(key.slice(10));
+    expect(row).toMatchObject({ id, prefix: key.slice(0, 10), role: 'scorer', label: 'line-3 app', revoked_at: null });
+  });
+
+  it('list shows id, role, label and times, never the key; revoke stops it', () => {
+    const admin = createKeyAction({ db, role: 'admin', label: 'ops' }, io());
+    const t = io();
+    const listed = listKeysAction({ db, json: false }, t);
+    expect(listed.map((k) => k.label)).toEqual(['line-3 app', 'ops']);
+    expect(t.out.text().split('\n')[0]).toMatch(/^id +prefix +role +label +created +last used +revoked$/);
+    expect(t.out.text()).not.toContain(admin.key);
+    revokeKeyAction({ db, id: admin.id }, io());
+    const after = listKeysAction({ db, json: true }, io());
+    expect(after.find((k) => k.id === admin.id)?.revoked_at).not.toBeNull();
+    expect(() => revokeKeyAction({ db, id: admin.id }, io())).toThrow(/was revoked already/);
+    expect(() => revokeKeyAction({ db, id: 'nope' }, io())).toThrow(/no key has the id nope/);
+  });
+
+  it('refuses an empty label, an unknown role and a missing database, from the command line', () => {
+    expect(() => createKeyAction({ db, role: 'reader', label: '  ' }, io())).toThrow(/--label must be 1 to 128 characters/);
+    const bad = cli('keys', 'create', '--db', db, '--role', 'root', '--label', 'x');
+    expect(bad.status).toBe(2);
+    expect(bad.stderr).toMatch(/--role <role>.*expected one of scorer, reader, admin/);
+    const missing = cli('keys', 'list', '--db', tmp.file('none.db'));
+    expect(missing.status).toBe(2);
+    expect(missing.stderr).toMatch(/no such file/);
+  });
+});
+
+describe('plumbline audit verify', () => {
+  const db = tmp.file('audit.db');
+
+  it('says intact and prints the head; exit 0', async () => {
+    const store = openStore(db, { sync: 'normal', flushMs: 0, flushRows: 512, queueRows: 1000, rejectedRows: 10 });
+    store.recordModel({ sha256: 'd'.repeat(64), name: 'm', version: '1', features: [{ name: 'a', unit: 'mm' }], classes: ['x', 'y'] });
+    for (let i = 0; i < 5; i++) {
+      await store.log.append([
+        { requestId: `q-${i}`, batchId: null, receivedAt: 1_790_000_000_000 + i, model: { sha256: 'd'.repeat(64), name: 'm', version: '1' }, features: [i], tags: null, label: 'x', probabilities: [0.6, 0.4], margin: 0.2, inDomain: true, review: false, domain: { checks: [], outside: [] }, latencyUs: 10 },
+      ]);
+    }
+    store.close();
+    const t = io();
+    const v = auditVerifyAction({ db, json: false }, t);
+    expect(v.intact).toBe(true);
+    expect(t.out.text()).toBe(`intact: 5 rows chain from the first row to row 5\nhead 5:${v.head.hash}\n`);
+    const run = cli('audit', 'verify', '--db', db);
+    expect(run.status).toBe(0);
+    expect(run.stdout).toContain(`head 5:${v.head.hash}`);
+  });
+
+  it('names the changed row and exits 1; with --head, catches rows cut from the end', () => {
+    const head = auditVerifyAction({ db, json: true }, io()).head;
+    const w = new BetterSqlite3(db);
+    w.prepare('DELETE FROM scored_requests WHERE seq = 5').run();
+    w.close();
+    // alone, the shorter log is a valid chain; against the head recorded before, it is not
+    expect(cli('audit', 'verify', '--db', db).status).toBe(0);
+    const cut = cli('audit', 'verify', '--db', db, '--head', `${head.seq}:${head.hash}`);
+    expect(cut.status).toBe(1);
+    expect(cut.stdout).toMatch(/^NOT intact: removed at row 5\nthe log ends at row 4, but row 5 was recorded/);
+    const w2 = new BetterSqlite3(db);
+    w2.prepare("UPDATE scored_requests SET label = 'y' WHERE seq = 2").run();
+    w2.close();
+    const changed = cli('audit', 'verify', '--db', db);
+    expect(changed.status).toBe(1);
+    expect(changed.stdout).toMatch(/^NOT intact: changed at row 2 \(request q-1\)/);
+    expect(() => parseAnchor('5:abc')).toThrow(/--head must be SEQ:HASH/);
+  });
+
+  it('never writes to the database it checks', () => {
+    const before = new BetterSqlite3(db, { readonly: true });
+    const version = before.pragma('data_version', { simple: true });
+    const count = before.prepare('SELECT COUNT(*) AS n FROM scored_requests').get();
+    before.close();
+    auditVerifyAction({ db, json: false }, io());
+    const after = new BetterSqlite3(db, { readonly: true });
+    expect(after.prepare('SELECT COUNT(*) AS n FROM scored_requests').get()).toEqual(count);
+    expect(after.pragma('data_version', { simple: true })).toBe(version);
+    after.close();
+  });
+});
