@@ -264,6 +264,8 @@ export function loadConfig(sources: ConfigSources): { config: Config; warnings: 
       // A value inside a list (an alert rule's key) has the origin of the list.
       let from: string | undefined;
       for (let n = issue.path.length; n > 0 && from === undefined; n--) from = origin.get(issue.path.slice(0, n).join('.'));
+      // A check over a whole object (tls: both or neither) has the origins of the keys set in it.
+      if (from === undefined && key !== '') from = [...new Set([...origin].filter(([k]) => k.startsWith(`${key}.`)).map(([, o]) => o))].join(', ') || undefined;
       problems.push(`${describeKey(issue.path, merged)} = ${JSON.stringify(value)} (${from ?? 'default'}): ${issue.message}`);
     }
   }

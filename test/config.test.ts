@@ -71,6 +71,10 @@ describe('configuration', () => {
     expect(loadConfig({ env: { PLUMBLINE_WEBHOOK_SECRET: 'x' } }).warnings).toEqual(['environment PLUMBLINE_WEBHOOK_SECRET is not a configuration key; ignored']);
   });
 
+  it('names where a value came from when a check spans an object', () => {
+    expect(problems(() => loadConfig({ env: { PLUMBLINE_TLS_CERT: '/etc/plumbline/cert.pem' } }))).toEqual(['tls = {"cert":"/etc/plumbline/cert.pem"} (environment PLUMBLINE_TLS_CERT): give both tls.cert and tls.key, or neither']);
+  });
+
   it('gives every key its own environment variable', () => {
     const names = CONFIG_KEYS.map((k) => k.env);
     expect(new Set(names).size).toBe(names.length);

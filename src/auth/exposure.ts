@@ -12,10 +12,11 @@ export function isLoopback(host: string): boolean {
  * address it is refused, unless auth is turned off on purpose. Returns the warning to log, or
  * throws the refusal.
  */
-export function checkExposure(o: { host: string; auth: 'keys' | 'off'; keys: number }): string | null {
+export function checkExposure(o: { host: string; auth: 'keys' | 'off'; keys: number; liveKeys: number }): string | null {
   if (o.auth === 'off') {
     return isLoopback(o.host) ? null : `auth is off: anyone who can reach ${o.host} may score, read the audit log and run reports`;
   }
+  if (o.keys > 0 && o.liveKeys === 0) return 'every API key is revoked, so every /v1 request is refused with 401 until a new key is made (plumbline keys create)';
   if (o.keys > 0) return null;
   if (isLoopback(o.host)) return `no API keys exist, so no route asks for one; only this machine can reach ${o.host}. Make one with: plumbline keys create --db <file> --role admin --label <who>`;
   throw new ExposureError(

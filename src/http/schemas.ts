@@ -194,6 +194,7 @@ export const loggedRequestSchema = z
     in_domain: z.boolean(),
     domain: z.object({ checks: z.array(domainCheck), outside: z.array(outsideFeature) }),
     latency_ms: z.number().describe('from receipt to the answer being ready, before the commit'),
+    key_label: z.string().nullable().describe('label of the API key the request came with; null when keys were not in use'),
   })
   .meta({ id: 'LoggedRequest' });
 

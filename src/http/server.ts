@@ -79,7 +79,8 @@ export async function startServer(
   let alerting: Alerting | null = null;
   let retention: RetentionJob | null = null;
   try {
-    const exposure = checkExposure({ host: config.host, auth: config.auth, keys: store.keys.list().filter((k) => k.revoked_at === null).length });
+    const keys = store.keys.list();
+    const exposure = checkExposure({ host: config.host, auth: config.auth, keys: keys.length, liveKeys: keys.filter((k) => k.revoked_at === null).length });
     if (exposure) log.warn(exposure);
     const https = config.tls.cert !== undefined && config.tls.key !== undefined ? readTls(config.tls.cert, config.tls.key) : undefined;
     const registry = await createModelRegistry(config.models_dir, (e) => store.recordModel(modelRecord(e)));

@@ -15,6 +15,8 @@ export interface ChainVerdict {
   from: { seq: number; checkpoint: boolean };
   /** The last row verified, its seq and chain hash (hex): record it elsewhere to anchor the log. */
   head: { seq: number; hash: string };
+  /** The head recorded earlier, when given: found and equal, or pruned by retention before this check (not checked). */
+  anchor: 'checked' | 'pruned' | null;
   problem: ChainProblem | null;
 }
 
@@ -39,11 +41,13 @@ export function verifyChain(db: Database, anchor?: ChainAnchor): ChainVerdict {
   let expect = cp ? cp.seq + 1 : 1;
   let rows = 0;
   let anchorSeen = false;
+  let anchorState: ChainVerdict['anchor'] = null;
   const verdict = (problem: ChainProblem | null): ChainVerdict => ({
     intact: problem === null,
     rows,
     from: { seq: cp?.seq ?? 0, checkpoint: cp !== undefined },
     head: { seq: expect - 1, hash: prev.toString('hex') },
+    anchor: anchorState,
     problem,
   });
   for (const row of db.prepare('SELECT * FROM scored_requests ORDER BY seq').iterate() as IterableIterator<StoredRow>) {
@@ -51,7 +55,8 @@ export function verifyChain(db: Database, anchor?: ChainAnchor): ChainVerdict {
       return verdict({ kind: 'inserted', seq: row.seq, request_id: row.request_id, detail: `row ${row.seq} lies at or before the retention checkpoint at ${expect - 1}, where every row was removed` });
     }
     if (row.seq > expect) {
-      return verdict({ kind: 'removed', seq: expect, request_id: null, detail: `rows ${expect} to ${row.seq - 1} are missing: the chain goes from ${expect - 1} to ${row.seq}` });
+      const gap = row.seq - 1 === expect ? `row ${expect} is missing` : `rows ${expect} to ${row.seq - 1} are missing`;
+      return verdict({ kind: 'removed', seq: expect, request_id: null, detail: `${gap}: the chain goes from ${expect - 1} to ${row.seq}` });
     }
     if (!row.chain_hash) return verdict({ kind: 'unsealed', seq: row.seq, request_id: row.request_id, detail: `row ${row.seq} has no chain hash` });
     if (!chainHash(prev, row).equals(row.chain_hash)) {
@@ -69,6 +74,7 @@ export function verifyChain(db: Database, anchor?: ChainAnchor): ChainVerdict {
         return verdict({ kind: 'anchor', seq: row.seq, request_id: row.request_id, detail: `row ${row.seq} has chain hash ${prev.toString('hex')}, not the ${anchor.hash} recorded: the log was rewritten up to here` });
       }
       anchorSeen = true;
+      anchorState = 'checked';
     }
     expect++;
     rows++;
@@ -78,9 +84,12 @@ export function verifyChain(db: Database, anchor?: ChainAnchor): ChainVerdict {
       return verdict({ kind: 'removed', seq: expect, request_id: null, detail: `the log ends at row ${expect - 1}, but row ${anchor.seq} was recorded: rows from ${expect} on were removed` });
     }
     // The anchored row was pruned by retention: only a checkpoint at exactly that row can be compared.
-    if (cp && anchor.seq === cp.seq && cp.chain_hash.toString('hex') !== anchor.hash.toLowerCase()) {
-      return verdict({ kind: 'anchor', seq: anchor.seq, request_id: null, detail: `the checkpoint at row ${anchor.seq} has chain hash ${cp.chain_hash.toString('hex')}, not the ${anchor.hash} recorded` });
-    }
+    if (cp && anchor.seq === cp.seq) {
+      if (cp.chain_hash.toString('hex') !== anchor.hash.toLowerCase()) {
+        return verdict({ kind: 'anchor', seq: anchor.seq, request_id: null, detail: `the checkpoint at row ${anchor.seq} has chain hash ${cp.chain_hash.toString('hex')}, not the ${anchor.hash} recorded` });
+      }
+      anchorState = 'checked';
+    } else anchorState = 'pruned';
   }
   return verdict(null);
 }

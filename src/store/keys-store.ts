@@ -19,8 +19,11 @@ export interface KeysStore {
   revoke(id: string, at: number): boolean;
   /** Live keys whose public prefix is this (at most a few); the caller compares hashes. */
   findByPrefix(prefix: string): Array<KeyRecord & { hash: string }>;
-  /** Whether any live key exists: once one does, every /v1 route needs one. */
-  anyActive(): boolean;
+  /**
+   * Whether any key was ever made, revoked or not: from then on every /v1 route needs one.
+   * Revoking the last key locks the service rather than opening it.
+   */
+  anyKey(): boolean;
   touch(id: string, at: number): void;
 }
 
@@ -29,14 +32,14 @@ export function createKeysStore(db: Database): KeysStore {
   const all = db.prepare('SELECT id, prefix, role, label, created_at, last_used_at, revoked_at FROM api_keys ORDER BY created_at, id');
   const revoke = db.prepare('UPDATE api_keys SET revoked_at = ? WHERE id = ? AND revoked_at IS NULL');
   const byPrefix = db.prepare('SELECT id, prefix, hash, role, label, created_at, last_used_at, revoked_at FROM api_keys WHERE prefix = ? AND revoked_at IS NULL');
-  const active = db.prepare('SELECT 1 FROM api_keys WHERE revoked_at IS NULL LIMIT 1');
+  const any = db.prepare('SELECT 1 FROM api_keys LIMIT 1');
   const touch = db.prepare('UPDATE api_keys SET last_used_at = ? WHERE id = ?');
   return {
     create: (k) => void insert.run(k.id, k.prefix, k.hash, k.role, k.label, k.createdAt),
     list: () => all.all() as KeyRecord[],
     revoke: (id, at) => revoke.run(at, id).changes === 1,
     findByPrefix: (prefix) => byPrefix.all(prefix) as Array<KeyRecord & { hash: string }>,
-    anyActive: () => active.get() !== undefined,
+    anyKey: () => any.get() !== undefined,
     touch: (id, at) => void touch.run(at, id),
   };
 }

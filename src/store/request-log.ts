@@ -39,8 +39,8 @@ export interface WriterOptions {
   flushRows: number;
   /** Rows allowed to wait; beyond it append() refuses at once. */
   queueRows: number;
-  /** Newest rejected rows kept. */
-  rejectedRows: number;
+  /** Newest rejected rows kept; null for a tool that must leave the table as it is. */
+  rejectedRows: number | null;
 }
 
 /** The queue is full: the caller should answer 503 and ask the client to retry. */
@@ -126,8 +126,11 @@ export function createRequestLog(db: Database, options: WriterOptions): RequestL
   const stats: LogStats = { committedRows: 0, failedRows: 0, transactions: 0, failedTransactions: 0, waitingRows: 0, lastError: null };
   // Also at start: a service that restarts often would otherwise never reach the prune count.
   // Best effort: a locked database now must not stop the service from starting.
+  const prune = (): void => {
+    if (options.rejectedRows !== null) pruneRejected.run(options.rejectedRows);
+  };
   try {
-    pruneRejected.run(options.rejectedRows);
+    prune();
   } catch (err) {
     stats.lastError = (err as Error).message;
   }
@@ -238,7 +241,7 @@ export function createRequestLog(db: Database, options: WriterOptions): RequestL
         commitGroup([], refused);
         rejectedSincePrune += refused.length;
         if (rejectedSincePrune >= 1000) {
-          pruneRejected.run(options.rejectedRows);
+          prune();
           rejectedSincePrune = 0;
         }
       } catch (err) {

@@ -30,6 +30,8 @@ export interface LoggedRequest {
   in_domain: boolean;
   domain: { checks: DomainCheck[]; outside: OutsideFeature[] };
   latency_ms: number;
+  /** Label of the API key the request came with; null when keys were not in use. */
+  key_label: string | null;
 }
 
 export interface RequestPage {
@@ -54,6 +56,7 @@ interface Row {
   review: number;
   domain: string;
   latency_us: number;
+  key_label: string | null;
 }
 
 // Opaque to clients; the "r1" tag lets the format change later.
@@ -121,6 +124,7 @@ function toItem(r: Row, m: ReturnType<ReturnType<typeof createModelCache>>): Log
     in_domain: r.in_domain === 1,
     domain: JSON.parse(r.domain) as LoggedRequest['domain'],
     latency_ms: r.latency_us / 1000,
+    key_label: r.key_label ?? null,
   };
 }
 

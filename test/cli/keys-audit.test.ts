@@ -62,6 +62,28 @@ describe('plumbline keys', () => {
   });
 });
 
+describe('plumbline keys leaves the audit log alone', () => {
+  it('keeps every refused-request record, and still revokes a key when the chain head is broken', async () => {
+    const db = tmp.file('alone.db');
+    const store = openStore(db, { sync: 'normal', flushMs: 0, flushRows: 512, queueRows: 1000, rejectedRows: 1000 });
+    store.recordModel({ sha256: 'e'.repeat(64), name: 'm', version: '1', features: [{ name: 'a', unit: 'mm' }], classes: ['x', 'y'] });
+    await store.log.append([{ requestId: 'q', batchId: null, receivedAt: 1_790_000_000_000, model: { sha256: 'e'.repeat(64), name: 'm', version: '1' }, features: [1], tags: null, label: 'x', probabilities: [0.6, 0.4], margin: 0.2, inDomain: true, review: false, domain: { checks: [], outside: [] }, latencyUs: 10 }]);
+    for (let i = 0; i < 3; i++) store.log.appendRejected({ requestId: `r${i}`, receivedAt: 1_790_000_000_000, method: 'GET', route: '/v1/requests', modelName: null, status: 401, problemType: 'unauthorized', bodyBytes: null });
+    store.log.flush();
+    store.close();
+    const { id } = createKeyAction({ db, role: 'admin', label: 'ops' }, io());
+    listKeysAction({ db, json: false }, io());
+    const raw = new BetterSqlite3(db);
+    expect(raw.prepare('SELECT COUNT(*) AS n FROM rejected_requests').get()).toEqual({ n: 3 });
+    raw.prepare('UPDATE scored_requests SET chain_hash = NULL').run();
+    raw.close();
+    // the service would not open this log any more, but a leaked key can still be revoked
+    expect(() => openStore(db, { sync: 'normal', flushMs: 0, flushRows: 512, queueRows: 1000, rejectedRows: 1000 })).toThrow(/has no chain hash/);
+    revokeKeyAction({ db, id }, io());
+    expect(listKeysAction({ db, json: true }, io())[0]?.revoked_at).not.toBeNull();
+  });
+});
+
 describe('plumbline audit verify', () => {
   const db = tmp.file('audit.db');
 

@@ -83,6 +83,8 @@ describe('API keys and roles', () => {
     expect((await svc.app.inject({ method: 'POST', url: '/v1/models/iris/score', payload: scoreBody, headers: bearer(sameprefix) })).statusCode).toBe(401);
     const forbidden = await svc.app.inject({ url: '/v1/requests', headers: bearer(keys.scorer.key) });
     expect(forbidden.json().detail).toBe('a scorer key may score; this needs a reader or admin key');
+    const adminOnly = await svc.app.inject({ method: 'POST', url: '/v1/models/reload', headers: bearer(keys.reader.key) });
+    expect(adminOnly.json().detail).toBe('a reader key may read models, the audit log, reports, alerts and metrics; this needs an admin key');
   });
 
   it('refuses before reading the body: garbage without a key is a 401, not a 400', async () => {
@@ -99,9 +101,26 @@ describe('API keys and roles', () => {
     const res = await svc.app.inject({ method: 'POST', url: '/v1/models/iris/score', payload: { ...scoreBody, tags: { part: 'K-1' } }, headers: bearer(keys.scorer.key) });
     const rows = svc.rows('SELECT request_id, key_label FROM scored_requests ORDER BY seq DESC LIMIT 1');
     expect(rows).toEqual([{ request_id: res.json().request_id, key_label: 'line-3 app' }]);
+    const logged = (await svc.app.inject({ url: '/v1/requests?limit=1', headers: bearer(keys.reader.key) })).json();
+    expect(logged.items[0]).toMatchObject({ request_id: res.json().request_id, key_label: 'line-3 app' });
     const listed = svc.store.keys.list().find((k) => k.id === keys.scorer.id)!;
     expect(listed.last_used_at).toBeGreaterThan(Date.now() - 60_000);
     expect(JSON.stringify(svc.store.keys.list())).not.toContain(keys.scorer.key.slice(10));
+  });
+
+  it('locks, not opens, the service when the last key is revoked', async () => {
+    const svc2 = await startTestService();
+    try {
+      const only = addKey(svc2, 'admin', 'ops');
+      expect((await svc2.app.inject({ url: '/v1/models', headers: bearer(only.key) })).statusCode).toBe(200);
+      svc2.store.keys.revoke(only.id, Date.now());
+      expect((await svc2.app.inject({ url: '/v1/models', headers: bearer(only.key) })).statusCode).toBe(401);
+      // past the 1 s during which the service may still think keys are in use
+      await new Promise((r) => setTimeout(r, 1100));
+      expect((await svc2.app.inject('/v1/models')).statusCode).toBe(401);
+    } finally {
+      await svc2.close();
+    }
   });
 
   it('stops a revoked key at once', async () => {

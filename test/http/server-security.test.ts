@@ -23,11 +23,13 @@ describe('who may reach a service without keys', () => {
   });
 
   it('serves loopback without keys, with a warning; refuses any other address unless auth is off', () => {
-    expect(checkExposure({ host: '127.0.0.1', auth: 'keys', keys: 0 })).toMatch(/^no API keys exist/);
-    expect(() => checkExposure({ host: '0.0.0.0', auth: 'keys', keys: 0 })).toThrow(ExposureError);
-    expect(checkExposure({ host: '0.0.0.0', auth: 'keys', keys: 1 })).toBeNull();
-    expect(checkExposure({ host: '0.0.0.0', auth: 'off', keys: 0 })).toMatch(/^auth is off: anyone who can reach 0.0.0.0/);
-    expect(checkExposure({ host: '127.0.0.1', auth: 'off', keys: 0 })).toBeNull();
+    expect(checkExposure({ host: '127.0.0.1', auth: 'keys', keys: 0, liveKeys: 0 })).toMatch(/^no API keys exist/);
+    expect(() => checkExposure({ host: '0.0.0.0', auth: 'keys', keys: 0, liveKeys: 0 })).toThrow(ExposureError);
+    expect(checkExposure({ host: '0.0.0.0', auth: 'keys', keys: 1, liveKeys: 1 })).toBeNull();
+    expect(checkExposure({ host: '0.0.0.0', auth: 'off', keys: 0, liveKeys: 0 })).toMatch(/^auth is off: anyone who can reach 0.0.0.0/);
+    expect(checkExposure({ host: '127.0.0.1', auth: 'off', keys: 0, liveKeys: 0 })).toBeNull();
+    // every key revoked: nothing is let in, and the start says so
+    expect(checkExposure({ host: '0.0.0.0', auth: 'keys', keys: 2, liveKeys: 0 })).toMatch(/^every API key is revoked, so every \/v1 request is refused with 401/);
   });
 
   it('does not start on 0.0.0.0 without keys, and logs the warning on loopback', async () => {

@@ -88,6 +88,11 @@ describe('hash chain of the audit log', () => {
     expect(store.verifyChain().problem).toMatchObject({ kind: 'removed', seq: 9, detail: 'rows 9 to 10 are missing: the chain goes from 8 to 11' });
   });
 
+  it('names a single removed row as such', () => {
+    tamper((db) => db.prepare('DELETE FROM scored_requests WHERE seq = 14').run());
+    expect(store.verifyChain().problem).toMatchObject({ kind: 'removed', seq: 14, detail: 'row 14 is missing: the chain goes from 13 to 15' });
+  });
+
   it('names a row that was put in, the rows after it renumbered to make room', () => {
     tamper((db) => {
       db.prepare('UPDATE scored_requests SET seq = -seq WHERE seq >= 5').run();
@@ -157,7 +162,10 @@ describe('retention', () => {
       { seq: 12, rows_removed: 2 },
     ]);
     db.close();
-    expect(store.verifyChain(anchor)).toMatchObject({ intact: true, rows: 8, from: { seq: 12, checkpoint: true }, head: anchor });
+    expect(store.verifyChain(anchor)).toMatchObject({ intact: true, rows: 8, from: { seq: 12, checkpoint: true }, head: anchor, anchor: 'checked' });
+    // a head recorded at a row retention has removed cannot be checked, and the verdict says so
+    expect(store.verifyChain({ seq: 3, hash: 'ab'.repeat(32) })).toMatchObject({ intact: true, anchor: 'pruned' });
+    expect(store.verifyChain({ seq: 12, hash: 'ab'.repeat(32) }).problem).toMatchObject({ kind: 'anchor', seq: 12 });
     // new rows chain on from the newest row as before
     await store.log.append([row(T0 + 40 * DAY)]);
     expect(store.verifyChain()).toMatchObject({ intact: true, rows: 9 });

@@ -30,12 +30,14 @@ export function auditVerifyAction(ctx: { db: string; head?: ChainAnchor; json: b
     io.stdout.write(`${JSON.stringify(v, null, 2)}\n`);
   } else if (v.intact) {
     const from = v.from.checkpoint ? `the retention checkpoint after row ${v.from.seq}` : 'the first row';
-    io.stdout.write(`intact: ${v.rows} rows chain from ${from} to row ${v.head.seq}${ctx.head ? `, through the recorded head ${ctx.head.seq}` : ''}\n`);
+    const through = v.anchor === 'checked' ? `, through the recorded head ${ctx.head?.seq}` : '';
+    io.stdout.write(`intact: ${v.rows} row${v.rows === 1 ? ' chains' : 's chain'} from ${from} to row ${v.head.seq}${through}\n`);
+    if (v.anchor === 'pruned') io.stdout.write(`the recorded head ${ctx.head?.seq} lies before the retention checkpoint at ${v.from.seq}: retention removed it, so it was not checked\n`);
     io.stdout.write(`head ${v.head.seq}:${v.head.hash}\n`);
   } else {
     const p = v.problem!;
     io.stdout.write(`NOT intact: ${p.kind} at row ${p.seq}${p.request_id ? ` (request ${p.request_id})` : ''}\n${p.detail}\n`);
-    io.stdout.write(`${v.rows} rows before it verify; the chain up to them ends at ${v.head.seq}:${v.head.hash}\n`);
+    io.stdout.write(`${v.rows} row${v.rows === 1 ? '' : 's'} before it verif${v.rows === 1 ? 'ies' : 'y'}; the chain up to ${v.rows === 1 ? 'it' : 'them'} ends at ${v.head.seq}:${v.head.hash}\n`);
   }
   return v;
 }

@@ -64,7 +64,7 @@ async function discard(outputs: Output[]): Promise<void> {
 export async function driftAction(ctx: DriftContext, io: CliIo): Promise<DriftReport> {
   if (!(ctx.from.getTime() < ctx.to.getTime())) throw new UsageError(`--from ${ctx.from.toISOString()} must be before --to ${ctx.to.toISOString()}`);
   const outputs = await openOutputs(ctx);
-  const store = openStore(ctx.db, { sync: 'normal', flushMs: 0, flushRows: 512, queueRows: 1000, rejectedRows: 1000 });
+  const store = openStore(ctx.db, { sync: 'normal', flushMs: 0, flushRows: 512, queueRows: 1000, rejectedRows: null });
   let report: DriftReport;
   try {
     const reports = createReportService(store, { ...REPORT_DEFAULTS, minRows: ctx.minRows, sampleCap: ctx.sampleCap, worker: false });

@@ -1,20 +1,21 @@
 import { existsSync } from 'node:fs';
 import { generateKey } from '../../auth/keys.js';
 import { uuidv7 } from '../../ids.js';
-import type { KeyRecord, Role } from '../../store/keys-store.js';
-import { openStore } from '../../store/store.js';
+import { openDatabase } from '../../store/database.js';
+import { type KeyRecord, type KeysStore, type Role, createKeysStore } from '../../store/keys-store.js';
 import { type CliIo, UsageError } from '../io.js';
 
-// The CLI writes no scored rows; the writer's options only need to be valid.
-const STORE_OPTIONS = { sync: 'full' as const, flushMs: 0, flushRows: 1, queueRows: 1, rejectedRows: 0 };
-
-function withStore<T>(db: string, create: boolean, fn: (store: ReturnType<typeof openStore>) => T): T {
+/**
+ * The keys table alone, not the audit log: keys can be made and revoked whatever state the log
+ * is in (a key must be revocable even when the chain is broken), and nothing else is touched.
+ */
+function withKeys<T>(db: string, create: boolean, fn: (keys: KeysStore) => T): T {
   if (!create && !existsSync(db)) throw new UsageError(`--db ${db}: no such file`);
-  const store = openStore(db, STORE_OPTIONS);
+  const handle = openDatabase(db, { sync: 'full' });
   try {
-    return fn(store);
+    return fn(createKeysStore(handle));
   } finally {
-    store.close();
+    handle.close();
   }
 }
 
@@ -28,7 +29,7 @@ export function createKeyAction(ctx: { db: string; role: Role; label: string; no
   if (label === '' || label.length > 128 || /\p{Cc}/u.test(label)) throw new UsageError('--label must be 1 to 128 characters without control characters');
   const { key, hash, prefix } = generateKey();
   const id = uuidv7();
-  withStore(ctx.db, true, (store) => store.keys.create({ id, prefix, hash, role: ctx.role, label, createdAt: ctx.now ?? Date.now() }));
+  withKeys(ctx.db, true, (keys) => keys.create({ id, prefix, hash, role: ctx.role, label, createdAt: ctx.now ?? Date.now() }));
   io.stderr.write(`created ${ctx.role} key ${id} (${JSON.stringify(label)}) in ${ctx.db}\nthe key is printed once, below; store it now, it cannot be shown again\n`);
   io.stdout.write(`${key}\n`);
   return { id, key };
@@ -38,7 +39,7 @@ const time = (ms: number | null): string => (ms === null ? '-' : new Date(ms).to
 
 /** `plumbline keys list`: every key with its role and label, when made and last used; never the key. */
 export function listKeysAction(ctx: { db: string; json: boolean }, io: CliIo): KeyRecord[] {
-  const keys = withStore(ctx.db, false, (store) => store.keys.list());
+  const keys = withKeys(ctx.db, false, (k) => k.list());
   if (ctx.json) {
     io.stdout.write(`${JSON.stringify(keys.map((k) => ({ ...k, created_at: time(k.created_at), last_used_at: k.last_used_at === null ? null : time(k.last_used_at), revoked_at: k.revoked_at === null ? null : time(k.revoked_at) })), null, 2)}\n`);
     return keys;
@@ -52,11 +53,11 @@ export function listKeysAction(ctx: { db: string; json: boolean }, io: CliIo): K
 
 /** `plumbline keys revoke ID`: the key stops working at once (within the service's next request). */
 export function revokeKeyAction(ctx: { db: string; id: string; now?: number }, io: CliIo): void {
-  const done = withStore(ctx.db, false, (store) => {
-    const k = store.keys.list().find((x) => x.id === ctx.id);
+  const done = withKeys(ctx.db, false, (keys) => {
+    const k = keys.list().find((x) => x.id === ctx.id);
     if (!k) throw new UsageError(`no key has the id ${ctx.id} (plumbline keys list shows them)`);
     if (k.revoked_at !== null) throw new UsageError(`key ${ctx.id} was revoked already, at ${time(k.revoked_at)}`);
-    store.keys.revoke(ctx.id, ctx.now ?? Date.now());
+    keys.revoke(ctx.id, ctx.now ?? Date.now());
     return k;
   });
   io.stdout.write(`revoked ${done.role} key ${done.id} (${JSON.stringify(done.label)})\n`);

@@ -30,7 +30,7 @@ export interface AuthOptions {
   now?: () => number;
 }
 
-/** Whether keys are in use is read again at most this often, so that a new key takes effect within it. */
+/** Whether keys are in use is read again at most this often, so that a first key takes effect within it. */
 const ACTIVE_TTL_MS = 1000;
 /** last_used_at is written at most this often per key. */
 const TOUCH_EVERY_MS = 60_000;
@@ -44,7 +44,7 @@ function allowed(role: Role, access: Role): boolean {
 }
 
 /**
- * API keys (Authorization: Bearer). Once one live key exists in the database, every route but
+ * API keys (Authorization: Bearer). Once a key exists in the database (even revoked), every route but
  * the public ones needs a key whose role the route accepts: 401 without a valid key, 403 with
  * a key of the wrong role. Runs on onRequest, before the body is read.
  */
@@ -54,7 +54,7 @@ async function auth(app: FastifyInstance, options: AuthOptions): Promise<void> {
   const enforced = (): boolean => {
     if (options.mode === 'off') return false;
     const t = now();
-    if (t - active.at > ACTIVE_TTL_MS) active = { value: options.keys.anyActive(), at: t };
+    if (t - active.at > ACTIVE_TTL_MS) active = { value: options.keys.anyKey(), at: t };
     return active.value;
   };
   const touched = new Map<string, number>();
@@ -103,7 +103,8 @@ async function auth(app: FastifyInstance, options: AuthOptions): Promise<void> {
       });
     }
     if (!allowed(key.role, access)) {
-      throw new ProblemError('forbidden', `a ${key.role} key may ${VERBS[key.role]}; this needs a ${access} or admin key`, [{ header: 'authorization', detail: `holds a ${key.role} key` }]);
+      const needs = access === 'admin' ? 'an admin key' : `a ${access} or admin key`;
+      throw new ProblemError('forbidden', `a ${key.role} key may ${VERBS[key.role]}; this needs ${needs}`, [{ header: 'authorization', detail: `holds a ${key.role} key` }]);
     }
     req.apiKey = key;
     const t = now();

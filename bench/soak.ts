@@ -1,0 +1,109 @@
+// Soak: the service in a process of its own, scoring at a steady rate for a long time (10 minutes
+// by default), its memory sampled from /metrics. Reports how memory and latency moved between the
+// end of the warm-up and the end. Loopback only.
+//   npx tsx bench/soak.ts [--minutes 10] [--rate 400] [--connections 8]
+import { type ChildProcess, spawn } from 'node:child_process';
+import { once } from 'node:events';
+import { mkdtempSync, rmSync, statSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { fileURLToPath } from 'node:url';
+import autocannon from 'autocannon';
+
+const arg = (name: string, fallback: number): number => {
+  const i = process.argv.indexOf(`--${name}`);
+  return i > 0 ? Number(process.argv[i + 1]) : fallback;
+};
+const MINUTES = arg('minutes', 10);
+const RATE = arg('rate', 400);
+const CONNECTIONS = arg('connections', 8);
+const WARMUP_S = Math.min(60, (MINUTES * 60) / 5);
+const SAMPLE_S = 10;
+const CHILD = fileURLToPath(new URL('../test/fixtures/serve-child.ts', import.meta.url));
+const SHOT = [232.1, 53.8, 923, 478, 3.48, 14.18, 102, 5.4, 23.7, 47.93];
+
+interface Sample {
+  t: number;
+  rssMb: number;
+  heapMb: number;
+  scored: number;
+}
+
+async function start(db: string): Promise<{ child: ChildProcess; url: string }> {
+  const child = spawn(process.execPath, ['--import', 'tsx', CHILD, db, JSON.stringify({ limits: { requests_per_minute: 0 } })], { stdio: ['ignore', 'pipe', 'inherit'] });
+  let out = '';
+  for await (const chunk of child.stdout as AsyncIterable<Buffer>) {
+    out += chunk.toString();
+    const line = out.split('\n').find((l) => l.startsWith('{'));
+    if (line) return { child, url: (JSON.parse(line) as { url: string }).url };
+  }
+  throw new Error('the service exited before it listened');
+}
+
+const metric = (text: string, name: string): number => {
+  let sum = 0;
+  for (const line of text.split('\n')) if (line.startsWith(name) && (line[name.length] === ' ' || line[name.length] === '{')) sum += Number(line.slice(line.lastIndexOf(' ') + 1));
+  return sum;
+};
+
+async function sample(url: string, t0: number): Promise<Sample> {
+  const text = await (await fetch(`${url}/metrics`)).text();
+  return {
+    t: (Date.now() - t0) / 1000,
+    rssMb: metric(text, 'plumbline_process_resident_memory_bytes') / 2 ** 20,
+    heapMb: metric(text, 'plumbline_nodejs_heap_size_used_bytes') / 2 ** 20,
+    scored: metric(text, 'plumbline_scored_total'),
+  };
+}
+
+/** Least-squares slope of y on x. */
+function slope(xs: number[], ys: number[]): number {
+  const n = xs.length;
+  const mx = xs.reduce((a, b) => a + b, 0) / n;
+  const my = ys.reduce((a, b) => a + b, 0) / n;
+  let sxy = 0;
+  let sxx = 0;
+  for (let i = 0; i < n; i++) {
+    sxy += ((xs[i] as number) - mx) * ((ys[i] as number) - my);
+    sxx += ((xs[i] as number) - mx) ** 2;
+  }
+  return sxx === 0 ? 0 : sxy / sxx;
+}
+
+const dir = mkdtempSync(join(tmpdir(), 'plumbline-soak-'));
+const db = join(dir, 'soak.db');
+const { child, url } = await start(db);
+const t0 = Date.now();
+const samples: Sample[] = [];
+const timer = setInterval(() => void sample(url, t0).then((s) => samples.push(s), () => undefined), SAMPLE_S * 1000);
+samples.push(await sample(url, t0));
+console.log(`soak: ${MINUTES} min at ${RATE} requests/s over ${CONNECTIONS} connections against ${url} (warm-up ${WARMUP_S} s)`);
+
+const result = await autocannon({
+  url: `${url}/v1/models/moulding-quality/score`,
+  method: 'POST',
+  headers: { 'content-type': 'application/json' },
+  body: JSON.stringify({ features: SHOT, tags: { line: '3', cell: 'moulding-3' } }),
+  connections: CONNECTIONS,
+  overallRate: RATE,
+  duration: MINUTES * 60,
+});
+clearInterval(timer);
+samples.push(await sample(url, t0));
+child.kill('SIGTERM');
+await once(child, 'exit');
+const dbMb = (statSync(db).size + (statSync(`${db}-wal`, { throwIfNoEntry: false })?.size ?? 0)) / 2 ** 20;
+rmSync(dir, { recursive: true, force: true });
+
+const steady = samples.filter((s) => s.t >= WARMUP_S);
+const first = steady[0] ?? samples[0]!;
+const last = samples[samples.length - 1]!;
+const rssSlope = slope(steady.map((s) => s.t / 3600), steady.map((s) => s.rssMb));
+const heapSlope = slope(steady.map((s) => s.t / 3600), steady.map((s) => s.heapMb));
+const non2xx = result.non2xx + result.errors + result.timeouts;
+console.log(`requests: ${result.requests.total} sent, ${result['2xx']} answered 200, ${non2xx} not (errors ${result.errors}, timeouts ${result.timeouts}); ${last.scored} scored and logged`);
+console.log(`rate: ${result.requests.average.toFixed(0)} requests/s on average; latency p50 ${result.latency.p50} ms, p99 ${result.latency.p99} ms, max ${result.latency.max} ms`);
+console.log(`memory after warm-up (t=${first.t.toFixed(0)} s): RSS ${first.rssMb.toFixed(1)} MB, heap ${first.heapMb.toFixed(1)} MB`);
+console.log(`memory at the end   (t=${last.t.toFixed(0)} s): RSS ${last.rssMb.toFixed(1)} MB, heap ${last.heapMb.toFixed(1)} MB`);
+console.log(`growth, least squares over ${steady.length} samples: RSS ${rssSlope.toFixed(1)} MB/h, heap ${heapSlope.toFixed(1)} MB/h; peak RSS ${Math.max(...samples.map((s) => s.rssMb)).toFixed(1)} MB`);
+console.log(`database after the run: ${dbMb.toFixed(1)} MB (${((dbMb * 2 ** 20) / Math.max(1, last.scored)).toFixed(0)} bytes a row)`);
