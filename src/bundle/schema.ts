@@ -136,11 +136,24 @@ export const domainSchema = z.strictObject({
 });
 
 export const trainingSchema = z.strictObject({
-  source: z.strictObject({
-    kind: z.enum(['csv']),
-    data_sha256: sha256,
-    label_column: z.string(),
-  }),
+  source: z.discriminatedUnion('kind', [
+    // Trained here, on a CSV file.
+    z.strictObject({
+      kind: z.literal('csv'),
+      data_sha256: sha256,
+      label_column: z.string(),
+    }),
+    // Trained elsewhere and imported from ONNX; the CSV file gave the reference and the detectors.
+    z.strictObject({
+      kind: z.literal('onnx'),
+      onnx_sha256: sha256,
+      onnx_file: z.string().max(256),
+      producer: z.string().max(256),
+      opset: z.number().int().min(1),
+      data_sha256: sha256,
+      label_column: z.string(),
+    }),
+  ]),
   rows: z.strictObject({ total: count, train: count, validation: count }),
   seed: count,
   options: z.record(z.string(), z.unknown()),

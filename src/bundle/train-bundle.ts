@@ -1,11 +1,11 @@
 import { type ActivationName, DEFAULT_ALPHA } from '../core/activations.js';
 import type { DetectorName } from '../core/domain/detectors.js';
-import { roundToFloat32 } from '../core/network.js';
+import { type Network, roundToFloat32 } from '../core/network.js';
 import { createRng, deriveSeed } from '../core/rng.js';
 import { stratifiedSplit, take, takeRows } from '../core/split.js';
-import { fitStandardizer, standardize } from '../core/standardize.js';
+import { type Standardizer, fitStandardizer, standardize } from '../core/standardize.js';
 import { type EpochReport, type TrainOptions, type TrainResult, classWeightsFor, trainClassifier } from '../core/train.js';
-import { DOMAIN_DEFAULTS, fitDomain } from './domain-fit.js';
+import { DOMAIN_DEFAULTS, type DomainFitInput, fitDomain } from './domain-fit.js';
 import { ECE_BINS, type Evaluation, evaluateHeldOut } from './evaluate.js';
 import { encodeNetwork } from './network-codec.js';
 import { fitReference } from './reference.js';
@@ -53,6 +53,58 @@ export function isoSeconds(date: Date): string {
   return date.toISOString().replace(/\.\d{3}Z$/, 'Z');
 }
 
+export interface ServingInput {
+  network: Network;
+  preprocess: Standardizer;
+  temperature: number;
+  /** Every row of the data, for the reference statistics. */
+  table: LabelledTable;
+  /** The rows the detectors are fitted on (the training split). */
+  domainTrain: { x: Float64Array; labels: Int32Array; rows: number };
+  /** In-domain rows the flag is calibrated on. */
+  heldOut: DomainFitInput['heldOut'];
+  /** Predicted classes and margins on the evaluated rows, the reference for drift reports. */
+  validation: { predicted: Int32Array; margins: Float64Array };
+  options: Pick<BundleOptions, 'detectors' | 'inDomainRate' | 'tolerance' | 'reviewMargin' | 'seed'>;
+}
+
+/**
+ * The parts of a bundle that serve and watch a network, whoever trained it: the domain flag
+ * (envelope and detectors, calibrated on held-out rows) and the reference for drift reports.
+ */
+export function servingSections(input: ServingInput): Pick<BundleFile, 'domain' | 'reference'> {
+  const { network, preprocess, table, options } = input;
+  return {
+    domain: fitDomain(
+      {
+        network,
+        preprocess,
+        temperature: input.temperature,
+        classes: table.classes.length,
+        train: input.domainTrain,
+        heldOut: input.heldOut,
+        detectors: options.detectors,
+        targetRate: options.inDomainRate,
+        tolerance: options.tolerance,
+        reviewMargin: options.reviewMargin,
+        probeRows: DOMAIN_DEFAULTS.probeRows,
+      },
+      createRng(deriveSeed(options.seed, 3)),
+    ),
+    reference: fitReference(
+      {
+        x: table.x,
+        rows: table.rows,
+        featureNames: table.features.map((f) => f.name),
+        labels: table.labels,
+        classes: table.classes,
+        validation: input.validation,
+      },
+      createRng(deriveSeed(options.seed, 2)),
+    ),
+  };
+}
+
 /**
  * Trains a network on the table and seals a bundle: stratified split, standardisation fitted on
  * the training rows, training, rounding to float32 (what is served is what was measured), then
@@ -90,37 +142,20 @@ export function trainBundle(table: LabelledTable, options: BundleOptions, onEpoc
     preprocess,
     network: encodeNetwork(network),
     calibration: { temperature: evaluation.temperature },
-    domain: fitDomain(
-      {
-        network,
-        preprocess,
-        temperature: evaluation.temperature,
-        classes: K,
-        train: { x: trainX, labels: trainY, rows: trainY.length },
-        heldOut: options.calibrateOn
-          ? { ...options.calibrateOn, source: 'calibrate-on' }
-          : valY.length > 0
-            ? { x: valX, rows: valY.length, source: 'validation' }
-            : { x: trainX, rows: trainY.length, source: 'training' },
-        detectors: options.detectors,
-        targetRate: options.inDomainRate,
-        tolerance: options.tolerance,
-        reviewMargin: options.reviewMargin,
-        probeRows: DOMAIN_DEFAULTS.probeRows,
-      },
-      createRng(deriveSeed(options.seed, 3)),
-    ),
-    reference: fitReference(
-      {
-        x,
-        rows,
-        featureNames: features.map((f) => f.name),
-        labels,
-        classes,
-        validation: { predicted: evaluation.predicted, margins: evaluation.margins },
-      },
-      createRng(deriveSeed(options.seed, 2)),
-    ),
+    ...servingSections({
+      network,
+      preprocess,
+      temperature: evaluation.temperature,
+      table,
+      domainTrain: { x: trainX, labels: trainY, rows: trainY.length },
+      heldOut: options.calibrateOn
+        ? { ...options.calibrateOn, source: 'calibrate-on' }
+        : valY.length > 0
+          ? { x: valX, rows: valY.length, source: 'validation' }
+          : { x: trainX, rows: trainY.length, source: 'training' },
+      validation: { predicted: evaluation.predicted, margins: evaluation.margins },
+      options,
+    }),
     training: {
       source: { kind: 'csv', data_sha256: options.dataSha256, label_column: options.labelColumn },
       rows: { total: rows, train: split.train.length, validation: split.validation.length },

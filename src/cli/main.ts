@@ -1,6 +1,7 @@
 #!/usr/bin/env node
 import { Command, CommanderError } from 'commander';
 import { ExposureError } from '../auth/exposure.js';
+import { OnnxError } from '../io/onnx/index.js';
 import { RegistryError } from '../bundle/registry.js';
 import { BundleError } from '../bundle/verify.js';
 import { ConfigError } from '../config.js';
@@ -9,6 +10,7 @@ import { StoreIntegrityError } from '../store/store.js';
 import { DataFileError } from '../io/csv.js';
 import { DataFileErrors } from '../io/feature-table.js';
 import { registerAudit } from './commands/audit.js';
+import { registerBundle } from './commands/bundle.js';
 import { registerDemo } from './commands/demo.js';
 import { registerKeys } from './commands/keys.js';
 import { registerDrift } from './commands/drift.js';
@@ -25,6 +27,7 @@ export function buildProgram(): Command {
     .exitOverride();
   registerServe(program);
   registerTrain(program);
+  registerBundle(program);
   registerScore(program);
   registerDrift(program);
   registerDemo(program);
@@ -41,7 +44,7 @@ function report(err: unknown): number {
     process.stderr.write(`plumbline: ${err.message}\n`);
     return err.exitCode;
   }
-  if (err instanceof BundleError || err instanceof DataFileError || err instanceof DataFileErrors || err instanceof ConfigError || err instanceof RegistryError || err instanceof MigrationError || err instanceof ExposureError || err instanceof StoreIntegrityError) {
+  if (err instanceof BundleError || err instanceof DataFileError || err instanceof DataFileErrors || err instanceof ConfigError || err instanceof RegistryError || err instanceof MigrationError || err instanceof ExposureError || err instanceof StoreIntegrityError || err instanceof OnnxError) {
     process.stderr.write(`plumbline: ${err.message}\n`);
     return 2;
   }

@@ -143,10 +143,28 @@ export async function readFeatureCsv(path: string, features: string[]): Promise<
  * Class names in a stable order: numerically when every label is a number, else by code unit.
  * Returns the classes and each row's index into them.
  */
-export function indexLabels(labels: string[]): { classes: string[]; indices: Int32Array } {
+export function indexLabels(labels: string[], order?: readonly string[]): { classes: string[]; indices: Int32Array } {
+  if (order) {
+    // The classes in a given order (an imported network's output order): every label must be one.
+    const at = new Map(order.map((c, i) => [c, i]));
+    const unknown = [...new Set(labels.filter((l) => !at.has(l)))];
+    if (unknown.length > 0) throw new LabelOrderError(unknown, order);
+    return { classes: [...order], indices: Int32Array.from(labels, (l) => at.get(l) as number) };
+  }
   const distinct = [...new Set(labels)];
   const numeric = distinct.every((l) => typeof parseDecimal(l) === 'number');
   distinct.sort(numeric ? (a, b) => Number(a) - Number(b) : (a, b) => (a < b ? -1 : a > b ? 1 : 0));
   const at = new Map(distinct.map((c, i) => [c, i]));
   return { classes: distinct, indices: Int32Array.from(labels, (l) => at.get(l) as number) };
+}
+
+/** Labels in the data that a given class list does not name. */
+export class LabelOrderError extends Error {
+  constructor(
+    readonly unknown: string[],
+    readonly order: readonly string[],
+  ) {
+    super(`the data holds label${unknown.length === 1 ? '' : 's'} ${unknown.slice(0, 5).map((u) => JSON.stringify(u)).join(', ')}${unknown.length > 5 ? ' ...' : ''}, not among the classes ${order.join(', ')}`);
+    this.name = 'LabelOrderError';
+  }
 }

@@ -1,10 +1,13 @@
+import { readFileSync } from 'node:fs';
 import { Readable } from 'node:stream';
+import { fileURLToPath } from 'node:url';
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
 import { canonicalJson, sha256Hex } from '../../src/bundle/canonical-json.js';
 import { BundleError, parseBundle } from '../../src/bundle/verify.js';
 import { DataFileError, openCsv } from '../../src/io/csv.js';
 import { DataFileErrors, parseFeatures, planColumns } from '../../src/io/feature-table.js';
+import { OnnxError, importOnnx } from '../../src/io/onnx/index.js';
 import { iris } from '../helpers/service.js';
 
 // Property tests (fast-check): the readers of outside files never crash on garbage; they either
@@ -114,6 +117,37 @@ describe('CSV reader on garbage', () => {
     await fc.assert(
       fc.asyncProperty(fc.array(piece, { maxLength: 200 }), async (parts) => clearOrFineAsync(() => read(Buffer.from(parts.join(''), 'utf8')), [DataFileError, DataFileErrors], 'garbage.csv')),
       { numRuns: RUNS },
+    );
+  });
+});
+
+describe('ONNX reader on garbage', () => {
+  const good = readFileSync(fileURLToPath(new URL('../fixtures/onnx/digits-mix-opset17.onnx', import.meta.url)));
+
+  it('random bytes give an OnnxError', () => {
+    fc.assert(
+      fc.property(fc.uint8Array({ maxLength: 4096 }), (bytes) => clearOrFine(() => importOnnx(bytes, 'garbage.onnx'), [OnnxError], 'garbage.onnx')),
+      { numRuns: RUNS },
+    );
+  });
+
+  it('a real model with bytes changed gives an OnnxError or still imports', () => {
+    fc.assert(
+      fc.property(fc.array(fc.tuple(fc.nat({ max: good.length - 1 }), fc.integer({ min: 1, max: 255 })), { minLength: 1, maxLength: 8 }), (edits) => {
+        const bytes = Buffer.from(good);
+        for (const [at, delta] of edits) bytes[at] = ((bytes[at] as number) + delta) % 256;
+        clearOrFine(() => importOnnx(bytes, 'edited.onnx'), [OnnxError], 'edited.onnx');
+      }),
+      { numRuns: RUNS },
+    );
+  });
+
+  it('a real model cut short gives an OnnxError', () => {
+    fc.assert(
+      fc.property(fc.nat({ max: good.length - 1 }), (n) => {
+        expect(() => importOnnx(good.subarray(0, n), 'cut.onnx')).toThrow(OnnxError);
+      }),
+      { numRuns: 100 },
     );
   });
 });

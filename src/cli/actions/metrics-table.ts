@@ -9,12 +9,20 @@ export function formatMetrics(b: BundleFile): string {
   const m = t.metrics.validation;
   const lines: string[] = [];
   lines.push(`model ${b.name} version ${b.version}: ${b.features.length} features, ${b.classes.length} classes, layers ${[b.network.layers[0]?.inputs, ...b.network.layers.map((l) => l.outputs)].join('-')}`);
-  lines.push(`rows ${t.rows.total} (train ${t.rows.train}, validation ${t.rows.validation}); epochs ${t.epochs_run}${t.stopped_early ? ' (stopped early)' : ''}, best ${t.best_epoch}`);
+  const src = t.source;
+  const imported = src.kind === 'onnx';
+  lines.push(
+    src.kind === 'onnx'
+      ? `imported from ${src.onnx_file} (${src.producer}, operator set ${src.opset}); rows ${t.rows.train} of --data${t.rows.validation > 0 ? `, ${t.rows.validation} held out (--calibrate-on)` : ''}`
+      : `rows ${t.rows.total} (train ${t.rows.train}, validation ${t.rows.validation}); epochs ${t.epochs_run}${t.stopped_early ? ' (stopped early)' : ''}, best ${t.best_epoch}`,
+  );
   if (!m) {
     lines.push('no validation rows: no held-out metrics');
     return lines.join('\n');
   }
-  lines.push(`validation accuracy ${m.accuracy.toFixed(4)}, macro-F1 ${m.macro_f1.toFixed(4)}`);
+  // An imported network without --calibrate-on is measured on --data, which it may have been trained on.
+  const on = imported && t.rows.validation === 0 ? 'accuracy on --data (not held out: it may be the training data)' : 'validation accuracy';
+  lines.push(`${on} ${m.accuracy.toFixed(4)}, macro-F1 ${m.macro_f1.toFixed(4)}`);
   const width = Math.max(5, ...b.classes.map((c, k) => `${k} ${c}`.length)) + 2;
   lines.push(`${pad('class', width)}${lpad('precision', 10)}${lpad('recall', 8)}${lpad('f1', 8)}${lpad('support', 9)}`);
   for (const c of b.classes) {
