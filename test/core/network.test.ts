@@ -1,5 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { type Network, checkNetworkShapes, createForwardPass, forward, roundToFloat32 } from '../../src/core/network.js';
+import { type Network, checkNetworkShapes, createForwardPass, denseInto, forward, roundToFloat32 } from '../../src/core/network.js';
 
 // A 2-3-2 network small enough to work by hand.
 const net: Network = {
@@ -60,5 +60,28 @@ describe('forward pass', () => {
     const r = roundToFloat32({ layers: [{ ...net.layers[0]!, weights: Float64Array.of(0.1, 0.2, 0.3, 0.4, 0.5, 0.6) }] });
     expect(r.layers[0]!.weights[0]).toBe(Math.fround(0.1));
     expect(r.layers[0]!.weights[0]).not.toBe(0.1);
+  });
+});
+
+describe('the blocked dense kernel', () => {
+  it('gives the same bits as one sum at a time, b[o] + x[r,0] W[o,0] + x[r,1] W[o,1] + ..., for every shape and remainder', () => {
+    let seed = 12345;
+    const rand = (): number => {
+      seed = (seed * 1103515245 + 12345) % 2147483648;
+      return seed / 2147483648 - 0.5;
+    };
+    for (const [rows, n, m] of [[1, 1, 1], [3, 7, 5], [4, 4, 4], [9, 13, 11], [17, 32, 6], [64, 10, 32]] as const) {
+      const layer = { inputs: n, outputs: m, activation: 'identity' as const, alpha: 0, weights: Float64Array.from({ length: n * m }, rand), bias: Float64Array.from({ length: m }, rand) };
+      const x = Float64Array.from({ length: rows * n }, () => rand() * 1e3);
+      const out = new Float64Array(rows * m);
+      denseInto(layer, x, rows, out);
+      for (let r = 0; r < rows; r++) {
+        for (let o = 0; o < m; o++) {
+          let s = layer.bias[o] as number;
+          for (let i = 0; i < n; i++) s += (x[r * n + i] as number) * (layer.weights[o * n + i] as number);
+          expect(Object.is(out[r * m + o], s), `${rows}x${n}x${m} at ${r},${o}`).toBe(true);
+        }
+      }
+    }
   });
 });
