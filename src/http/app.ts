@@ -29,6 +29,7 @@ export interface AppOptions {
 }
 
 const PATH_MODEL = /^\/v1\/models\/([^/?]+)/;
+const SCORING_ROUTE = /\/score(-batch)?$/;
 
 type OpenApiLike = ReturnType<typeof jsonSchemaTransformObject> & { components?: { schemas?: Record<string, unknown> } };
 
@@ -78,7 +79,12 @@ export async function buildApp(svc: Services, options: AppOptions = {}): Promise
     return503OnClosing: false,
   }).withTypeProvider<ZodTypeProvider>();
   app.setValidatorCompiler(zodValidatorCompiler);
-  app.setSerializerCompiler(serializerCompiler);
+  // Scoring answers are built by the scorer to their response schema (test/http/scoring.test.ts
+  // checks them against it); they go out with JSON.stringify rather than a zod encode of every
+  // answer, the hottest path of the service. Every other answer is encoded through its schema.
+  app.setSerializerCompiler((route) =>
+    SCORING_ROUTE.test(route.url) && String(route.httpStatus) === '200' ? (data: unknown) => JSON.stringify(data) : serializerCompiler(route as Parameters<typeof serializerCompiler>[0]),
+  );
   // JSON only: fastify would otherwise hand a text/plain body to the schema as a string. Our own
   // JSON parser keeps the reason a body does not parse, which fastify's drops.
   app.removeContentTypeParser(['text/plain', 'application/json']);

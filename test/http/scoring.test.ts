@@ -1,6 +1,7 @@
 import { afterEach, beforeEach, describe, expect, it } from 'vitest';
 import { fromFloat64Blob } from '../../src/store/float64-blob.js';
 import { UUID_V7 } from '../../src/ids.js';
+import { scoreBatchResponseSchema, scoreResponseSchema } from '../../src/http/schemas.js';
 import { SETOSA, type TestService, VIRGINICA, iris, startTestService } from '../helpers/service.js';
 
 let svc: TestService;
@@ -18,6 +19,9 @@ describe('POST /v1/models/{name}/score', () => {
     const res = await score({ features: SETOSA, tags: { line: '3', station: 'S2' } });
     expect(res.statusCode).toBe(200);
     const body = res.json();
+    // The answer leaves through JSON.stringify, not a zod encode: it must be exactly its schema,
+    // with no field missing, mistyped or extra (parse strips unknown keys at every level).
+    expect(scoreResponseSchema.parse(body)).toEqual(body);
     expect(body.request_id).toMatch(UUID_V7);
     expect(body.model).toEqual({ name: 'iris', version: '1', sha256: iris().sha256 });
     expect(body.label).toBe('setosa');
@@ -163,6 +167,7 @@ describe('POST /v1/models/{name}/score-batch', () => {
   it('answers every item in order, each with its own id, and commits them together with the batch id', async () => {
     const res = await svc.app.inject({ method: 'POST', url: '/v1/models/iris/score-batch', payload: { items: [{ features: SETOSA }, { features: VIRGINICA, tags: { part: 'A-17' } }] } });
     expect(res.statusCode).toBe(200);
+    expect(scoreBatchResponseSchema.parse(res.json())).toEqual(res.json());
     const { batch_id, items } = res.json();
     expect(items.map((i: { label: string }) => i.label)).toEqual(['setosa', 'virginica']);
     expect(new Set(items.map((i: { request_id: string }) => i.request_id)).size).toBe(2);
