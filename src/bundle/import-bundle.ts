@@ -79,7 +79,7 @@ export function importBundle(table: LabelledTable, graph: ImportedGraph, options
         onnx_ops: graph.ops,
         onnx_input_type: graph.inputType,
         onnx_ending: graph.ending,
-        preprocess: options.preprocessGiven ? 'given' : graph.preprocess.scale.every((s) => s === 1) && graph.preprocess.mean.every((m) => m === 0) ? 'none' : 'in graph',
+        preprocess: options.preprocessGiven ? (graph.standardisesItself ? 'given, and in graph' : 'given') : graph.standardisesItself ? 'in graph' : 'none',
         envelope_tolerance: options.tolerance,
         review_margin: options.reviewMargin,
         detectors: [...options.detectors],

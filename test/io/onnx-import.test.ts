@@ -103,7 +103,7 @@ describe('ONNX graphs plumbline refuses, with the reason', () => {
   };
 
   it('a convolution, naming the node, its op and what is supported', () => {
-    expect(refusal('refused-conv.onnx')).toMatch(/^refused-conv\.onnx: node "[^"]+" \(Conv\) is not supported\. plumbline imports dense feed-forward classifiers built of: Gemm, MatMul, .*Softmax, LogSoftmax, Constant$/);
+    expect(refusal('refused-conv.onnx')).toMatch(/^refused-conv\.onnx: node "[^"]+" \(Conv\) is not supported\. plumbline imports dense feed-forward classifiers built of: Gemm, MatMul, .*Softmax, LogSoftmax, Constant, Reciprocal, Neg, Sqrt \(on constants\)$/);
   });
 
   it('two inputs', () => {
@@ -155,9 +155,8 @@ describe('ONNX graphs built here to be refused (onnx-proto encoder)', () => {
     expect(fails(model({ nodes: [node('Reshape', ['x', 's'], ['h']), node('Gemm', ['h', 'W', 'B'], ['y'])], initializers: [W2, B2, { ...ints('s', [-1, 1, 2]), dims: [3] }] }))).toMatch(/reshapes to \[-1, 1, 2\]/);
   });
 
-  it('a Softmax before the end, an activation after the last layer without one, one output', () => {
+  it('a Softmax before the end, one output without a Sigmoid', () => {
     expect(fails(model({ nodes: [node('Softmax', ['x'], ['h']), node('Gemm', ['h', 'W', 'B'], ['y'])], initializers: [W2, B2] }))).toMatch(/\(Softmax\) is not the last node; a softmax may only end the graph/);
-    expect(fails(model({ nodes: [gemm, node('Relu', ['h'], ['y'])], initializers: [W2, B2] }))).toMatch(/^ends in relu after its last dense layer/);
     expect(fails(model({ nodes: [node('Gemm', ['x', 'V', 'C'], ['y'], { transB: { i: 1 } })], initializers: [floats('V', [1, 2], [1, 1]), floats('C', [1], [0])] }))).toMatch(/^gives one output/);
   });
 
@@ -177,5 +176,97 @@ describe('ONNX graphs built here to be refused (onnx-proto encoder)', () => {
   it('an input that is not float, a Gemm whose width does not match the input', () => {
     expect(fails(model({ nodes: [node('Gemm', ['x', 'W', 'B'], ['y'])], initializers: [W2, B2], inputs: [{ name: 'x', width: 2, type: 7 }] }))).toMatch(/the input x has element type 7/);
     expect(fails(model({ nodes: [node('Gemm', ['x', 'W', 'B'], ['y'], { transB: { i: 1 } })], initializers: [W2, B2], inputs: [{ name: 'x', width: 3 }] }))).toMatch(/\(Gemm\) takes 2 values a row, but 3 arrive/);
+  });
+});
+
+describe('ONNX edge cases (found in review), built here', () => {
+  const x = Float64Array.from([0.7, -1.3]);
+  const run = (bytes: Uint8Array, rows = x): number[] => {
+    const g = importOnnx(bytes, 'm.onnx');
+    const { logits } = forward(g.network, standardize(g.preprocess, rows, 1), 1);
+    return Array.from(logits);
+  };
+  const fails = (bytes: Uint8Array): string => {
+    try {
+      importOnnx(bytes, 'm.onnx');
+    } catch (err) {
+      expect(err).toBeInstanceOf(OnnxError);
+      return (err as Error).message.replace(/^m\.onnx: /, '');
+    }
+    throw new Error('imported');
+  };
+  // z = W x + B with W = [[1, 2], [3, 4]], B = [0.5, -0.5]: z = [-1.4, -3.6] for x above
+  const z = [1 * 0.7 + 2 * -1.3 + 0.5, 3 * 0.7 + 4 * -1.3 - 0.5];
+  const gemm = node('Gemm', ['x', 'W', 'B'], ['h'], { transB: { i: 1 } });
+
+  it('keeps an activation on the class scores: the graph’s outputs are the logits, and the last layer stays affine', () => {
+    const g = importOnnx(model({ nodes: [gemm, node('Relu', ['h'], ['y'])], initializers: [W2, B2] }), 'm.onnx');
+    expect(g.network.layers.map((l) => l.activation)).toEqual(['relu', 'identity']);
+    expect(run(model({ nodes: [gemm, node('Relu', ['h'], ['y'])], initializers: [W2, B2] }))).toEqual(z.map((v) => Math.max(0, v)));
+    expect(run(model({ nodes: [gemm, node('Tanh', ['h'], ['t']), node('Softmax', ['t'], ['y'])], initializers: [W2, B2] }))).toEqual(z.map(Math.tanh));
+  });
+
+  it('reads an activation then a Sigmoid over one output as logits [0, f(z)]', () => {
+    const bytes = model({ nodes: [node('Gemm', ['x', 'V', 'C'], ['h'], { transB: { i: 1 } }), node('Softplus', ['h'], ['s']), node('Sigmoid', ['s'], ['y'])], initializers: [floats('V', [1, 2], [1, -1]), floats('C', [1], [0.25])] });
+    const zz = 0.7 + 1.3 + 0.25;
+    const [l0, l1] = run(bytes);
+    expect(l0).toBe(0);
+    expect(l1).toBeCloseTo(Math.log1p(Math.exp(zz)), 6);
+  });
+
+  it('keeps a sign flip before the first layer out of the preprocessing scale: |scale| there, the weights negated', () => {
+    // Sub(c, x) then Mul by -2: (c - x) * -2 = 2 (x - c)
+    const bytes = model({ nodes: [node('Sub', ['c', 'x'], ['a']), node('Mul', ['a', 'k'], ['b']), node('Gemm', ['b', 'W', 'B'], ['y'], { transB: { i: 1 } })], initializers: [W2, B2, floats('c', [2], [1, 2]), floats('k', [2], [-2, 3])] });
+    const g = importOnnx(bytes, 'm.onnx');
+    expect(g.preprocess.scale.every((s) => s > 0)).toBe(true);
+    expect(g.standardisesItself).toBe(true);
+    const a = [(1 - 0.7) * -2, (2 - -1.3) * 3];
+    const expected = [1 * a[0]! + 2 * a[1]! + 0.5, 3 * a[0]! + 4 * a[1]! - 0.5];
+    run(bytes).forEach((v, k) => expect(v).toBeCloseTo(expected[k]!, 12));
+  });
+
+  it('refuses non-finite weights, constants and attributes, naming the node', () => {
+    expect(fails(model({ nodes: [node('Gemm', ['x', 'W', 'B'], ['y'])], initializers: [W2, floats('B', [2], [Infinity, 0])] }))).toMatch(/that is Infinity/);
+    expect(fails(model({ nodes: [node('Gemm', ['x', 'W', 'B'], ['y'])], initializers: [floats('W', [2, 2], [1, NaN, 3, 4]), B2] }))).toMatch(/\(Gemm\) has a weight that is NaN/);
+    expect(fails(model({ nodes: [gemm, node('LeakyRelu', ['h'], ['y'], { alpha: { f: NaN } })], initializers: [W2, B2] }))).toMatch(/\(LeakyRelu\) has alpha = NaN/);
+    expect(fails(model({ nodes: [node('Mul', ['x', 'k'], ['a']), node('Gemm', ['a', 'W', 'B'], ['y'])], initializers: [W2, B2, floats('k', [], [Infinity])] }))).toMatch(/\(Mul\) has a constant that is Infinity/);
+  });
+
+  it('refuses a tensor too large to read before allocating it, and an elementwise node without a constant', () => {
+    const huge = { name: 'W', dims: [1_000_000, 1_000_000], dataType: 1 };
+    expect(fails(model({ nodes: [node('Gemm', ['x', 'W', 'B'], ['y'])], initializers: [huge, B2] }))).toMatch(/more than the 16777216 values plumbline reads in one tensor/);
+    expect(fails(model({ nodes: [node('Add', ['x'], ['a']), node('Gemm', ['a', 'W', 'B'], ['y'])], initializers: [W2, B2] }))).toMatch(/\(Add\) takes no constant/);
+    expect(fails(model({ nodes: [node('Mul', ['x', 'x'], ['a']), node('Gemm', ['a', 'W', 'B'], ['y'])], initializers: [W2, B2] }))).toMatch(/\(Mul\) takes the same tensor twice/);
+  });
+
+  it('stops at a GELU that writes its own input (a cycle) instead of looping', () => {
+    const bytes = model({
+      nodes: [gemm, node('Div', ['h', 's2'], ['d']), node('Erf', ['d'], ['e']), node('Add', ['e', 'one'], ['p']), node('Mul', ['h', 'p'], ['m']), node('Mul', ['m', 'half'], ['h'])],
+      initializers: [W2, B2, floats('s2', [], [Math.SQRT2]), floats('one', [], [1]), floats('half', [], [0.5])],
+      outputs: ['h'],
+    });
+    expect(fails(bytes)).toMatch(/cycle/);
+  });
+
+  it('reads Dropout’s bool training_mode, leaves unused initializers unread, and allows no-ops after the Softmax', () => {
+    const off = { name: 'tm', dims: [], dataType: 9, int32Data: [0] };
+    const f16 = { name: 'unused', dims: [1], dataType: 10, int32Data: [15360] };
+    expect(run(model({ nodes: [gemm, node('Dropout', ['h', 'r', 'tm'], ['d']), node('Softmax', ['d'], ['s']), node('Identity', ['s'], ['y'])], initializers: [W2, B2, floats('r', [], [0.5]), off, f16] }))).toEqual(z);
+    expect(fails(model({ nodes: [gemm, node('Dropout', ['h', 'r', 'tm'], ['y'])], initializers: [W2, B2, floats('r', [], [0.5]), { ...off, int32Data: [1] }] }))).toMatch(/is in training mode/);
+  });
+
+  it('folds constants computed from constants (1 / std as Reciprocal), and Flatten with axis -1', () => {
+    const bytes = model({
+      nodes: [node('Reciprocal', ['std'], ['inv']), node('Flatten', ['x'], ['f'], { axis: { i: -1 } }), node('Sub', ['f', 'mean'], ['a']), node('Mul', ['a', 'inv'], ['b']), node('Gemm', ['b', 'W', 'B'], ['y'], { transB: { i: 1 } })],
+      initializers: [W2, B2, floats('mean', [2], [0.5, -1]), floats('std', [2], [2, 4])],
+    });
+    const g = importOnnx(bytes, 'm.onnx');
+    expect(g.preprocess.mean).toEqual([0.5, -1]);
+    expect(g.preprocess.scale).toEqual([2, 4]);
+    expect(fails(model({ nodes: [node('Reciprocal', ['x'], ['a']), node('Gemm', ['a', 'W', 'B'], ['y'])], initializers: [W2, B2] }))).toMatch(/\(Reciprocal\) works on the data; plumbline takes Reciprocal of constants only/);
+  });
+
+  it('refuses an attribute of the wrong type rather than reading a default', () => {
+    expect(fails(model({ nodes: [gemm, node('LeakyRelu', ['h'], ['y'], { alpha: { i: 1 } })], initializers: [W2, B2] }))).toMatch(/\(LeakyRelu\) has attribute alpha of type 2, where ONNX defines type 1/);
   });
 });

@@ -8,6 +8,7 @@ import { BundleError, parseBundle } from '../../src/bundle/verify.js';
 import { DataFileError, openCsv } from '../../src/io/csv.js';
 import { DataFileErrors, parseFeatures, planColumns } from '../../src/io/feature-table.js';
 import { OnnxError, importOnnx } from '../../src/io/onnx/index.js';
+import { model, node } from '../helpers/onnx-builder.js';
 import { iris } from '../helpers/service.js';
 
 // Property tests (fast-check): the readers of outside files never crash on garbage; they either
@@ -148,6 +149,77 @@ describe('ONNX reader on garbage', () => {
         expect(() => importOnnx(good.subarray(0, n), 'cut.onnx')).toThrow(OnnxError);
       }),
       { numRuns: 100 },
+    );
+  });
+});
+
+describe('ONNX reader on random graphs that decode', () => {
+  const OPS = ['Gemm', 'MatMul', 'Add', 'Sub', 'Mul', 'Div', 'Relu', 'Sigmoid', 'Softmax', 'Identity', 'Flatten', 'Reshape', 'BatchNormalization', 'Erf', 'Dropout', 'Reciprocal', 'LeakyRelu', 'Constant', 'Conv'];
+  const value = fc.oneof(fc.double({ min: -10, max: 10, noNaN: true }), fc.constantFrom(0, 1, -1, Math.SQRT2, 0.5, Number.NaN, Number.POSITIVE_INFINITY));
+  const tensor = (name: string) =>
+    fc.record({ dims: fc.array(fc.integer({ min: 0, max: 3 }), { maxLength: 3 }), type: fc.constantFrom(1, 11, 7, 9, 6, 10) }).chain(({ dims, type }) => {
+      const n = dims.reduce((a, b) => a * b, 1);
+      return fc.array(value, { minLength: n, maxLength: n + (n === 0 ? 1 : 0) }).map((values) =>
+        type === 1 ? { name, dims, dataType: 1, floatData: values } : type === 11 ? { name, dims, dataType: 11, doubleData: values } : { name, dims, dataType: type, int32Data: values.map((v) => (Number.isFinite(v) ? Math.trunc(v) : 0)) },
+      );
+    });
+  const graph = fc
+    .record({
+      inits: fc.array(fc.constantFrom('W', 'B', 'c', 's', 'k'), { maxLength: 5 }),
+      nodes: fc.array(
+        fc.record({
+          op: fc.constantFrom(...OPS),
+          ins: fc.array(fc.constantFrom('x', 'W', 'B', 'c', 's', 'k', 't0', 't1', 't2', 't3', ''), { maxLength: 3 }),
+          out: fc.constantFrom('t0', 't1', 't2', 't3', 'y', 'x'),
+          attr: fc.option(fc.record({ name: fc.constantFrom('alpha', 'beta', 'transB', 'axis', 'epsilon'), v: value, asInt: fc.boolean() }), { nil: undefined }),
+        }),
+        { minLength: 1, maxLength: 6 },
+      ),
+      width: fc.integer({ min: 1, max: 3 }),
+    })
+    .chain((g) => fc.tuple(fc.constant(g), fc.tuple(...[...new Set(g.inits)].map((n) => tensor(n)))));
+
+  // Chains: node i takes the previous node's output, and maybe constants; the last writes y.
+  const chain = fc
+    .record({
+      inits: fc.array(fc.constantFrom('W', 'B', 'c', 's', 'k'), { maxLength: 5 }),
+      nodes: fc.array(
+        fc.record({
+          op: fc.constantFrom(...OPS),
+          extra: fc.array(fc.constantFrom('W', 'B', 'c', 's', 'k', ''), { maxLength: 2 }),
+          attr: fc.option(fc.record({ name: fc.constantFrom('alpha', 'beta', 'transB', 'axis', 'epsilon'), v: value, asInt: fc.boolean() }), { nil: undefined }),
+        }),
+        { minLength: 1, maxLength: 6 },
+      ),
+      width: fc.integer({ min: 1, max: 3 }),
+    })
+    .chain((g) => fc.tuple(fc.constant(g), fc.tuple(...[...new Set(g.inits)].map((n) => tensor(n)))));
+
+  it('chains of random nodes never fail other than with an OnnxError', () => {
+    fc.assert(
+      fc.property(chain, ([g, inits]) => {
+        const bytes = model({
+          nodes: g.nodes.map((n, i) => node(n.op, [i === 0 ? 'x' : `t${i - 1}`, ...n.extra], [i === g.nodes.length - 1 ? 'y' : `t${i}`], n.attr ? { [n.attr.name]: n.attr.asInt ? { i: Number.isFinite(n.attr.v) ? Math.trunc(n.attr.v) : 0 } : { f: n.attr.v } } : {})),
+          initializers: inits as never,
+          inputs: [{ name: 'x', width: g.width }],
+        });
+        clearOrFine(() => importOnnx(bytes, 'random.onnx'), [OnnxError], 'random.onnx');
+      }),
+      { numRuns: 3000 },
+    );
+  });
+
+  it('never fails other than with an OnnxError, and always ends', () => {
+    fc.assert(
+      fc.property(graph, ([g, inits]) => {
+        const bytes = model({
+          nodes: g.nodes.map((n) => node(n.op, n.ins, [n.out], n.attr ? { [n.attr.name]: n.attr.asInt ? { i: Number.isFinite(n.attr.v) ? Math.trunc(n.attr.v) : 0 } : { f: n.attr.v } } : {})),
+          initializers: inits as never,
+          inputs: [{ name: 'x', width: g.width }],
+        });
+        clearOrFine(() => importOnnx(bytes, 'random.onnx'), [OnnxError], 'random.onnx');
+      }),
+      { numRuns: 2000 },
     );
   });
 });

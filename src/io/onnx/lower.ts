@@ -20,6 +20,8 @@ export interface LoweredGraph {
   network: Network;
   /** What the graph ended in; the bundle keeps logits either way. */
   ending: 'logits' | 'softmax' | 'log_softmax' | 'sigmoid';
+  /** Whether the graph standardises its own input (constants before the first layer). */
+  standardisesItself: boolean;
 }
 
 type Elementwise = Extract<Step, { kind: 'elementwise' }>['op'];
@@ -66,9 +68,16 @@ export function lowerChain(chain: Chain, file: string, userPreprocess?: Standard
   let ending = 'logits' as LoweredGraph['ending'];
   let started = false;
 
+  const finite = (v: Float64Array, at: string, what: string): Float64Array => {
+    const bad = v.findIndex((x) => !Number.isFinite(x));
+    if (bad >= 0) refuse(`${at} has ${what} that is ${v[bad]}`);
+    return v;
+  };
+
   /** The constant as one value per feature of the current width (a scalar is broadcast). */
   const perFeature = (c: Constant, at: string, n: number | null): Float64Array => {
     if (c.type === 'int') refuse(`${at} uses an integer constant; plumbline folds float32 or float64 constants`);
+    finite(c.data, at, 'a constant');
     if (c.data.length === 1) return n === null ? c.data : new Float64Array(n).fill(c.data[0] as number);
     const last = c.dims[c.dims.length - 1];
     if (n !== null && (c.data.length !== n || last !== n)) refuse(`${at} has a constant of shape [${c.dims.join(', ')}] against ${n} values a row; plumbline folds scalars or one value per feature`);
@@ -94,6 +103,7 @@ export function lowerChain(chain: Chain, file: string, userPreprocess?: Standard
   const affineOf = (s: Extract<Step, { kind: 'gemm' | 'matmul' }>): Affine => {
     const B = s.b;
     if (B.dims.length !== 2 || B.type === 'int') refuse(`${s.at} needs 2-D float weights, not a tensor of shape [${B.dims.join(', ')}]`);
+    finite(B.data, s.at, 'a weight');
     const transB = s.kind === 'gemm' && s.transB;
     const [rows, cols] = B.dims as [number, number];
     const inputs = transB ? cols : rows;
@@ -120,6 +130,10 @@ export function lowerChain(chain: Chain, file: string, userPreprocess?: Standard
     pending = null;
   };
 
+  // The ending may be followed by nodes that change nothing (an Identity after the Softmax, say).
+  let lastReal = chain.steps.length - 1;
+  while (lastReal > 0 && (chain.steps[lastReal]?.kind === 'noop' || chain.steps[lastReal]?.kind === 'reshape')) lastReal--;
+
   chain.steps.forEach((s, i) => {
     switch (s.kind) {
       case 'noop':
@@ -143,6 +157,7 @@ export function lowerChain(chain: Chain, file: string, userPreprocess?: Standard
         const n = width ?? s.scale.data.length;
         const [scale, bias, mean, variance] = [s.scale, s.bias, s.mean, s.variance].map((c) => perFeature(c, s.at, n)) as [Float64Array, Float64Array, Float64Array, Float64Array];
         const get = (v: Float64Array, j: number): number => (v.length === 1 ? v[0] : v[j]) as number;
+        if (Array.from({ length: n }, (_, j) => get(variance, j) + s.epsilon).some((v) => !(v > 0))) refuse(`${s.at} has a variance that, with its epsilon, is not positive`);
         const a = Float64Array.from({ length: n }, (_, j) => get(scale, j) / Math.sqrt(get(variance, j) + s.epsilon));
         const c = Float64Array.from({ length: n }, (_, j) => get(bias, j) - (a[j] as number) * get(mean, j));
         width = n;
@@ -164,14 +179,14 @@ export function lowerChain(chain: Chain, file: string, userPreprocess?: Standard
       }
       case 'activation':
         started = true;
-        if (s.name === 'sigmoid' && i === chain.steps.length - 1 && (pending?.outputs ?? layers.at(-1)?.outputs) === 1) {
+        if (s.name === 'sigmoid' && i === lastReal && (pending?.outputs ?? layers.at(-1)?.outputs) === 1) {
           ending = 'sigmoid';
           return;
         }
         close(s.name, s.alpha, s.at);
         return;
       case 'softmax':
-        if (i !== chain.steps.length - 1) refuse(`${s.at} is not the last node; a softmax may only end the graph`);
+        if (i !== lastReal) refuse(`${s.at} is not the last node; a softmax may only end the graph`);
         ending = s.log ? 'log_softmax' : 'softmax';
         return;
     }
@@ -181,19 +196,25 @@ export function lowerChain(chain: Chain, file: string, userPreprocess?: Standard
   const last = layers.at(-1);
   if (!last) refuse('holds no dense layer (Gemm or MatMul)');
   const lastLayer = last as DenseLayer;
-  // Before a Softmax, whatever the last layer gives is the logits (its activation stays). Without
-  // one, the outputs are served as logits, so they must be the last dense layer's own.
-  if (lastLayer.activation !== 'identity' && ending === 'logits') {
-    refuse(`ends in ${lastLayer.activation} after its last dense layer; its outputs must be logits, or their Softmax or LogSoftmax (or a Sigmoid over one output)`);
-  }
+  // Whatever the graph computes before its ending is the logits. A bundle's last layer must be
+  // affine (the feature-space detector reads its input), so an activation there gets an identity
+  // layer after it: exact, and the same function.
   if (ending === 'sigmoid') {
-    // One output z with a Sigmoid is a binary classifier: logits [0, z] give the same probabilities.
-    const n = lastLayer.inputs;
-    const w = new Float64Array(2 * n);
-    w.set(lastLayer.weights, n);
-    layers[layers.length - 1] = { ...lastLayer, outputs: 2, weights: w, bias: Float64Array.from([0, lastLayer.bias[0] as number]) };
-  } else if (lastLayer.outputs < 2) {
-    refuse('gives one output; a classifier needs one score per class, or one output with a Sigmoid');
+    // One output z and a Sigmoid is a binary classifier: logits [0, z] give the same probabilities.
+    if (lastLayer.activation === 'identity') {
+      const n = lastLayer.inputs;
+      const w = new Float64Array(2 * n);
+      w.set(lastLayer.weights, n);
+      layers[layers.length - 1] = { ...lastLayer, outputs: 2, weights: w, bias: Float64Array.from([0, lastLayer.bias[0] as number]) };
+    } else {
+      layers.push({ inputs: 1, outputs: 2, activation: 'identity', alpha: 0, weights: Float64Array.of(0, 1), bias: Float64Array.of(0, 0) });
+    }
+  } else {
+    if (lastLayer.outputs < 2) refuse('gives one output; a classifier needs one score per class, or one output with a Sigmoid');
+    if (lastLayer.activation !== 'identity') {
+      const a = identityAffine(lastLayer.outputs);
+      layers.push({ inputs: a.inputs, outputs: a.outputs, activation: 'identity', alpha: 0, weights: a.w, bias: a.b });
+    }
   }
 
   // The leading constants as (x - mean) / scale, after --preprocess if given.
@@ -223,21 +244,26 @@ export function lowerChain(chain: Chain, file: string, userPreprocess?: Standard
       }
     }
   }
-  let preprocess: Standardizer = { mean: Array.from(mean), scale: Array.from(scale) };
-  // A bundle's scale must be positive; a sign flip (or a tiny scale) goes into the first layer instead.
-  if (scale.some((s) => !(s >= 1e-30) || !Number.isFinite(s))) {
-    const first = layers[0] as DenseLayer;
+  finite(mean, 'the constants before the first layer', 'a mean');
+  finite(scale, 'the constants before the first layer', 'a scale');
+  const tiny = scale.findIndex((v) => Math.abs(v) < 1e-30);
+  if (tiny >= 0) refuse(`the constants before the first layer scale feature ${tiny} by ${1 / (scale[tiny] as number)}, beyond what a bundle can hold`);
+  // A bundle's scale is positive: a sign flip goes into the first layer, whose weights for that
+  // feature are negated (exact in float32), and the preprocessing keeps |scale|.
+  const first = layers[0] as DenseLayer;
+  if (scale.some((v) => v < 0)) {
     const w = Float64Array.from(first.weights);
-    const b = Float64Array.from(first.bias);
-    for (let o = 0; o < first.outputs; o++) {
-      for (let j = 0; j < d; j++) {
-        const v = (w[o * d + j] as number) / (scale[j] as number);
-        w[o * d + j] = v;
-        b[o] = (b[o] as number) - v * (mean[j] as number);
-      }
+    for (let j = 0; j < d; j++) {
+      if ((scale[j] as number) >= 0) continue;
+      scale[j] = -(scale[j] as number);
+      for (let o = 0; o < first.outputs; o++) w[o * d + j] = -(w[o * d + j] as number);
     }
-    layers[0] = { ...first, weights: w, bias: b };
-    preprocess = { mean: new Array(d).fill(0), scale: new Array(d).fill(1) };
+    layers[0] = { ...first, weights: w };
   }
-  return { preprocess, network: roundToFloat32({ layers }), ending };
+  for (const l of layers) {
+    finite(l.weights, 'folding the graph', 'a weight');
+    finite(l.bias, 'folding the graph', 'a bias');
+  }
+  const preprocess: Standardizer = { mean: Array.from(mean), scale: Array.from(scale) };
+  return { preprocess, network: roundToFloat32({ layers }), ending, standardisesItself: leading.length > 0 };
 }
