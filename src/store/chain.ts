@@ -24,43 +24,56 @@ export interface ChainedRow {
   key_label: string | null;
 }
 
+const FIELDS: ReadonlyArray<readonly [keyof ChainedRow, 'num' | 'text' | 'bytes']> = [
+  ['seq', 'num'],
+  ['request_id', 'text'],
+  ['batch_id', 'text'],
+  ['received_at', 'num'],
+  ['model_sha256', 'text'],
+  ['model_name', 'text'],
+  ['model_version', 'text'],
+  ['features', 'bytes'],
+  ['tags', 'text'],
+  ['label', 'text'],
+  ['probabilities', 'bytes'],
+  ['margin', 'num'],
+  ['in_domain', 'num'],
+  ['review', 'num'],
+  ['domain', 'text'],
+  ['latency_us', 'num'],
+  ['key_label', 'text'],
+];
+
 /**
- * The bytes a row contributes: its stored columns in a fixed order, each length-prefixed, so that
- * no two different rows give the same bytes. Numbers are written as float64 (exact for the
- * integers stored here), blobs and text as they are.
+ * The bytes a row contributes: its stored columns in a fixed order, numbers as float64 (exact for
+ * the integers stored here), text and blobs each after its length as an int32 (-1 for null), so
+ * that no two different rows give the same bytes. Written into one buffer sized up front.
  */
 export function rowBytes(r: ChainedRow): Buffer {
-  const parts: Buffer[] = [];
-  const num = (v: number): void => {
-    const b = Buffer.allocUnsafe(8);
-    b.writeDoubleLE(v);
-    parts.push(b);
-  };
-  const bytes = (b: Buffer | null): void => {
-    const len = Buffer.allocUnsafe(4);
-    len.writeInt32LE(b === null ? -1 : b.length);
-    parts.push(len);
-    if (b !== null) parts.push(b);
-  };
-  const text = (s: string | null): void => bytes(s === null ? null : Buffer.from(s, 'utf8'));
-  num(r.seq);
-  text(r.request_id);
-  text(r.batch_id);
-  num(r.received_at);
-  text(r.model_sha256);
-  text(r.model_name);
-  text(r.model_version);
-  bytes(r.features);
-  text(r.tags);
-  text(r.label);
-  bytes(r.probabilities);
-  num(r.margin);
-  num(r.in_domain);
-  num(r.review);
-  text(r.domain);
-  num(r.latency_us);
-  text(r.key_label);
-  return Buffer.concat(parts);
+  let size = 0;
+  for (const [key, kind] of FIELDS) {
+    const v = r[key];
+    size += kind === 'num' ? 8 : 4 + (v === null ? 0 : kind === 'text' ? Buffer.byteLength(v as string, 'utf8') : (v as Buffer).length);
+  }
+  const out = Buffer.allocUnsafe(size);
+  let at = 0;
+  for (const [key, kind] of FIELDS) {
+    const v = r[key];
+    if (kind === 'num') {
+      at = out.writeDoubleLE(v as number, at);
+    } else if (v === null) {
+      at = out.writeInt32LE(-1, at);
+    } else if (kind === 'text') {
+      const len = out.write(v as string, at + 4, 'utf8');
+      out.writeInt32LE(len, at);
+      at += 4 + len;
+    } else {
+      const b = v as Buffer;
+      at = out.writeInt32LE(b.length, at);
+      at += b.copy(out, at);
+    }
+  }
+  return out;
 }
 
 /** hash_i = SHA-256(hash_{i-1} || rowBytes(row_i)). */

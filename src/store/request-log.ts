@@ -108,8 +108,7 @@ export function createRequestLog(db: Database, options: WriterOptions): RequestL
   const insertScored: Statement = db.prepare(`INSERT INTO scored_requests
     (seq, request_id, batch_id, received_at, model_sha256, model_name, model_version, features, tags, label,
      probabilities, margin, in_domain, review, domain, latency_us, key_label, chain_hash)
-    VALUES (@seq, @request_id, @batch_id, @received_at, @model_sha256, @model_name, @model_version, @features, @tags, @label,
-     @probabilities, @margin, @in_domain, @review, @domain, @latency_us, @key_label, @chain_hash)`);
+    VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`);
   // Every row is sealed with the hash of the one before (src/store/chain.ts).
   const readHead = createChainHeadReader(db);
   const insertRejected: Statement = db.prepare(`INSERT INTO rejected_requests
@@ -157,7 +156,27 @@ export function createRequestLog(db: Database, options: WriterOptions): RequestL
       key_label: r.keyLabel ?? null,
     };
     const hash = chainHash(at.hash, row);
-    insertScored.run({ ...row, chain_hash: hash });
+    // Positional parameters: binding by name costs a lookup per column per row.
+    insertScored.run(
+      row.seq,
+      row.request_id,
+      row.batch_id,
+      row.received_at,
+      row.model_sha256,
+      row.model_name,
+      row.model_version,
+      row.features,
+      row.tags,
+      row.label,
+      row.probabilities,
+      row.margin,
+      row.in_domain,
+      row.review,
+      row.domain,
+      row.latency_us,
+      row.key_label,
+      hash,
+    );
     return { seq: row.seq, hash };
   };
   const writeRejected = (r: RejectedRow): void => {

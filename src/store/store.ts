@@ -6,6 +6,7 @@ import { type KeysStore, createKeysStore } from './keys-store.js';
 import { type Retention, createRetention } from './retention.js';
 import { createChainHeadReader } from './chain-head.js';
 import { sealPreChainRows } from './seal.js';
+import { type Checkpointer, startCheckpointer } from './checkpointer.js';
 import { type DriftStore, createDriftStore } from './drift-store.js';
 import { type ModelRecord, recordModel } from './models-table.js';
 import { type RequestLog, type WriterOptions, createRequestLog } from './request-log.js';
@@ -29,10 +30,17 @@ export interface Store {
   queryRequests(filter: RequestFilter, limit: number, cursor?: string): RequestPage;
   /** Whether a write transaction can be opened now (readiness). */
   isWritable(): boolean;
+  /** The background checkpointer's record, when there is one. */
+  checkpoints(): ReturnType<Checkpointer['stats']> | null;
   close(): void;
 }
 
-export function openStore(file: string, options: OpenOptions & WriterOptions): Store {
+export interface StoreOptions extends OpenOptions, WriterOptions {
+  /** Run WAL checkpoints on a worker thread instead of on commits (the serving process). */
+  backgroundCheckpoints?: boolean;
+}
+
+export function openStore(file: string, options: StoreOptions): Store {
   const db: Database = openDatabase(file, options);
   sealPreChainRows(db);
   try {
@@ -48,6 +56,7 @@ export function openStore(file: string, options: OpenOptions & WriterOptions): S
   const alerts = createAlertsStore(db);
   const keys = createKeysStore(db);
   const probe = db.prepare('SELECT 1');
+  const checkpointer = options.backgroundCheckpoints ? startCheckpointer(db, file) : null;
   let closed = false;
   return {
     file,
@@ -72,10 +81,12 @@ export function openStore(file: string, options: OpenOptions & WriterOptions): S
         return false;
       }
     },
+    checkpoints: () => checkpointer?.stats() ?? null,
     close() {
       if (closed) return;
       log.close();
       closed = true;
+      checkpointer?.stop();
       db.close();
     },
   };
