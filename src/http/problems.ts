@@ -41,6 +41,8 @@ function validationErrors(err: RequestValidationError): FieldError[] {
   );
 }
 
+const SHED = new Set<ProblemCode>(['overloaded', 'log-backpressure', 'not-ready']);
+
 export interface Rejection {
   code: ProblemCode;
   status: number;
@@ -133,7 +135,10 @@ async function problems(app: FastifyInstance, options: ProblemsOptions): Promise
 
   app.setErrorHandler((err: FastifyError, request, reply) => {
     const problem = toProblem(err, options.bodyLimit, request.routeOptions.url);
-    if (problem.status >= 500) request.log.error({ err: problem.code === 'internal' ? err : (err.cause ?? err), problem: problem.code }, 'request failed');
+    // Shedding load is the service working as meant: a warning without a stack, so that a flood of
+    // refusals does not become a flood of error logs on top of the load.
+    if (SHED.has(problem.code)) request.log.warn({ problem: problem.code, status: problem.status }, 'request shed');
+    else if (problem.status >= 500) request.log.error({ err: problem.code === 'internal' ? err : (err.cause ?? err), problem: problem.code }, 'request failed');
     else request.log.info({ problem: problem.code, status: problem.status }, 'request refused');
     return refuse(request, reply, problem);
   });

@@ -1,5 +1,5 @@
 import type { ModelEntry, ModelRegistry } from '../bundle/registry.js';
-import { type ScoreResponse, ScoreOverflowError, modelRef } from '../bundle/scorer.js';
+import { type ScoreOutcome, type ScoreResponse, ScoreOverflowError, modelRef } from '../bundle/scorer.js';
 import { type FieldError, ProblemError, pointer } from '../errors.js';
 import { uuidv7 } from '../ids.js';
 import { LogBackpressureError, LogClosedError, LogWriteError, type RequestLog, type ScoredRow } from '../store/request-log.js';
@@ -66,6 +66,9 @@ export function placeFeatures(entry: ModelEntry, item: ScoreItem, at: Array<stri
   return errors;
 }
 
+/** Rows scored between two turns of the event loop in a batch. */
+export const SCORE_CHUNK_ROWS = 256;
+
 /** At most this many field errors are listed in one answer; the detail gives the full count. */
 export const MAX_FIELD_ERRORS = 50;
 
@@ -105,13 +108,19 @@ export function createScoringService(registry: ModelRegistry, log: RequestLog, o
       const listed = errors.length > MAX_FIELD_ERRORS ? `; ${errors.length} problems, the first ${MAX_FIELD_ERRORS} listed` : '';
       throw new ProblemError('invalid-request', `the features do not match model ${entry.name}${first}${listed}; nothing was scored`, errors.slice(0, MAX_FIELD_ERRORS));
     }
-    let outcomes;
-    try {
-      outcomes = entry.scorer.scoreRows(x, items.length);
-    } catch (err) {
-      if (!(err instanceof ScoreOverflowError)) throw err;
-      const at = pointer(batch ? ['items', err.row, 'features'] : ['features']);
-      throw new ProblemError('invalid-request', 'these values overflow the network; nothing was scored', [{ pointer: at, detail: 'the network gives a non-finite logit for these values' }]);
+    // A large batch is scored in chunks with a turn of the event loop between them, so that it
+    // does not hold up every other request (and the load-shedding probe) while it runs.
+    const outcomes: ScoreOutcome[] = [];
+    for (let start = 0; start < items.length; start += SCORE_CHUNK_ROWS) {
+      if (start > 0) await new Promise((resolve) => setImmediate(resolve));
+      const rows = Math.min(SCORE_CHUNK_ROWS, items.length - start);
+      try {
+        for (const o of entry.scorer.scoreRows(x.subarray(start * d, (start + rows) * d), rows)) outcomes.push(o);
+      } catch (err) {
+        if (!(err instanceof ScoreOverflowError)) throw err;
+        const at = pointer(batch ? ['items', start + err.row, 'features'] : ['features']);
+        throw new ProblemError('invalid-request', 'these values overflow the network; nothing was scored', [{ pointer: at, detail: 'the network gives a non-finite logit for these values' }]);
+      }
     }
     const model = modelRef(entry.bundle);
     const latencyUs = ctx.elapsedMs() * 1000;

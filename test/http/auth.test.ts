@@ -212,7 +212,7 @@ describe('rate limit, security headers, load shedding', () => {
     expect((await svc.app.inject('/v1/models')).headers['content-security-policy']).toBeUndefined();
   });
 
-  it('answers 503 overloaded while the event loop lags, and keeps health open', async () => {
+  it('answers 503 overloaded while the event loop lags, and keeps health open', { timeout: 15_000 }, async () => {
     svc = await startTestService({ config: { limits: { event_loop_delay_ms: 30 } } });
     expect((await svc.app.inject('/v1/models')).statusCode).toBe(200);
     // keep the event loop busy 80 ms of every ~85, as a flood of heavy work would
@@ -220,7 +220,8 @@ describe('rate limit, security headers, load shedding', () => {
       const until = Date.now() + 80;
       while (Date.now() < until);
     }, 5);
-    await new Promise((resolve) => setTimeout(resolve, 700));
+    // the probe samples every second: two samples' worth
+    await new Promise((resolve) => setTimeout(resolve, 2100));
     const shed = await svc.app.inject('/v1/models');
     const health = await svc.app.inject('/healthz');
     clearInterval(busy);
@@ -229,7 +230,7 @@ describe('rate limit, security headers, load shedding', () => {
     expect(shed.headers['retry-after']).toBe('1');
     expect(health.statusCode).toBe(200);
     // and recovers once the loop is idle again
-    await new Promise((resolve) => setTimeout(resolve, 800));
+    await new Promise((resolve) => setTimeout(resolve, 2100));
     expect((await svc.app.inject('/v1/models')).statusCode).toBe(200);
   });
 });

@@ -25,12 +25,19 @@ async function guards(app: FastifyInstance, options: GuardOptions): Promise<void
   if (options.eventLoopDelayMs > 0) {
     await app.register(underPressure, {
       maxEventLoopDelay: options.eventLoopDelayMs,
-      sampleInterval: 250,
+      // One second, under-pressure's default: a single long task (a big batch) does not look like
+      // an overloaded loop, while a loop that lags on average still does.
+      sampleInterval: 1000,
       pressureHandler: (req: FastifyRequest, _reply: FastifyReply, _type: string, value: number | undefined) =>
         isPublic(req)
           ? undefined
           : Promise.reject(
-              new ProblemError('overloaded', `the event loop lags ${Math.round(value ?? 0)} ms behind (limits.event_loop_delay_ms is ${options.eventLoopDelayMs}); nothing was done, retry shortly`, undefined, { 'retry-after': '1' }),
+              new ProblemError(
+                'overloaded',
+                `${Number.isFinite(value) ? `the event loop lags ${Math.round(value ?? 0)} ms behind` : 'the event loop was blocked for the whole of the last second'} (limits.event_loop_delay_ms is ${options.eventLoopDelayMs}); nothing was done, retry shortly`,
+                undefined,
+                { 'retry-after': '1' },
+              ),
             ),
     });
   }
