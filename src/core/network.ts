@@ -97,7 +97,35 @@ export function denseInto(layer: DenseLayer, x: Float64Array, rows: number, out:
     }
     if (o < m) denseRange(w, b, n, m, x, r, r + 4, o, out);
   }
-  if (r < rows) denseRange(w, b, n, m, x, r, rows, 0, out);
+  // The rows left over (all of them when one vector is scored): one row x 4 outputs at a time,
+  // four independent sums, so that the adds do not wait on each other.
+  for (; r < rows; r++) {
+    const x0 = r * n;
+    let o = 0;
+    for (; o + 4 <= m; o += 4) {
+      const w0 = o * n;
+      const w1 = w0 + n;
+      const w2 = w1 + n;
+      const w3 = w2 + n;
+      let s0 = b[o] as number;
+      let s1 = b[o + 1] as number;
+      let s2 = b[o + 2] as number;
+      let s3 = b[o + 3] as number;
+      for (let i = 0; i < n; i++) {
+        const v = x[x0 + i] as number;
+        s0 += v * (w[w0 + i] as number);
+        s1 += v * (w[w1 + i] as number);
+        s2 += v * (w[w2 + i] as number);
+        s3 += v * (w[w3 + i] as number);
+      }
+      const p0 = r * m + o;
+      out[p0] = s0;
+      out[p0 + 1] = s1;
+      out[p0 + 2] = s2;
+      out[p0 + 3] = s3;
+    }
+    if (o < m) denseRange(w, b, n, m, x, r, r + 1, o, out);
+  }
 }
 
 /** The plain loop, for the rows [r0, r1) and outputs [o0, m) that do not fill a block. */

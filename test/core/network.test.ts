@@ -70,7 +70,7 @@ describe('the blocked dense kernel', () => {
       seed = (seed * 1103515245 + 12345) % 2147483648;
       return seed / 2147483648 - 0.5;
     };
-    for (const [rows, n, m] of [[1, 1, 1], [3, 7, 5], [4, 4, 4], [9, 13, 11], [17, 32, 6], [64, 10, 32]] as const) {
+    for (const [rows, n, m] of [[1, 1, 1], [1, 10, 64], [2, 64, 7], [3, 7, 5], [4, 4, 4], [9, 13, 11], [17, 32, 6], [64, 10, 32]] as const) {
       const layer = { inputs: n, outputs: m, activation: 'identity' as const, alpha: 0, weights: Float64Array.from({ length: n * m }, rand), bias: Float64Array.from({ length: m }, rand) };
       const x = Float64Array.from({ length: rows * n }, () => rand() * 1e3);
       const out = new Float64Array(rows * m);
