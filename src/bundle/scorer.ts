@@ -1,6 +1,7 @@
 import { scoreDomain } from '../core/domain/detectors.js';
 import { decodeDomain } from './domain-codec.js';
-import { type ForwardPass, createForwardPass } from '../core/network.js';
+import type { ForwardPass } from '../core/network.js';
+import { createFastForwardPass } from '../core/wasm-dense.js';
 import { softmaxRowsInto, topTwo } from '../core/softmax.js';
 import { standardizeInto } from '../core/standardize.js';
 import type { LoadedBundle } from './verify.js';
@@ -63,7 +64,7 @@ export function createScorer(bundle: LoadedBundle): Scorer {
   const temperature = file.calibration.temperature;
   const domain = decodeDomain(file.domain, temperature);
   const reviewMargin = file.domain.review_margin;
-  const pass: ForwardPass = createForwardPass(bundle.network);
+  const pass: ForwardPass = createFastForwardPass(bundle.network);
   let z = new Float64Array(0);
   let p = new Float64Array(0);
 
