@@ -1,0 +1,34 @@
+// The service in a process of its own for the HTTP benchmarks, with one extra route in the same
+// fastify: POST /bench/bare, which answers with the bytes of a real score answer and does nothing
+// else. Prints {"url": ..., "bytes": n} once it listens. Loopback only.
+//   tsx bench/http-server.ts MODELS_DIR DB_FILE MODEL VECTOR_JSON [CONFIG_JSON]
+import { pino } from 'pino';
+import { configSchema } from '../src/config.js';
+import { startServer } from '../src/http/server.js';
+
+const [modelsDir, db, model, vectorJson, configJson] = process.argv.slice(2);
+if (!modelsDir || !db || !model || !vectorJson) throw new Error('usage: http-server.ts MODELS_DIR DB_FILE MODEL VECTOR_JSON [CONFIG_JSON]');
+const config = configSchema.parse({
+  host: '127.0.0.1',
+  port: 0,
+  models_dir: modelsDir,
+  db,
+  reports: { schedule: 'off' },
+  retention_days: 0,
+  logger: { level: 'warn' },
+  ...(JSON.parse(configJson ?? '{}') as Record<string, unknown>),
+});
+let bare: Buffer = Buffer.from('{}');
+const server = await startServer(config, {
+  logger: pino({ level: 'error' }, process.stderr),
+  beforeListen: (app) => {
+    app.post('/bench/bare', { config: { access: 'scorer' } }, async (_req, reply) => reply.type('application/json; charset=utf-8').send(bare));
+  },
+});
+// The same bytes the score route sends, taken from a real answer.
+const answer = await server.app.inject({ method: 'POST', url: `/v1/models/${model}/score`, payload: { features: JSON.parse(vectorJson) } });
+if (answer.statusCode !== 200) throw new Error(`the score route answered ${answer.statusCode}: ${answer.body}`);
+bare = answer.rawPayload;
+process.stdout.write(`${JSON.stringify({ url: server.url, bytes: bare.length })}\n`);
+// Exit cleanly on SIGTERM, so that --cpu-prof (when given) writes its profile.
+process.once('SIGTERM', () => void server.close().then(() => process.exit(0)));
