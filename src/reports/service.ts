@@ -1,4 +1,5 @@
-import { Worker } from 'node:worker_threads';
+import type { Worker } from 'node:worker_threads';
+import { startModuleWorker } from '../worker-boot.js';
 import { parseBundle } from '../bundle/verify.js';
 import { uuidv7 } from '../ids.js';
 import type { Store } from '../store/store.js';
@@ -23,17 +24,8 @@ export interface ReportService {
   run(model: string, window: { from: number; to: number }, trigger: ReportTrigger, sha256?: string): Promise<DriftReport>;
 }
 
-/**
- * The worker's module next to this one. Built, it is plain JavaScript. Run from the TypeScript
- * sources (tests, tsx), the worker first registers tsx's loader, since workers on Node 20 do not
- * take --import from execArgv.
- */
-function startWorker(job: WorkerJob): Worker {
-  if (!import.meta.url.endsWith('.ts')) return new Worker(new URL('./worker.js', import.meta.url), { workerData: job });
-  const target = new URL('./worker.ts', import.meta.url).href;
-  const boot = `import('tsx/esm/api').then((m) => { m.register(); return import(${JSON.stringify(target)}); });`;
-  return new Worker(boot, { eval: true, workerData: job });
-}
+/** The report worker (./worker.ts), with the job as its workerData. */
+const startWorker = (job: WorkerJob): Worker => startModuleWorker(import.meta.url, 'worker', { workerData: job });
 
 function inWorker(job: WorkerJob): Promise<DriftReport> {
   return new Promise((resolve, reject) => {

@@ -42,9 +42,9 @@ export interface Checkpointer {
  * stops checkpointing on its commits (wal_autocheckpoint = 0). A checkpoint copies committed
  * pages from the WAL into the database file; it changes nothing of what is committed, so
  * durability is as before. If the worker cannot start or stops, the connection checkpoints on
- * its own again, as SQLite does by default.
+ * its own again, as SQLite does by default, and `onInline` is told (for other writing connections).
  */
-export function startCheckpointer(db: Database, file: string, intervalMs = 1000): Checkpointer {
+export function startCheckpointer(db: Database, file: string, intervalMs = 1000, onInline?: () => void): Checkpointer {
   let runs = 0;
   let lastError: string | null = null;
   let inline = false;
@@ -57,6 +57,7 @@ export function startCheckpointer(db: Database, file: string, intervalMs = 1000)
     } catch {
       // the connection is closing
     }
+    onInline?.();
   };
   let worker: Worker;
   try {

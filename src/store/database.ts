@@ -22,7 +22,7 @@ export function openDatabase(file: string, options: OpenOptions): Database {
     db.pragma('journal_mode = WAL');
     db.pragma(`synchronous = ${options.sync === 'full' ? 'FULL' : 'NORMAL'}`);
     db.pragma('foreign_keys = ON');
-    // Short: the writer runs on the event loop, and another process holding the write lock (a
+    // Short: a writer may run on the event loop, and another process holding the write lock (a
     // backup, a shell) must not stall every request for long; the request fails with 503 instead.
     db.pragma('busy_timeout = 250');
     migrate(db, options.migrations ?? readMigrations(), file);

@@ -1,36 +1,10 @@
-import type { Database, Statement } from 'better-sqlite3';
-import { type ChainHead, createChainHeadReader } from './chain-head.js';
-import { type ChainedRow, chainHash } from './chain.js';
-import { toFloat64Blob } from './float64-blob.js';
+import type { Database } from 'better-sqlite3';
+import { MessageChannel, receiveMessageOnPort } from 'node:worker_threads';
+import { startModuleWorker } from '../worker-boot.js';
+import { type CommitOutcome, type Committer, type EncodedRow, type RejectedRow, type ScoredRow, createCommitter, encodeRow } from './log-commit.js';
+import type { WriterAnswer, WriterData, WriterRequest } from './log-worker.js';
 
-export interface ScoredRow {
-  requestId: string;
-  batchId: string | null;
-  receivedAt: number;
-  model: { sha256: string; name: string; version: string };
-  features: ArrayLike<number>;
-  tags: Record<string, string> | null;
-  label: string;
-  probabilities: ArrayLike<number>;
-  margin: number;
-  inDomain: boolean;
-  review: boolean;
-  domain: { checks: unknown[]; outside: unknown[] };
-  latencyUs: number;
-  /** Label of the API key the request came with; null when keys are not in use. */
-  keyLabel?: string | null;
-}
-
-export interface RejectedRow {
-  requestId: string;
-  receivedAt: number;
-  method: string;
-  route: string;
-  modelName: string | null;
-  status: number;
-  problemType: string;
-  bodyBytes: number | null;
-}
+export type { RejectedRow, ScoredRow } from './log-commit.js';
 
 export interface WriterOptions {
   /** Wait this long for more rows before committing; 0 commits on the next turn of the event loop. */
@@ -80,6 +54,8 @@ export interface LogStats {
   failedTransactions: number;
   waitingRows: number;
   lastError: string | null;
+  /** Where the commits run: on a thread of their own, or on the event loop. */
+  writer: 'thread' | 'event-loop';
 }
 
 export interface RequestLog {
@@ -96,180 +72,164 @@ export interface RequestLog {
   stats(): LogStats;
   /** Commits what waits and refuses further rows. */
   close(): void;
+  /** Whether the writer thread's connection checkpoints the WAL on its commits (SQLite's default). */
+  autocheckpoint(on: boolean): void;
+}
+
+/** The writer thread: the database file to open and how. */
+export interface WriterThreadOptions {
+  file: string;
+  sync: 'normal' | 'full';
+  /** false while another thread runs the WAL checkpoints. */
+  autocheckpoint: boolean;
+}
+
+/** Where batches of requests go to be committed. */
+interface Sink {
+  readonly kind: LogStats['writer'];
+  /** Commits one batch; `done` gets its outcome once (before send returns, on the event loop). */
+  send(requests: EncodedRow[][], rejected: RejectedRow[], done: (o: CommitOutcome) => void): void;
+  /** A batch is being committed, or the thread is starting: hold the next. */
+  busy(): boolean;
+  /** Returns once nothing is in flight, every outcome handled; blocks the event loop meanwhile. */
+  drain(): void;
+  autocheckpoint(on: boolean): void;
+  close(): void;
+}
+
+function loopSink(committer: Committer): Sink {
+  return {
+    kind: 'event-loop',
+    send: (requests, rejected, done) => done(committer.commit(requests, rejected)),
+    busy: () => false,
+    drain: () => undefined,
+    autocheckpoint: () => undefined,
+    close: () => undefined,
+  };
+}
+
+/** The longest the event loop waits for the writer thread when it must (flush, close). */
+const DRAIN_LIMIT_MS = 30_000;
+/** Batches posted to the writer thread and not yet answered, at most; the rows after them wait. */
+const IN_FLIGHT = 4;
+
+/**
+ * Commits on a worker thread (log-worker.ts) with a connection of its own. Each turn of the event
+ * loop posts what waits as one batch, without waiting for the batch before (the thread commits
+ * them in order, so the chain stays in order); at most IN_FLIGHT batches are out, and the rows
+ * queued meanwhile make the next, larger one. When the thread fails, `onFail` hears why, and the
+ * batches in flight fail: their rows may or may not be committed, and an answer must never claim
+ * what is not known.
+ */
+function threadSink(thread: WriterThreadOptions, options: WriterOptions, onAnswer: () => void, onFail: (reason: string) => void): Sink {
+  const { port1, port2 } = new MessageChannel();
+  const answered = new Int32Array(new SharedArrayBuffer(4));
+  const data: WriterData = { ...thread, flushRows: options.flushRows, rejectedRows: options.rejectedRows, port: port2, answered };
+  const worker = startModuleWorker(import.meta.url, 'log-worker', { workerData: data, transferList: [port2] });
+  worker.unref();
+  let state: 'starting' | 'ready' | 'failed' | 'stopped' = 'starting';
+  const inFlight = new Map<number, { requests: number; done: (o: CommitOutcome) => void }>();
+  let nextId = 1;
+  const fail = (reason: string): void => {
+    if (state === 'failed' || state === 'stopped') return;
+    state = 'failed';
+    void worker.terminate();
+    port1.close();
+    const batches = [...inFlight.values()];
+    inFlight.clear();
+    for (const b of batches) b.done({ failed: Array.from({ length: b.requests }, (_, index) => ({ index, message: reason })), transactions: 0, failedTransactions: 1, lastError: reason });
+    onFail(reason);
+  };
+  const handle = (m: WriterAnswer): void => {
+    if (m.type === 'ready') {
+      if (state === 'starting') state = 'ready';
+    } else if (m.type === 'failed') {
+      fail(m.error);
+      return;
+    } else {
+      const batch = inFlight.get(m.id);
+      inFlight.delete(m.id);
+      batch?.done(m.outcome);
+    }
+    onAnswer();
+  };
+  port1.on('message', handle);
+  port1.unref();
+  worker.on('error', (err) => fail(`the audit log writer thread failed: ${err.message}`));
+  worker.on('exit', () => fail('the audit log writer thread stopped'));
+  const post = (m: WriterRequest): void => port1.postMessage(m);
+  return {
+    kind: 'thread',
+    send(requests, rejected, done) {
+      const id = nextId++;
+      inFlight.set(id, { requests: requests.length, done });
+      post({ type: 'commit', id, requests, rejected });
+    },
+    busy: () => state === 'starting' || inFlight.size >= IN_FLIGHT,
+    drain() {
+      const deadline = Date.now() + DRAIN_LIMIT_MS;
+      while (state === 'starting' || inFlight.size > 0) {
+        const seen = Atomics.load(answered, 0);
+        const got = receiveMessageOnPort(port1);
+        if (got) {
+          handle(got.message as WriterAnswer);
+          continue;
+        }
+        if (Date.now() > deadline) {
+          fail(`the audit log writer thread did not answer within ${DRAIN_LIMIT_MS / 1000} s`);
+          return;
+        }
+        Atomics.wait(answered, 0, seen, 50);
+      }
+    },
+    autocheckpoint: (on) => {
+      if (state === 'starting' || state === 'ready') post({ type: 'autocheckpoint', on });
+    },
+    close() {
+      if (state === 'failed' || state === 'stopped') return;
+      state = 'stopped';
+      post({ type: 'stop' });
+    },
+  };
 }
 
 /**
- * Group commit: requests queue their rows and a single writer commits everything waiting in one
+ * Group commit: requests queue their rows and one writer commits everything waiting in one
  * transaction, on the next turn of the event loop (or after flushMs), so that one commit serves
  * many requests. A request is answered only after its rows are committed. If a transaction fails,
- * each request's rows are retried alone so that one bad request cannot fail the others.
+ * each request's rows are retried alone so that one bad request cannot fail the others. With
+ * `thread`, the commits run on a worker thread of their own (the service); without it, or when
+ * that thread fails, on the event loop with `db` (the CLI, tests).
  */
-export function createRequestLog(db: Database, options: WriterOptions): RequestLog {
-  const insertScored: Statement = db.prepare(`INSERT INTO scored_requests
-    (seq, request_id, batch_id, received_at, model_sha256, model_name, model_version, features, tags, label,
-     probabilities, margin, in_domain, review, domain, latency_us, key_label, chain_hash)
-    VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`);
-  // Every row is sealed with the hash of the one before (src/store/chain.ts).
-  const readHead = createChainHeadReader(db);
-  const insertRejected: Statement = db.prepare(`INSERT INTO rejected_requests
-    (request_id, received_at, method, route, model_name, status, problem_type, body_bytes)
-    VALUES (?, ?, ?, ?, ?, ?, ?, ?)`);
-  const pruneRejected: Statement = db.prepare('DELETE FROM rejected_requests WHERE seq <= (SELECT MAX(seq) FROM rejected_requests) - ?');
-
+export function createRequestLog(db: Database, options: WriterOptions, thread?: WriterThreadOptions): RequestLog {
   let queue: Pending[] = [];
   let rejected: RejectedRow[] = [];
+  /** Rows queued or in flight. */
   let waiting = 0;
   let timer: NodeJS.Timeout | NodeJS.Immediate | null = null;
+  let timerImmediate = false;
   let closed = false;
-  let rejectedSincePrune = 0;
-  const stats: LogStats = { committedRows: 0, failedRows: 0, transactions: 0, failedTransactions: 0, waitingRows: 0, lastError: null };
-  // Also at start: a service that restarts often would otherwise never reach the prune count.
-  // Best effort: a locked database now must not stop the service from starting.
-  const prune = (): void => {
-    if (options.rejectedRows !== null) pruneRejected.run(options.rejectedRows);
-  };
-  try {
-    prune();
-  } catch (err) {
-    stats.lastError = (err as Error).message;
+  const stats: Omit<LogStats, 'waitingRows' | 'writer'> = { committedRows: 0, failedRows: 0, transactions: 0, failedTransactions: 0, lastError: null };
+  const onLoop = (): Sink => loopSink(createCommitter(db, options));
+  let sink: Sink;
+  if (thread) {
+    sink = threadSink(
+      thread,
+      options,
+      () => {
+        if (queue.length > 0 || rejected.length > 0) flushNow();
+      },
+      (reason) => {
+        stats.lastError = reason;
+        sink = onLoop();
+        // The rows that waited for the thread go now, on the event loop.
+        if (queue.length > 0 || rejected.length > 0) schedule();
+      },
+    );
+  } else {
+    sink = onLoop();
   }
 
-  /** Inserts a row after `at` in the chain and returns the new head; the caller commits it. */
-  const writeScored = (r: ScoredRow, at: ChainHead): ChainHead => {
-    const row: ChainedRow = {
-      seq: at.seq + 1,
-      request_id: r.requestId,
-      batch_id: r.batchId,
-      received_at: r.receivedAt,
-      model_sha256: r.model.sha256,
-      model_name: r.model.name,
-      model_version: r.model.version,
-      features: toFloat64Blob(r.features),
-      tags: r.tags ? JSON.stringify(r.tags) : null,
-      label: r.label,
-      probabilities: toFloat64Blob(r.probabilities),
-      margin: r.margin,
-      in_domain: r.inDomain ? 1 : 0,
-      review: r.review ? 1 : 0,
-      domain: JSON.stringify(r.domain),
-      latency_us: Math.round(r.latencyUs),
-      key_label: r.keyLabel ?? null,
-    };
-    const hash = chainHash(at.hash, row);
-    // Positional parameters: binding by name costs a lookup per column per row.
-    insertScored.run(
-      row.seq,
-      row.request_id,
-      row.batch_id,
-      row.received_at,
-      row.model_sha256,
-      row.model_name,
-      row.model_version,
-      row.features,
-      row.tags,
-      row.label,
-      row.probabilities,
-      row.margin,
-      row.in_domain,
-      row.review,
-      row.domain,
-      row.latency_us,
-      row.key_label,
-      hash,
-    );
-    return { seq: row.seq, hash };
-  };
-  const writeRejected = (r: RejectedRow): void => {
-    insertRejected.run(r.requestId, r.receivedAt, r.method, r.route, r.modelName, r.status, r.problemType, r.bodyBytes);
-  };
-  // The head is read inside the transaction, so a rolled-back one leaves nothing to undo.
-  const commitGroup = db.transaction((group: Pending[], refused: RejectedRow[]): void => {
-    if (group.length > 0) {
-      let at = readHead();
-      for (const p of group) for (const r of p.rows) at = writeScored(r, at);
-    }
-    for (const r of refused) writeRejected(r);
-  });
-  const commitOne = db.transaction((p: Pending): void => {
-    let at = readHead();
-    for (const r of p.rows) at = writeScored(r, at);
-  });
-
-  const settle = (group: Pending[]): void => {
-    try {
-      commitGroup(group, []);
-      stats.transactions++;
-      for (const p of group) {
-        stats.committedRows += p.rows.length;
-        p.resolve();
-      }
-      return;
-    } catch (err) {
-      stats.lastError = (err as Error).message;
-      stats.failedTransactions++;
-      // Only a constraint violation belongs to one request's rows. Anything else (a locked or
-      // full disk, an I/O error) would fail each retry alike, and retrying one by one would hold
-      // the event loop for a busy timeout per request: fail the group at once.
-      const code = (err as { code?: string }).code ?? '';
-      if (group.length === 1 || !code.startsWith('SQLITE_CONSTRAINT')) {
-        for (const p of group) {
-          stats.failedRows += p.rows.length;
-          p.reject(new LogWriteError(err));
-        }
-        return;
-      }
-    }
-    // A constraint failed: find the request it belongs to by committing each on its own.
-    for (const p of group) {
-      try {
-        commitOne(p);
-        stats.transactions++;
-        stats.committedRows += p.rows.length;
-        p.resolve();
-      } catch (err) {
-        stats.failedRows += p.rows.length;
-        stats.failedTransactions++;
-        stats.lastError = (err as Error).message;
-        p.reject(new LogWriteError(err));
-      }
-    }
-  };
-
-  const flush = (): void => {
-    timer = null;
-    const pending = queue;
-    const refused = rejected;
-    queue = [];
-    rejected = [];
-    waiting = 0;
-    // Transactions of at most flushRows rows, whole requests only.
-    let group: Pending[] = [];
-    let rows = 0;
-    for (const p of pending) {
-      if (rows > 0 && rows + p.rows.length > options.flushRows) {
-        settle(group);
-        group = [];
-        rows = 0;
-      }
-      group.push(p);
-      rows += p.rows.length;
-    }
-    if (group.length > 0) settle(group);
-    if (refused.length > 0) {
-      try {
-        commitGroup([], refused);
-        rejectedSincePrune += refused.length;
-        if (rejectedSincePrune >= 1000) {
-          prune();
-          rejectedSincePrune = 0;
-        }
-      } catch (err) {
-        stats.lastError = (err as Error).message;
-      }
-    }
-  };
-
-  let timerImmediate = false;
   const cancel = (): void => {
     if (timer === null) return;
     if (timerImmediate) clearImmediate(timer as NodeJS.Immediate);
@@ -280,9 +240,46 @@ export function createRequestLog(db: Database, options: WriterOptions): RequestL
     const urgent = options.flushMs === 0 || waiting >= options.flushRows;
     if (timer !== null && (timerImmediate || !urgent)) return;
     cancel();
-    timer = urgent ? setImmediate(flush) : setTimeout(flush, options.flushMs);
+    timer = urgent ? setImmediate(flushNow) : setTimeout(flushNow, options.flushMs);
     timerImmediate = urgent;
   };
+
+  function flushNow(): void {
+    cancel();
+    if (sink.busy() || (queue.length === 0 && rejected.length === 0)) return;
+    const pending: Pending[] = [];
+    const requests: EncodedRow[][] = [];
+    for (const p of queue) {
+      try {
+        requests.push(p.rows.map(encodeRow));
+        pending.push(p);
+      } catch (err) {
+        waiting -= p.rows.length;
+        stats.failedRows += p.rows.length;
+        p.reject(new LogWriteError(err));
+      }
+    }
+    const refused = rejected;
+    queue = [];
+    rejected = [];
+    sink.send(requests, refused, (o) => {
+      stats.transactions += o.transactions;
+      stats.failedTransactions += o.failedTransactions;
+      if (o.lastError !== null) stats.lastError = o.lastError;
+      const failed = new Map(o.failed.map((f) => [f.index, f.message]));
+      pending.forEach((p, i) => {
+        waiting -= p.rows.length;
+        const message = failed.get(i);
+        if (message === undefined) {
+          stats.committedRows += p.rows.length;
+          p.resolve();
+        } else {
+          stats.failedRows += p.rows.length;
+          p.reject(new LogWriteError(new Error(message)));
+        }
+      });
+    });
+  }
 
   return {
     append(rows) {
@@ -301,14 +298,19 @@ export function createRequestLog(db: Database, options: WriterOptions): RequestL
       schedule();
     },
     flush() {
-      cancel();
-      flush();
+      do {
+        flushNow();
+        sink.drain();
+      } while (queue.length > 0 || rejected.length > 0);
     },
-    stats: () => ({ ...stats, waitingRows: waiting }),
+    stats: () => ({ ...stats, waitingRows: waiting, writer: sink.kind }),
     close() {
       if (closed) return;
       this.flush();
       closed = true;
+      sink.close();
     },
+    autocheckpoint: (on) => sink.autocheckpoint(on),
   };
 }
+

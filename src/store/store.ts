@@ -38,6 +38,8 @@ export interface Store {
 export interface StoreOptions extends OpenOptions, WriterOptions {
   /** Run WAL checkpoints on a worker thread instead of on commits (the serving process). */
   backgroundCheckpoints?: boolean;
+  /** Commit scored rows on a worker thread of their own, off the event loop (the serving process). */
+  writerThread?: boolean;
 }
 
 export function openStore(file: string, options: StoreOptions): Store {
@@ -50,13 +52,18 @@ export function openStore(file: string, options: StoreOptions): Store {
     db.close();
     throw new StoreIntegrityError(`${file}: ${(err as Error).message}; run plumbline audit verify --db ${file}`);
   }
-  const log = createRequestLog(db, options);
+  // When the checkpoint thread stops, the writer thread's connection checkpoints again too (the
+  // log does not exist yet if that happens at once; it then starts with checkpoints on).
+  let started: RequestLog | null = null;
+  const checkpointer = options.backgroundCheckpoints ? startCheckpointer(db, file, 1000, () => started?.autocheckpoint(true)) : null;
+  const thread = options.writerThread && file !== ':memory:' ? { file, sync: options.sync, autocheckpoint: checkpointer === null || checkpointer.stats().inline } : undefined;
+  const log = createRequestLog(db, options, thread);
+  started = log;
   const query = createRequestQuery(db);
   const drift = createDriftStore(db);
   const alerts = createAlertsStore(db);
   const keys = createKeysStore(db);
   const probe = db.prepare('SELECT 1');
-  const checkpointer = options.backgroundCheckpoints ? startCheckpointer(db, file) : null;
   let closed = false;
   return {
     file,

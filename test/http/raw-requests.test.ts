@@ -54,4 +54,16 @@ describe('requests that are not well-formed HTTP', () => {
   it('keeps serving afterwards', async () => {
     expect((await fetch(`${server.url}/healthz`)).status).toBe(200);
   });
+
+  it('commits scored rows on its writer thread, and answers after they are in the log', async () => {
+    const res = await fetch(`${server.url}/v1/models/moulding-quality/score`, {
+      method: 'POST',
+      headers: { 'content-type': 'application/json' },
+      body: JSON.stringify({ features: [232.1, 53.8, 923, 478, 3.48, 14.18, 102, 5.4, 23.7, 47.93] }),
+    });
+    expect(res.status).toBe(200);
+    const { request_id } = (await res.json()) as { request_id: string };
+    expect(server.app.services.store.log.stats()).toMatchObject({ writer: 'thread', failedRows: 0 });
+    expect(server.app.services.store.queryRequests({}, 10).items.map((r) => r.request_id)).toContain(request_id);
+  });
 });

@@ -6,7 +6,7 @@ import { afterEach, beforeEach, describe, expect, it } from 'vitest';
 import { openDatabase } from '../../src/store/database.js';
 import { fromFloat64Blob } from '../../src/store/float64-blob.js';
 import { recordModel } from '../../src/store/models-table.js';
-import { LogBackpressureError, LogClosedError, LogWriteError, type RequestLog, type ScoredRow, type WriterOptions, createRequestLog } from '../../src/store/request-log.js';
+import { LogBackpressureError, LogClosedError, LogWriteError, type RequestLog, type ScoredRow, type WriterOptions, createRequestLog as createLog } from '../../src/store/request-log.js';
 import { tempDir } from '../helpers/datasets.js';
 
 const MODEL = { sha256: 'a'.repeat(64), name: 'm', version: '1' };
@@ -44,7 +44,26 @@ beforeEach(() => {
 });
 afterEach(() => db.close());
 
-describe('group-commit writer', () => {
+// Every behaviour holds wherever the commits run: on the event loop (the CLI) and on the writer
+// thread (the service).
+describe.each([
+  ['on the event loop', false],
+  ['on the writer thread', true],
+] as const)('group-commit writer, %s', (_, threaded) => {
+  const createRequestLog = (d: Database, o: WriterOptions): RequestLog => createLog(d, o, threaded ? { file, sync: 'normal', autocheckpoint: true } : undefined);
+  const logs: RequestLog[] = [];
+  afterEach(() => {
+    for (const l of logs.splice(0)) l.close();
+  });
+  const track = (l: RequestLog): RequestLog => (logs.push(l), l);
+  void track;
+
+  it('says where it commits', () => {
+    const log = createRequestLog(db, options());
+    expect(log.stats().writer).toBe(threaded ? 'thread' : 'event-loop');
+    log.close();
+  });
+
   it('commits every row of many concurrent requests, in the order they were queued, in one transaction', async () => {
     const log = createRequestLog(db, options());
     const rows = Array.from({ length: 300 }, () => [row()]);
@@ -146,8 +165,8 @@ describe('group-commit writer', () => {
   });
 
   it('loses nothing it acknowledged when the process is killed with SIGKILL (WAL, synchronous=NORMAL)', async () => {
-    const crashFile = tmp.file('crash.db');
-    const child = spawn(process.execPath, ['--import', 'tsx', fileURLToPath(new URL('../fixtures/crash-writer.ts', import.meta.url)), crashFile], { stdio: ['ignore', 'pipe', 'inherit'] });
+    const crashFile = tmp.file(`crash-${threaded ? 'thread' : 'loop'}.db`);
+    const child = spawn(process.execPath, ['--import', 'tsx', fileURLToPath(new URL('../fixtures/crash-writer.ts', import.meta.url)), crashFile, threaded ? 'thread' : 'loop'], { stdio: ['ignore', 'pipe', 'inherit'] });
     let out = '';
     child.stdout.on('data', (c: Buffer) => (out += c.toString()));
     const [, signal] = (await once(child, 'exit')) as [number | null, string | null];
@@ -159,5 +178,17 @@ describe('group-commit writer', () => {
     expect(acknowledged.filter((id) => !present.has(id))).toEqual([]);
     expect(reopened.pragma('integrity_check', { simple: true })).toBe('ok');
     reopened.close();
+  });
+});
+
+describe('the writer thread', () => {
+  it('falls back to the event loop when it cannot open the database, and loses no row', async () => {
+    const log = createLog(db, options(), { file: tmp.file('missing/none.db'), sync: 'normal', autocheckpoint: true });
+    const r = row();
+    await log.append([r]);
+    expect(committed().map((c) => c.request_id)).toEqual([r.requestId]);
+    expect(log.stats()).toMatchObject({ writer: 'event-loop', committedRows: 1 });
+    expect(log.stats().lastError).toMatch(/writer could not open/);
+    log.close();
   });
 });
