@@ -1,6 +1,6 @@
 // HTTP: POST score with the audit log on, against a bare route in the same fastify answering with
 // the same bytes; same load generator and connections. Also p99 at a fixed 1,000 requests/s.
-//   npx tsx bench/http.ts [--seconds 8] [--connections 32]
+//   npx tsx bench/http.ts [--seconds 5] [--connections 32] [--rounds 5]
 import { mkdtempSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
@@ -16,9 +16,11 @@ export interface HttpFigures {
   ratio: number;
   /** POST score held at 1,000 requests a second. */
   fixed: LoadResult;
+  /** Each round's ratio; `ratio` is their median, and score and bare are that round's runs. */
+  rounds: number[];
 }
 
-export async function measureHttp(shape: ShapeName, sync: 'normal' | 'full', o: { seconds: number; connections: number }): Promise<HttpFigures> {
+export async function measureHttp(shape: ShapeName, sync: 'normal' | 'full', o: { seconds: number; connections: number; rounds: number }): Promise<HttpFigures> {
   const dir = mkdtempSync(join(tmpdir(), 'plumbline-bench-http-'));
   try {
     const models = await benchModels(dir, shape);
@@ -32,20 +34,19 @@ export async function measureHttp(shape: ShapeName, sync: 'normal' | 'full', o: 
       const bare = { ...score, url: `${server.info.url}/bench/bare` };
       await load({ ...score, seconds: 2 });
       await load({ ...bare, seconds: 2 });
-      // Two rounds each, interleaved; the better of each pair, so that a stray pause hurts neither.
-      const runs: Record<'score' | 'bare', LoadResult[]> = { score: [], bare: [] };
-      for (let round = 0; round < 2; round++) {
-        runs.bare.push(await load(bare));
-        runs.score.push(await load(score));
-      }
-      const best = (rs: LoadResult[]): LoadResult => rs.reduce((a, b) => (b.requestsPerSecond > a.requestsPerSecond ? b : a));
+      // Rounds of bare then score, back to back; the ratio is the median of the rounds' ratios,
+      // so that the machine's slow drifts (a shared host) fall on both sides of each ratio.
+      const rounds: Array<{ bare: LoadResult; score: LoadResult }> = [];
+      for (let round = 0; round < o.rounds; round++) rounds.push({ bare: await load(bare), score: await load(score) });
+      const median = <T>(xs: T[], key: (x: T) => number): T => [...xs].sort((a, b) => key(a) - key(b))[Math.floor(xs.length / 2)] as T;
+      const mid = median(rounds, (r) => r.score.requestsPerSecond / r.bare.requestsPerSecond);
       // Held at 1,000 requests a second, three times; the median p99 of the three.
       const held: LoadResult[] = [];
       for (let i = 0; i < 3; i++) held.push(await load({ ...score, connections: 8, rate: 1000 }));
-      const fixed = [...held].sort((x, y) => x.p99Ms - y.p99Ms)[1] as LoadResult;
-      const s = best(runs.score);
-      const b = best(runs.bare);
-      return { shape: shapeLabel(shape), sync, score: s, bare: b, ratio: s.requestsPerSecond / b.requestsPerSecond, fixed };
+      const fixed = median(held, (r) => r.p99Ms);
+      const s = mid.score;
+      const b = mid.bare;
+      return { shape: shapeLabel(shape), sync, score: s, bare: b, ratio: s.requestsPerSecond / b.requestsPerSecond, fixed, rounds: rounds.map((r) => r.score.requestsPerSecond / r.bare.requestsPerSecond) };
     } finally {
       await server.stop();
     }
@@ -60,7 +61,7 @@ if (process.argv[1]?.endsWith('http.ts')) {
     return i > 0 ? Number(process.argv[i + 1]) : fallback;
   };
   for (const [shape, sync] of [['demo', 'normal'], ['demo', 'full'], ['mid', 'normal'], ['wide', 'normal']] as const) {
-    const f = await measureHttp(shape, sync, { seconds: arg('seconds', 8), connections: arg('connections', 32) });
+    const f = await measureHttp(shape, sync, { seconds: arg('seconds', 5), connections: arg('connections', 32), rounds: arg('rounds', 5) });
     console.log(`${f.shape} sync ${f.sync}: score ${f.score.requestsPerSecond.toFixed(0)} req/s (p50 ${f.score.p50Ms} ms, p99 ${f.score.p99Ms} ms), bare ${f.bare.requestsPerSecond.toFixed(0)} req/s, ratio ${f.ratio.toFixed(2)}; at 1,000 req/s p99 ${f.fixed.p99Ms} ms; failed ${f.score.failed + f.bare.failed + f.fixed.failed} (${f.score.tool})`);
   }
 }

@@ -82,6 +82,8 @@ export const configSchema = z
       rejected_rows: int(0, 10_000_000).default(100_000),
       /** When a commit fails: "fail" answers 503 (no unaudited answer); "serve" answers and counts what was not logged. */
       on_error: z.enum(['fail', 'serve']).default('fail'),
+      /** Where commits run: on the event loop, or on a thread of their own (pays where a core is free). */
+      writer: z.enum(['event-loop', 'thread']).default('event-loop'),
     })
     .prefault({}),
   /** The nightly drift report. */

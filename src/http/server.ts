@@ -75,7 +75,7 @@ export async function startServer(
     queueRows: config.log.queue_rows,
     rejectedRows: config.log.rejected_rows,
     backgroundCheckpoints: true,
-    writerThread: true,
+    writerThread: config.log.writer === "thread",
   });
   let app: FastifyInstance | null = null;
   let alerting: Alerting | null = null;

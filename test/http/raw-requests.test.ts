@@ -9,7 +9,7 @@ import { tempDir } from '../helpers/datasets.js';
 const tmp = tempDir();
 let server: RunningServer;
 beforeAll(async () => {
-  server = await startServer(configSchema.parse({ port: 0, models_dir: new URL('../../demo-data/models', import.meta.url).pathname, db: join(tmp.dir, 'raw.db'), logger: { level: 'silent' }, reports: { schedule: 'off' } }));
+  server = await startServer(configSchema.parse({ port: 0, models_dir: new URL('../../demo-data/models', import.meta.url).pathname, db: join(tmp.dir, 'raw.db'), logger: { level: 'silent' }, reports: { schedule: 'off' }, log: { writer: 'thread' } }));
 });
 afterAll(async () => {
   await server.close();
@@ -55,7 +55,7 @@ describe('requests that are not well-formed HTTP', () => {
     expect((await fetch(`${server.url}/healthz`)).status).toBe(200);
   });
 
-  it('commits scored rows on its writer thread, and answers after they are in the log', async () => {
+  it('commits scored rows on its writer thread (log.writer "thread"), and answers after they are in the log', async () => {
     const res = await fetch(`${server.url}/v1/models/moulding-quality/score`, {
       method: 'POST',
       headers: { 'content-type': 'application/json' },
