@@ -11,6 +11,7 @@ import { type LoadResult, load } from './lib/load.js';
 export interface HttpFigures {
   shape: string;
   sync: 'normal' | 'full';
+  writer: 'event-loop' | 'thread';
   score: LoadResult;
   bare: LoadResult;
   ratio: number;
@@ -20,13 +21,14 @@ export interface HttpFigures {
   rounds: number[];
 }
 
-export async function measureHttp(shape: ShapeName, sync: 'normal' | 'full', o: { seconds: number; connections: number; rounds: number }): Promise<HttpFigures> {
+export async function measureHttp(shape: ShapeName, sync: 'normal' | 'full', o: { seconds: number; connections: number; rounds: number; writer?: 'event-loop' | 'thread' }): Promise<HttpFigures> {
   const dir = mkdtempSync(join(tmpdir(), 'plumbline-bench-http-'));
   try {
     const models = await benchModels(dir, shape);
     const features = vector(shape);
     // The limit is raised, not removed, so that both routes pay for the rate limiter as in service.
-    const config = { log: { sync }, limits: { requests_per_minute: 10_000_000 } };
+    const writer = o.writer ?? 'event-loop';
+    const config = { log: { sync, writer }, limits: { requests_per_minute: 10_000_000 } };
     const server = await startChild<{ url: string; bytes: number }>('http-server.ts', [models.dir, join(dir, 'bench.db'), models.model, JSON.stringify(features), JSON.stringify(config)]);
     try {
       const body = JSON.stringify({ features, tags: { line: '3', station: 'moulding-3' } });
@@ -46,7 +48,7 @@ export async function measureHttp(shape: ShapeName, sync: 'normal' | 'full', o: 
       const fixed = median(held, (r) => r.p99Ms);
       const s = mid.score;
       const b = mid.bare;
-      return { shape: shapeLabel(shape), sync, score: s, bare: b, ratio: s.requestsPerSecond / b.requestsPerSecond, fixed, rounds: rounds.map((r) => r.score.requestsPerSecond / r.bare.requestsPerSecond) };
+      return { shape: shapeLabel(shape), sync, writer, score: s, bare: b, ratio: s.requestsPerSecond / b.requestsPerSecond, fixed, rounds: rounds.map((r) => r.score.requestsPerSecond / r.bare.requestsPerSecond) };
     } finally {
       await server.stop();
     }
@@ -60,7 +62,7 @@ if (process.argv[1]?.endsWith('http.ts')) {
     const i = process.argv.indexOf(`--${name}`);
     return i > 0 ? Number(process.argv[i + 1]) : fallback;
   };
-  for (const [shape, sync] of [['demo', 'normal'], ['demo', 'full'], ['mid', 'normal'], ['wide', 'normal']] as const) {
+  for (const [shape, sync] of [['demo', 'normal'], ['mid', 'normal'], ['mid', 'full'], ['wide', 'normal']] as const) {
     const f = await measureHttp(shape, sync, { seconds: arg('seconds', 5), connections: arg('connections', 32), rounds: arg('rounds', 5) });
     console.log(`${f.shape} sync ${f.sync}: score ${f.score.requestsPerSecond.toFixed(0)} req/s (p50 ${f.score.p50Ms} ms, p99 ${f.score.p99Ms} ms), bare ${f.bare.requestsPerSecond.toFixed(0)} req/s, ratio ${f.ratio.toFixed(2)}; at 1,000 req/s p99 ${f.fixed.p99Ms} ms; failed ${f.score.failed + f.bare.failed + f.fixed.failed} (${f.score.tool})`);
   }
