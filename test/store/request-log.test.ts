@@ -50,13 +50,16 @@ describe.each([
   ['on the event loop', false],
   ['on the writer thread', true],
 ] as const)('group-commit writer, %s', (_, threaded) => {
-  const createRequestLog = (d: Database, o: WriterOptions): RequestLog => createLog(d, o, threaded ? { file, sync: 'normal', autocheckpoint: true } : undefined);
+  // Each test's log is closed after it, so that no writer thread outlives its test.
   const logs: RequestLog[] = [];
+  const createRequestLog = (d: Database, o: WriterOptions): RequestLog => {
+    const log = createLog(d, o, threaded ? { file, sync: 'normal', autocheckpoint: true } : undefined);
+    logs.push(log);
+    return log;
+  };
   afterEach(() => {
     for (const l of logs.splice(0)) l.close();
   });
-  const track = (l: RequestLog): RequestLog => (logs.push(l), l);
-  void track;
 
   it('says where it commits', () => {
     const log = createRequestLog(db, options());
