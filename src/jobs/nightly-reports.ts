@@ -26,8 +26,18 @@ export interface NightlyReports {
  * At start, the most recent scheduled run is made good if its reports are missing (the server was
  * down). Reports are built on worker threads, so scoring never waits for them.
  */
-export function startNightlyReports(deps: { registry: ModelRegistry; reports: ReportService; drift: DriftStore; schedule: string; timezone: string; log: Logger }): NightlyReports {
+export function startNightlyReports(deps: {
+  registry: ModelRegistry;
+  reports: ReportService;
+  drift: DriftStore;
+  schedule: string;
+  timezone: string;
+  log: Logger;
+  /** The clock; tests set it so that what "the last scheduled run" is does not depend on the day they run. */
+  now?: () => Date;
+}): NightlyReports {
   const { registry, reports, drift, timezone, log } = deps;
+  const now = deps.now ?? (() => new Date());
   let running: Promise<void> = Promise.resolve();
   const runFor = (at: Date): Promise<void> => {
     // One pass at a time; a slow pass makes the next one wait rather than run beside it.
@@ -45,8 +55,8 @@ export function startNightlyReports(deps: { registry: ModelRegistry; reports: Re
     });
     return running;
   };
-  const job = new Cron(deps.schedule, { timezone, protect: true }, () => void runFor(new Date()));
-  const last = job.previousRuns(1, new Date())[0];
+  const job = new Cron(deps.schedule, { timezone, protect: true }, () => void runFor(now()));
+  const last = job.previousRuns(1, now())[0];
   if (last) void runFor(last);
   return {
     runFor,
