@@ -3,7 +3,7 @@
 // that the tables show how cost grows with work. Loopback only; takes about ten minutes.
 //   npm run bench [-- --quick] [-- --soak]
 // --quick shortens every timed run (for trying the script, not for figures to quote).
-// --soak adds the ten-minute soak (bench/soak.ts) and quotes its summary.
+// --soak adds the ten-minute soak (bench/soak.ts) and quotes its summary; --soak-minutes N sets its length.
 import { execFileSync } from 'node:child_process';
 import { writeFileSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
@@ -14,7 +14,7 @@ import { describeMachine } from './lib/machine.js';
 import { hasWrk } from './lib/load.js';
 
 const quick = process.argv.includes('--quick');
-const soak = process.argv.includes('--soak');
+const soak = process.argv.includes('--soak') || process.argv.includes('--soak-minutes');
 const seconds = quick ? 2 : 5;
 const say = (line: string): void => void process.stderr.write(`${line}\n`);
 const f0 = (v: number): string => v.toLocaleString('en-GB', { maximumFractionDigits: 0 });
@@ -122,8 +122,10 @@ sections.push(
 );
 
 if (soak) {
-  say('soak (ten minutes) ...');
-  const out = execFileSync(process.execPath, ['--import', 'tsx', fileURLToPath(new URL('soak.ts', import.meta.url))], { encoding: 'utf8' });
+  say('soak ...');
+  const i = process.argv.indexOf('--soak-minutes');
+  const minutes = i > 0 ? ['--minutes', String(Number(process.argv[i + 1]))] : [];
+  const out = execFileSync(process.execPath, ['--import', 'tsx', fileURLToPath(new URL('soak.ts', import.meta.url)), ...minutes], { encoding: 'utf8' });
   sections.push(['## Soak', '', '```', out.trim(), '```'].join('\n'));
 }
 

@@ -1,7 +1,7 @@
 // Soak: the service in a process of its own, scoring at a steady rate for a long time (10 minutes
 // by default), its memory sampled from /metrics. Reports how memory and latency moved between the
 // end of the warm-up and the end. Loopback only.
-//   npx tsx bench/soak.ts [--minutes 10] [--rate 400] [--connections 8]
+//   npx tsx bench/soak.ts [--minutes 10] [--rate 400] [--connections 8] [--writer event-loop|thread]
 import { type ChildProcess, spawn } from 'node:child_process';
 import { once } from 'node:events';
 import { mkdtempSync, rmSync, statSync } from 'node:fs';
@@ -17,6 +17,7 @@ const arg = (name: string, fallback: number): number => {
 const MINUTES = arg('minutes', 10);
 const RATE = arg('rate', 400);
 const CONNECTIONS = arg('connections', 8);
+const WRITER = process.argv.includes('--writer') ? (process.argv[process.argv.indexOf('--writer') + 1] as string) : 'event-loop';
 const WARMUP_S = Math.min(60, (MINUTES * 60) / 5);
 const SAMPLE_S = 10;
 const CHILD = fileURLToPath(new URL('../test/fixtures/serve-child.ts', import.meta.url));
@@ -30,7 +31,7 @@ interface Sample {
 }
 
 async function start(db: string): Promise<{ child: ChildProcess; url: string }> {
-  const child = spawn(process.execPath, ['--import', 'tsx', CHILD, db, JSON.stringify({ limits: { requests_per_minute: 0 } })], { stdio: ['ignore', 'pipe', 'inherit'] });
+  const child = spawn(process.execPath, ['--import', 'tsx', CHILD, db, JSON.stringify({ limits: { requests_per_minute: 0 }, log: { writer: WRITER } })], { stdio: ['ignore', 'pipe', 'inherit'] });
   let out = '';
   for await (const chunk of child.stdout as AsyncIterable<Buffer>) {
     out += chunk.toString();
@@ -77,7 +78,7 @@ const t0 = Date.now();
 const samples: Sample[] = [];
 const timer = setInterval(() => void sample(url, t0).then((s) => samples.push(s), () => undefined), SAMPLE_S * 1000);
 samples.push(await sample(url, t0));
-console.log(`soak: ${MINUTES} min at ${RATE} requests/s over ${CONNECTIONS} connections against ${url} (warm-up ${WARMUP_S} s)`);
+console.log(`soak: ${MINUTES} min at ${RATE} requests/s over ${CONNECTIONS} connections against ${url}, log.writer ${WRITER} (warm-up ${WARMUP_S} s)`);
 
 const result = await autocannon({
   url: `${url}/v1/models/moulding-quality/score`,
