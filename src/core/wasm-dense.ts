@@ -110,6 +110,62 @@ function blocks(lanes: number): number[] {
   ];
 }
 
+// solve(lt, out, n): forward substitution by columns over L^T (row-major, so that a column of L
+// is contiguous). out holds v on entry and y on return: for each k, y_k = out[k] / L[k,k], then
+// out[i] = out[i] - L[i,k] * y_k for i > k, two lanes at a time. Each out[i] takes its terms in
+// order of k, as in the row-by-row definition, so the bits are the same as linalg.ts's.
+const F64 = 0x7c;
+const [LT, SOUT, SN] = [0, 1, 2];
+const [K, SI, COL, SP, Y, VY] = [3, 4, 5, 6, 7, 8];
+const f64load = [0x2b, 3, 0];
+const f64store = [0x39, 3, 0];
+const tee = (l: number): number[] => [0x22, ...uleb(l)];
+const FSUB = [0xfd, ...uleb(0xf1)]; // f64x2.sub
+/** The byte address of element `index` of the array at `base`: base + index * 8. */
+const at = (base: number, index: number): number[] => [...get(base), ...get(index), ...i32c(8), ...MUL, ...ADD];
+
+function solveBody(): number[] {
+  return [
+    ...i32c(0),
+    ...set(K),
+    ...block(
+      loop(
+        get(K), get(SN), GE_S, brIf(1),
+        // col = lt + k * n * 8
+        get(LT), get(K), get(SN), MUL, i32c(8), MUL, ADD, set(COL),
+        // y = out[k] / col[k]; out[k] = y
+        at(SOUT, K), tee(SP), f64load, at(COL, K), f64load, [0xa3], set(Y),
+        get(SP), get(Y), f64store,
+        get(Y), [0xfd, 0x14], set(VY), // f64x2.splat
+        get(K), i32c(1), ADD, set(SI),
+        // two at a time: out[i..i+1] = out[i..i+1] - col[i..i+1] * y
+        block(
+          loop(
+            get(SI), i32c(2), ADD, get(SN), GT_S, brIf(1),
+            at(SOUT, SI), tee(SP),
+            get(SP), vload(0),
+            at(COL, SI), vload(0), get(VY), FMUL, FSUB,
+            vstore(0),
+            get(SI), i32c(2), ADD, set(SI),
+            br(0),
+          ),
+        ),
+        // the last one, when n - k - 1 is odd
+        get(SI), get(SN), [0x48], // i32.lt_s
+        [0x04, 0x40], // if
+        at(SOUT, SI), tee(SP),
+        get(SP), f64load,
+        at(COL, SI), f64load, get(Y), [0xa2], [0xa1], // f64.mul, f64.sub
+        f64store,
+        [0x0b],
+        get(K), i32c(1), ADD, set(K),
+        br(0),
+      ),
+    ),
+    0x0b,
+  ];
+}
+
 function kernelModule(): Uint8Array {
   const body = [
     ...i32c(0),
@@ -122,13 +178,16 @@ function kernelModule(): Uint8Array {
   ];
   const locals = [...uleb(2), ...uleb(10), I32, ...uleb(11), V128];
   const code = [...uleb(locals.length + body.length), ...locals, ...body];
+  const solve = solveBody();
+  const solveLocals = [...uleb(3), ...uleb(4), I32, ...uleb(1), F64, ...uleb(1), V128];
+  const solveCode = [...uleb(solveLocals.length + solve.length), ...solveLocals, ...solve];
   return Uint8Array.from([
     0x00, 0x61, 0x73, 0x6d, 0x01, 0x00, 0x00, 0x00,
-    ...section(1, [1, 0x60, ...uleb(9), ...new Array<number>(9).fill(I32), 0]),
+    ...section(1, [2, 0x60, ...uleb(9), ...new Array<number>(9).fill(I32), 0, 0x60, ...uleb(3), I32, I32, I32, 0]),
     ...section(2, [1, ...str('env'), ...str('memory'), 0x02, 0x00, 0x01]),
-    ...section(3, [1, 0]),
-    ...section(7, [1, ...str('dense'), 0x00, 0]),
-    ...section(10, [1, ...code]),
+    ...section(3, [2, 0, 1]),
+    ...section(7, [2, ...str('dense'), 0x00, 0, ...str('solve'), 0x00, 1]),
+    ...section(10, [2, ...code, ...solveCode]),
   ]);
 }
 
@@ -281,4 +340,28 @@ export function createWasmForwardPass(net: Network, initialRows = 64): ForwardPa
 /** The WebAssembly pass where it can run, else the JavaScript one: the same results either way. */
 export function createFastForwardPass(net: Network, initialRows = 64): ForwardPass {
   return createWasmForwardPass(net, initialRows) ?? createForwardPass(net, initialRows);
+}
+
+/** Below this size the JavaScript substitution is as fast as a call into the kernel. */
+export const WASM_SOLVE_MIN = 32;
+
+/**
+ * Forward substitution with a lower-triangular L (row-major n x n) on the WebAssembly kernel:
+ * solve(v, vOffset, out) writes y with L y = v[vOffset ..] into out, with the same bits as
+ * linalg.ts's row-by-row loop. Null where WebAssembly SIMD is not available.
+ */
+export function createWasmSolver(l: ArrayLike<number>, n: number): ((v: ArrayLike<number>, vOffset: number, out: Float64Array) => void) | null {
+  const module = kernel();
+  if (!module || !wasm) return null;
+  const memory = new wasm.Memory({ initial: Math.max(1, Math.ceil((n * n * 8 + n * 8 + 16) / PAGE)) });
+  const solve = new wasm.Instance(module, { env: { memory } }).exports.solve as (lt: number, out: number, n: number) => void;
+  const lt = new Float64Array(memory.buffer, 0, n * n);
+  for (let i = 0; i < n; i++) for (let k = 0; k <= i; k++) lt[k * n + i] = l[i * n + k] as number;
+  const outAt = align16(n * n * 8);
+  const work = new Float64Array(memory.buffer, outAt, n);
+  return (v, vOffset, out) => {
+    for (let i = 0; i < n; i++) work[i] = v[vOffset + i] as number;
+    solve(0, outAt, n);
+    out.set(work.subarray(0, n));
+  };
 }
