@@ -3,6 +3,7 @@ import type { DomainCheck, OutsideFeature } from '../bundle/scorer.js';
 import { cursorCodec } from '../cursor.js';
 import { fromFloat64Blob } from './float64-blob.js';
 import { createModelCache } from './models-table.js';
+import type { ChainedRow } from './chain.js';
 
 export interface RequestFilter {
   model?: string;
@@ -39,25 +40,8 @@ export interface RequestPage {
   next_cursor: string | null;
 }
 
-interface Row {
-  seq: number;
-  request_id: string;
-  batch_id: string | null;
-  received_at: number;
-  model_sha256: string;
-  model_name: string;
-  model_version: string;
-  features: Buffer;
-  tags: string | null;
-  label: string;
-  probabilities: Buffer;
-  margin: number;
-  in_domain: number;
-  review: number;
-  domain: string;
-  latency_us: number;
-  key_label: string | null;
-}
+/** A stored row of scored_requests, as read back: the columns the chain seals. */
+type Row = ChainedRow;
 
 // Opaque to clients; the "r1" tag lets the format change later.
 const codec = cursorCodec('r1');
