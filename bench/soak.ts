@@ -2,13 +2,12 @@
 // by default), its memory sampled from /metrics. Reports how memory and latency moved between the
 // end of the warm-up and the end. Loopback only.
 //   npx tsx bench/soak.ts [--minutes 10] [--rate 400] [--connections 8] [--writer event-loop|thread]
-import { type ChildProcess, spawn } from 'node:child_process';
-import { once } from 'node:events';
 import { mkdtempSync, rmSync, statSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { fileURLToPath } from 'node:url';
 import autocannon from 'autocannon';
+import { DEMO_SHOT } from './lib/bundles.js';
+import { startChild } from './lib/child.js';
 
 const arg = (name: string, fallback: number): number => {
   const i = process.argv.indexOf(`--${name}`);
@@ -20,25 +19,12 @@ const CONNECTIONS = arg('connections', 8);
 const WRITER = process.argv.includes('--writer') ? (process.argv[process.argv.indexOf('--writer') + 1] as string) : 'event-loop';
 const WARMUP_S = Math.min(60, (MINUTES * 60) / 5);
 const SAMPLE_S = 10;
-const CHILD = fileURLToPath(new URL('../test/fixtures/serve-child.ts', import.meta.url));
-const SHOT = [232.1, 53.8, 923, 478, 3.48, 14.18, 102, 5.4, 23.7, 47.93];
 
 interface Sample {
   t: number;
   rssMb: number;
   heapMb: number;
   scored: number;
-}
-
-async function start(db: string): Promise<{ child: ChildProcess; url: string }> {
-  const child = spawn(process.execPath, ['--import', 'tsx', CHILD, db, JSON.stringify({ limits: { requests_per_minute: 0 }, log: { writer: WRITER } })], { stdio: ['ignore', 'pipe', 'inherit'] });
-  let out = '';
-  for await (const chunk of child.stdout as AsyncIterable<Buffer>) {
-    out += chunk.toString();
-    const line = out.split('\n').find((l) => l.startsWith('{'));
-    if (line) return { child, url: (JSON.parse(line) as { url: string }).url };
-  }
-  throw new Error('the service exited before it listened');
 }
 
 const metric = (text: string, name: string): number => {
@@ -73,7 +59,8 @@ function slope(xs: number[], ys: number[]): number {
 
 const dir = mkdtempSync(join(tmpdir(), 'plumbline-soak-'));
 const db = join(dir, 'soak.db');
-const { child, url } = await start(db);
+const server = await startChild<{ url: string }>('../test/fixtures/serve-child.ts', [db, JSON.stringify({ limits: { requests_per_minute: 0 }, log: { writer: WRITER } })]);
+const { url } = server.info;
 const t0 = Date.now();
 const samples: Sample[] = [];
 const timer = setInterval(() => void sample(url, t0).then((s) => samples.push(s), () => undefined), SAMPLE_S * 1000);
@@ -84,15 +71,14 @@ const result = await autocannon({
   url: `${url}/v1/models/moulding-quality/score`,
   method: 'POST',
   headers: { 'content-type': 'application/json' },
-  body: JSON.stringify({ features: SHOT, tags: { line: '3', cell: 'moulding-3' } }),
+  body: JSON.stringify({ features: DEMO_SHOT, tags: { line: '3', cell: 'moulding-3' } }),
   connections: CONNECTIONS,
   overallRate: RATE,
   duration: MINUTES * 60,
 });
 clearInterval(timer);
 samples.push(await sample(url, t0));
-child.kill('SIGTERM');
-await once(child, 'exit');
+await server.stop();
 const dbMb = (statSync(db).size + (statSync(`${db}-wal`, { throwIfNoEntry: false })?.size ?? 0)) / 2 ** 20;
 rmSync(dir, { recursive: true, force: true });
 
