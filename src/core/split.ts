@@ -38,3 +38,33 @@ export function takeRows(x: Float64Array, cols: number, indices: readonly number
 export function take(values: ArrayLike<number>, indices: readonly number[]): Int32Array {
   return Int32Array.from(indices, (i) => values[i] as number);
 }
+
+/**
+ * Stratified K-fold assignment: each class is shuffled with the seeded generator and dealt to the
+ * folds in turn, starting where the previous class stopped, so that every fold holds each class in
+ * proportion (counts differ by at most one) and the fold sizes differ by at most one. Returns the
+ * fold of each row.
+ */
+export function stratifiedFolds(labels: ArrayLike<number>, classes: number, folds: number, rng: Rng): Int32Array {
+  if (!Number.isInteger(folds) || folds < 2) throw new RangeError(`folds must be an integer >= 2, got ${folds}`);
+  if (labels.length < folds) throw new RangeError(`${folds} folds need at least ${folds} rows, got ${labels.length}`);
+  const byClass: number[][] = Array.from({ length: classes }, () => []);
+  for (let i = 0; i < labels.length; i++) byClass[labels[i] as number]?.push(i);
+  const fold = new Int32Array(labels.length);
+  let next = 0;
+  for (const members of byClass) {
+    shuffleInPlace(members, rng);
+    for (const row of members) {
+      fold[row] = next;
+      next = (next + 1) % folds;
+    }
+  }
+  return fold;
+}
+
+/** The indices i with fold[i] === k (or !== k when `except`), in ascending order. */
+export function rowsOfFold(fold: ArrayLike<number>, k: number, except = false): number[] {
+  const out: number[] = [];
+  for (let i = 0; i < fold.length; i++) if ((fold[i] === k) !== except) out.push(i);
+  return out;
+}
