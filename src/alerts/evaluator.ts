@@ -1,3 +1,4 @@
+import { falseAlarmBaseline } from '../bundle/baseline.js';
 import type { Logger } from 'pino';
 import type { ModelRegistry } from '../bundle/registry.js';
 import { uuidv7 } from '../ids.js';
@@ -63,7 +64,8 @@ export function createEvaluator(deps: { rules: AlertRule[]; registry: ModelRegis
     if (rule.above !== undefined) return rule.above;
     if (rule.below !== undefined) return rule.below;
     const entry = registry.get(model);
-    return entry && rule.above_expected !== undefined ? rule.above_expected * entry.bundle.file.domain.held_out.false_alarm_rate : null;
+    // The top of the baseline's 95% interval: a rate measured on a few hundred rows is known no better.
+    return entry && rule.above_expected !== undefined ? rule.above_expected * falseAlarmBaseline(entry.bundle.file).high : null;
   };
 
   const evaluate = (rule: AlertRule, model: string, now: number): void => {

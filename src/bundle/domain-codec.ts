@@ -1,6 +1,6 @@
-import { DETECTORS, type DetectorName, type DomainModels } from '../core/domain/detectors.js';
+import { DETECTORS, type DetectorName, type DomainModels, type MemberModels } from '../core/domain/detectors.js';
 import { type ClassConditionalModel, type MahalanobisModel, whitenMeans } from '../core/domain/mahalanobis.js';
-import type { Domain } from './schema.js';
+import { type AnyBundleFile, BUNDLE_FORMAT_V1 } from './schema.js';
 
 /** The lower triangle of a row-major n x n matrix, row by row. */
 export function packLower(m: Float64Array, n: number): number[] {
@@ -25,37 +25,56 @@ export function triangleSide(length: number): number {
 export interface DomainRuntime {
   models: DomainModels;
   thresholds: Record<DetectorName, number>;
+  /** The detectors that vote, in the order answers list them. */
   enabled: DetectorName[];
 }
 
-/** Turns the bundle's domain section into the detectors the scorer runs. */
-export function decodeDomain(domain: Domain, temperature: number): DomainRuntime {
-  const models: DomainModels = { envelope: domain.envelope };
-  const thresholds = { envelope: 0, input_mahalanobis: Infinity, feature_mahalanobis: Infinity, energy: Infinity } as Record<DetectorName, number>;
-  const input = domain.input_mahalanobis;
-  if (input) {
-    const dim = input.mean.length;
-    models.input_mahalanobis = { dim, mean: Float64Array.from(input.mean), cholesky: unpackLower(input.cholesky, dim), shrinkage: input.shrinkage } satisfies MahalanobisModel;
-    thresholds.input_mahalanobis = input.threshold;
+function gaussian(g: { mean: number[]; cholesky: number[]; shrinkage: number }): MahalanobisModel {
+  const dim = g.mean.length;
+  return { dim, mean: Float64Array.from(g.mean), cholesky: unpackLower(g.cholesky, dim), shrinkage: g.shrinkage };
+}
+
+function classGaussian(g: { class_means: number[][]; cholesky: number[]; shrinkage: number }): ClassConditionalModel {
+  const dim = g.class_means[0]?.length ?? 0;
+  const means = Float64Array.from(g.class_means.flat());
+  const l = unpackLower(g.cholesky, dim);
+  return { dim, classes: g.class_means.length, means, cholesky: l, shrinkage: g.shrinkage, whitenedMeans: whitenMeans(means, l, dim, g.class_means.length) };
+}
+
+/** Turns a bundle's domain section, either version, into the detectors the scorer runs. */
+export function decodeDomain(file: AnyBundleFile): DomainRuntime {
+  const thresholds = { envelope: 0, input_mahalanobis: Infinity, feature_mahalanobis: Infinity, energy: Infinity, disagreement: Infinity } as Record<DetectorName, number>;
+  const temperature = file.calibration.temperature;
+  const members: MemberModels[] = [];
+  const dom = file.domain;
+  if (file.format === BUNDLE_FORMAT_V1) {
+    const v1 = file.domain;
+    const member: MemberModels = {};
+    if (v1.input_mahalanobis) member.input_mahalanobis = gaussian(v1.input_mahalanobis);
+    if (v1.feature_mahalanobis) member.feature_mahalanobis = classGaussian(v1.feature_mahalanobis);
+    members.push(member);
+  } else {
+    const v2 = file.domain;
+    file.members.forEach((_, m) => {
+      const member: MemberModels = {};
+      const input = v2.input_mahalanobis?.members[m];
+      if (input) member.input_mahalanobis = gaussian(input);
+      const feature = v2.feature_mahalanobis?.members[m];
+      if (feature) member.feature_mahalanobis = classGaussian(feature);
+      members.push(member);
+    });
   }
-  const feature = domain.feature_mahalanobis;
-  if (feature) {
-    const dim = feature.class_means[0]?.length ?? 0;
-    const means = Float64Array.from(feature.class_means.flat());
-    const l = unpackLower(feature.cholesky, dim);
-    models.feature_mahalanobis = {
-      dim,
-      classes: feature.class_means.length,
-      means,
-      cholesky: l,
-      shrinkage: feature.shrinkage,
-      whitenedMeans: whitenMeans(means, l, dim, feature.class_means.length),
-    } satisfies ClassConditionalModel;
-    thresholds.feature_mahalanobis = feature.threshold;
-  }
-  if (domain.energy) {
+  const models: DomainModels = { envelope: { tolerance: dom.envelope.tolerance, low: dom.envelope.low, high: dom.envelope.high }, members };
+  if ('range' in dom.envelope) models.naming = dom.envelope.range;
+  if (dom.input_mahalanobis) thresholds.input_mahalanobis = dom.input_mahalanobis.threshold;
+  if (dom.feature_mahalanobis) thresholds.feature_mahalanobis = dom.feature_mahalanobis.threshold;
+  if (dom.energy) {
     models.energy = { temperature };
-    thresholds.energy = domain.energy.threshold;
+    thresholds.energy = dom.energy.threshold;
   }
-  return { models, thresholds, enabled: DETECTORS.filter((d) => d === 'envelope' || domain[d] !== undefined) };
+  if ('disagreement' in dom && dom.disagreement) {
+    models.disagreement = true;
+    thresholds.disagreement = dom.disagreement.threshold;
+  }
+  return { models, thresholds, enabled: DETECTORS.filter((d) => d === 'envelope' || (dom as Record<string, unknown>)[d] !== undefined) };
 }

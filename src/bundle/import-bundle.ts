@@ -1,14 +1,11 @@
-import { meanNll } from '../core/calibration.js';
-import { forward } from '../core/network.js';
-import { standardize } from '../core/standardize.js';
 import type { ImportedGraph } from '../io/onnx/index.js';
-import { ECE_BINS, type Evaluation, evaluateHeldOut } from './evaluate.js';
+import { ECE_BINS, type Evaluation, evaluateHeldOut, heldOutLogits } from './evaluate.js';
 import { encodeNetwork } from './network-codec.js';
 import { BUNDLE_FORMAT, type BundleFile } from './schema.js';
 import { type BundleOptions, type LabelledTable, isoSeconds, servingSections } from './train-bundle.js';
 import { sealBundle } from './verify.js';
 
-export interface ImportOptions extends Pick<BundleOptions, 'name' | 'version' | 'createdAt' | 'tolerance' | 'reviewMargin' | 'detectors' | 'inDomainRate' | 'seed' | 'dataSha256' | 'labelColumn'> {
+export interface ImportOptions extends Pick<BundleOptions, 'name' | 'version' | 'createdAt' | 'tolerance' | 'reviewMargin' | 'detectors' | 'inDomainRate' | 'keepWeak' | 'seed' | 'dataSha256' | 'labelColumn'> {
   /** Labelled held-out rows (raw units): the temperature is fitted and the flag calibrated on them. */
   calibrateOn?: { x: Float64Array; rows: number; labels: Int32Array };
   onnxFile: string;
@@ -39,8 +36,12 @@ export function importBundle(table: LabelledTable, graph: ImportedGraph, options
   if (last.outputs !== K) throw new ImportMismatchError(`the graph gives ${last.outputs} class scores, but ${K} classes are named (${table.classes.join(', ')})`);
 
   const cal = options.calibrateOn;
-  const evaluation = cal ? evaluateHeldOut(network, preprocess, cal.x, cal.labels, table.classes, true) : evaluateHeldOut(network, preprocess, table.x, table.labels, table.classes, false);
-  const nll = (x: Float64Array, rows: number, labels: Int32Array): number => meanNll(forward(network, standardize(preprocess, x, rows), rows).logits, rows, K, labels, 1);
+  const all = Array.from({ length: table.rows }, (_, r) => r);
+  // The imported network never saw --calibrate-on's rows (as far as anyone here can know): they are
+  // checked as new vectors are. Without them, the data itself stands in, which flatters the flag.
+  const rowsOf = cal ?? table;
+  const logits = heldOutLogits(() => [network], preprocess, { x: rowsOf.x, rows: rowsOf.rows, memberOf: new Int32Array(rowsOf.rows) }, K);
+  const evaluation = evaluateHeldOut(logits, rowsOf.labels, table.classes, cal !== undefined);
 
   const bundle = sealBundle({
     format: BUNDLE_FORMAT,
@@ -50,15 +51,17 @@ export function importBundle(table: LabelledTable, graph: ImportedGraph, options
     features: table.features,
     classes: table.classes,
     preprocess,
-    network: encodeNetwork(network),
-    calibration: { temperature: evaluation.temperature },
+    members: [encodeNetwork(network)],
+    calibration: { temperature: evaluation.temperature, fit: evaluation.fit },
     ...servingSections({
-      network,
+      members: [network],
       preprocess,
       temperature: evaluation.temperature,
       table,
-      domainTrain: { x: table.x, labels: table.labels, rows: table.rows },
-      heldOut: cal ? { x: cal.x, rows: cal.rows, source: 'calibrate-on' } : { x: table.x, rows: table.rows, source: 'training' },
+      memberRows: [all],
+      calibration: cal
+        ? { x: cal.x, rows: cal.rows, memberOf: new Int32Array(cal.rows).fill(-1), source: 'calibrate-on' }
+        : { x: table.x, rows: table.rows, memberOf: new Int32Array(table.rows).fill(-1), source: 'training' },
       validation: { predicted: evaluation.predicted, margins: evaluation.margins },
       options,
     }),
@@ -72,7 +75,7 @@ export function importBundle(table: LabelledTable, graph: ImportedGraph, options
         data_sha256: options.dataSha256,
         label_column: options.labelColumn,
       },
-      rows: { total: table.rows + (cal?.rows ?? 0), train: table.rows, validation: cal?.rows ?? 0 },
+      rows: { total: table.rows + (cal?.rows ?? 0), folds: 1, held_out: cal?.rows ?? 0 },
       seed: options.seed,
       options: {
         imported_from: 'onnx',
@@ -83,17 +86,15 @@ export function importBundle(table: LabelledTable, graph: ImportedGraph, options
         envelope_tolerance: options.tolerance,
         review_margin: options.reviewMargin,
         detectors: [...options.detectors],
+        keep_weak: options.keepWeak,
         in_domain_rate: options.inDomainRate,
       },
-      epochs_run: 0,
-      best_epoch: 0,
-      stopped_early: false,
+      calibration_networks: 0,
+      members: [],
       metrics: {
-        train_loss: nll(table.x, table.rows, table.labels),
-        validation_loss: cal ? nll(cal.x, cal.rows, cal.labels) : null,
         // On the held-out rows when given; else on the data itself, which the network may have been trained on.
-        validation: evaluation.metrics,
-        calibration: { temperature: evaluation.temperature, bins: ECE_BINS, ece_before: evaluation.eceBefore, ece_after: evaluation.eceAfter },
+        held_out: evaluation.metrics,
+        calibration: { temperature: evaluation.temperature, fit: evaluation.fit, bins: ECE_BINS, before: evaluation.before, after: evaluation.after },
       },
     },
   });

@@ -1,9 +1,7 @@
 import { DEFAULT_ALPHA, takesAlpha } from '../core/activations.js';
 import type { DenseLayer, Network } from '../core/network.js';
 import { decodeFloat32, encodeFloat32 } from './float32-codec.js';
-import type { BundleFile } from './schema.js';
-
-type LayerJson = BundleFile['network']['layers'][number];
+import type { LayerJson } from './schema.js';
 
 export function encodeNetwork(net: Network): { layers: LayerJson[] } {
   return {
@@ -18,10 +16,13 @@ export function encodeNetwork(net: Network): { layers: LayerJson[] } {
   };
 }
 
-/** Decodes the layers; throws an Error whose message starts with the JSON path of the bad field. */
-export function decodeNetwork(json: { layers: LayerJson[] }): Network {
+/**
+ * Decodes the layers; throws an Error whose message starts with the JSON path of the bad field
+ * (`path` is where the network sits: `network` in version 1, `members[m]` in version 2).
+ */
+export function decodeNetwork(json: { layers: LayerJson[] }, path = 'network'): Network {
   const layers: DenseLayer[] = json.layers.map((l, i) => {
-    const at = `network.layers[${i}]`;
+    const at = `${path}.layers[${i}]`;
     const decode = (field: 'weights' | 'bias', n: number): Float64Array => {
       try {
         return decodeFloat32(l[field], n);

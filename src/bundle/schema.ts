@@ -2,9 +2,12 @@ import { z } from 'zod';
 import { ACTIVATIONS } from '../core/activations.js';
 import { TEMPERATURE_RANGE } from '../core/calibration.js';
 
-export const BUNDLE_FORMAT = 'plumbline-bundle/1';
+/** The format this version writes; version 1 is still read (and scored exactly as before). */
+export const BUNDLE_FORMAT = 'plumbline-bundle/2';
+export const BUNDLE_FORMAT_V1 = 'plumbline-bundle/1';
+export const BUNDLE_FORMATS = [BUNDLE_FORMAT_V1, BUNDLE_FORMAT] as const;
 
-/** Quantile levels stored per feature in the reference (DESIGN.md, bundle reference). */
+/** Quantile levels stored per feature in the reference (docs/bundle-format.md). */
 export const REFERENCE_QUANTILE_LEVELS = [0.001, 0.01, 0.05, 0.1, 0.2, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9, 0.95, 0.99, 0.999] as const;
 
 const finite = z.number(); // zod 4 refuses Infinity and NaN by itself
@@ -102,7 +105,7 @@ export const evaluationSchema = z.strictObject({
   ),
 });
 
-export const domainSchema = z.strictObject({
+export const domainV1Schema = z.strictObject({
   review_margin: probability,
   /** Share of in-domain rows the composite flag is calibrated to let through. */
   target_in_domain_rate: probability,
@@ -135,25 +138,27 @@ export const domainSchema = z.strictObject({
   evaluation: evaluationSchema,
 });
 
-export const trainingSchema = z.strictObject({
-  source: z.discriminatedUnion('kind', [
-    // Trained here, on a CSV file.
-    z.strictObject({
-      kind: z.literal('csv'),
-      data_sha256: sha256,
-      label_column: z.string(),
-    }),
-    // Trained elsewhere and imported from ONNX; the CSV file gave the reference and the detectors.
-    z.strictObject({
-      kind: z.literal('onnx'),
-      onnx_sha256: sha256,
-      onnx_file: z.string().max(256),
-      producer: z.string().max(256),
-      opset: z.number().int().min(1),
-      data_sha256: sha256,
-      label_column: z.string(),
-    }),
-  ]),
+const trainingSourceSchema = z.discriminatedUnion('kind', [
+  // Trained here, on a CSV file.
+  z.strictObject({
+    kind: z.literal('csv'),
+    data_sha256: sha256,
+    label_column: z.string(),
+  }),
+  // Trained elsewhere and imported from ONNX; the CSV file gave the reference and the detectors.
+  z.strictObject({
+    kind: z.literal('onnx'),
+    onnx_sha256: sha256,
+    onnx_file: z.string().max(256),
+    producer: z.string().max(256),
+    opset: z.number().int().min(1),
+    data_sha256: sha256,
+    label_column: z.string(),
+  }),
+]);
+
+export const trainingV1Schema = z.strictObject({
+  source: trainingSourceSchema,
   rows: z.strictObject({ total: count, train: count, validation: count }),
   seed: count,
   options: z.record(z.string(), z.unknown()),
@@ -173,6 +178,101 @@ export const trainingSchema = z.strictObject({
   }),
 });
 
+const layersSchema = z.array(layerSchema).min(1).max(64);
+// scale >= 1e-30 keeps (x - mean) / scale finite for every accepted input (|x| <= 1e15).
+const preprocessSchema = z.strictObject({ mean: z.array(finite), scale: z.array(finite.min(1e-30)) });
+const temperatureSchema = finite.min(TEMPERATURE_RANGE.min).max(TEMPERATURE_RANGE.max);
+
+export const bundleV1Schema = z.strictObject({
+  format: z.literal(BUNDLE_FORMAT_V1),
+  name: modelNameSchema,
+  version: modelVersionSchema,
+  created_at: z.iso.datetime(),
+  features: z.array(featureSchema).min(1).max(4096),
+  classes: z.array(labelText).min(2).max(1000),
+  preprocess: preprocessSchema,
+  network: z.strictObject({ layers: layersSchema }),
+  calibration: z.strictObject({ temperature: temperatureSchema }),
+  domain: domainV1Schema,
+  reference: referenceSchema,
+  training: trainingV1Schema,
+  sha256,
+});
+
+// --- version 2: an ensemble of fold networks, a jointly calibrated flag, honest small-sample figures ---
+
+/** Lower triangle of a covariance's Cholesky factor, row by row: n(n+1)/2 values. */
+const gaussianSchema = z.strictObject({ mean: z.array(finite), cholesky: z.array(finite), shrinkage: probability });
+const classGaussianSchema = z.strictObject({ class_means: z.array(z.array(finite)), cholesky: z.array(finite), shrinkage: probability });
+
+export const calibrationFits = ['fitted', 'separable', 'flat', 'not_fitted'] as const;
+
+export const domainSchema = z.strictObject({
+  review_margin: probability,
+  /** Share of in-domain rows the composite flag was asked to let through. */
+  target_in_domain_rate: probability,
+  /** The rows the thresholds were calibrated on, and what they support. */
+  held_out: z.strictObject({
+    source: z.enum(['out_of_fold', 'validation', 'calibrate-on', 'training']),
+    rows: count,
+    /** The level calibrated to: the target, or n / (n + 1) where the rows cannot support it. */
+    level: probability,
+    /** Leave-one-out share of the rows the flag passes, and its complement. */
+    in_domain_rate: probability,
+    false_alarm_rate: probability,
+    /** Clopper–Pearson interval of the false-alarm rate on these rows. */
+    false_alarm_ci: z.strictObject({ low: probability, high: probability, confidence: probability }),
+  }),
+  /**
+   * The served envelope, and the training range it widens (tolerance 0): answers name every
+   * feature beyond that range; the envelope check votes only past the tolerance.
+   */
+  envelope: envelopeSchema.extend({ range: z.strictObject({ low: z.array(finite), high: z.array(finite) }) }),
+  /** Per member, on the rows its network trained on; one threshold for all members. */
+  input_mahalanobis: z.strictObject({ threshold: finite.min(0), members: z.array(gaussianSchema).min(1) }).optional(),
+  feature_mahalanobis: z.strictObject({ threshold: finite.min(0), members: z.array(classGaussianSchema).min(1) }).optional(),
+  energy: z.strictObject({ threshold: finite }).optional(),
+  disagreement: z.strictObject({ threshold: finite.min(0) }).optional(),
+  /** Detectors asked for that do not vote, and why. */
+  left_out: z.array(z.strictObject({ detector: z.string(), reason: z.string().max(500) })),
+  evaluation: evaluationSchema,
+});
+
+const lossSummary = z.strictObject({ log_loss: finite.min(0), brier: finite.min(0), ece: finite.min(0) });
+
+export const trainingSchema = z.strictObject({
+  source: trainingSourceSchema,
+  /** folds: the K of cross-fitting (1: one network and a hold-out); held_out: rows the metrics and calibration rest on. */
+  rows: z.strictObject({ total: count, folds: z.number().int().min(1).max(32), held_out: count }),
+  seed: count,
+  options: z.record(z.string(), z.unknown()),
+  /** Networks trained only to calibrate the ensemble out of fold (one per pair of folds); not served. */
+  calibration_networks: count,
+  /** One per network served, trained here; empty for an imported one. */
+  members: z.array(
+    z.strictObject({
+      train_rows: count,
+      early_stopping_rows: count,
+      epochs_run: count,
+      best_epoch: count,
+      stopped_early: z.boolean(),
+      train_loss: finite,
+      early_stopping_loss: finite.nullable(),
+    }),
+  ),
+  metrics: z.strictObject({
+    /** On the held-out rows: out of fold, each row answered by the member that never saw it. */
+    held_out: metricsSchema.nullable(),
+    calibration: z.strictObject({
+      temperature: finite.positive(),
+      fit: z.enum(calibrationFits),
+      bins: z.number().int().positive(),
+      before: lossSummary.nullable(),
+      after: lossSummary.nullable(),
+    }),
+  }),
+});
+
 export const bundleSchema = z.strictObject({
   format: z.literal(BUNDLE_FORMAT),
   name: modelNameSchema,
@@ -180,21 +280,27 @@ export const bundleSchema = z.strictObject({
   created_at: z.iso.datetime(),
   features: z.array(featureSchema).min(1).max(4096),
   classes: z.array(labelText).min(2).max(1000),
-  // scale >= 1e-30 keeps (x - mean) / scale finite for every accepted input (|x| <= 1e15).
-  preprocess: z.strictObject({ mean: z.array(finite), scale: z.array(finite.min(1e-30)) }),
-  network: z.strictObject({ layers: z.array(layerSchema).min(1).max(64) }),
-  calibration: z.strictObject({ temperature: finite.min(TEMPERATURE_RANGE.min).max(TEMPERATURE_RANGE.max) }),
+  preprocess: preprocessSchema,
+  /** The networks that answer together: the mean of their calibrated probabilities. */
+  members: z.array(z.strictObject({ layers: layersSchema })).min(1).max(32),
+  calibration: z.strictObject({ temperature: temperatureSchema, fit: z.enum(calibrationFits) }),
   domain: domainSchema,
   reference: referenceSchema,
   training: trainingSchema,
   sha256,
 });
 
+/** What this version writes. */
 export type BundleFile = z.infer<typeof bundleSchema>;
+export type BundleFileV1 = z.infer<typeof bundleV1Schema>;
+/** What it reads. */
+export type AnyBundleFile = BundleFile | BundleFileV1;
 export type BundleBody = Omit<BundleFile, 'sha256'>;
 export type FeatureInfo = z.infer<typeof featureSchema>;
 export type Reference = z.infer<typeof referenceSchema>;
 export type Domain = z.infer<typeof domainSchema>;
+export type DomainV1 = z.infer<typeof domainV1Schema>;
 export type Evaluation = z.infer<typeof evaluationSchema>;
 export type Training = z.infer<typeof trainingSchema>;
 export type Metrics = z.infer<typeof metricsSchema>;
+export type LayerJson = z.infer<typeof layerSchema>;

@@ -1,8 +1,9 @@
-import { scoreDomain } from '../core/domain/detectors.js';
+import { type MemberOutput, scoreDomain } from '../core/domain/detectors.js';
+import { ensembleProbabilitiesInto, memberForRow } from '../core/ensemble.js';
 import { decodeDomain } from './domain-codec.js';
 import type { ForwardPass } from '../core/network.js';
 import { createFastForwardPass } from '../core/wasm-dense.js';
-import { softmaxRowsInto, topTwo } from '../core/softmax.js';
+import { topTwo } from '../core/softmax.js';
 import { standardizeInto } from '../core/standardize.js';
 import type { LoadedBundle } from './verify.js';
 
@@ -52,21 +53,26 @@ export interface Scorer {
 }
 
 /**
- * The scoring path shared by the service and the offline command: standardise, forward pass,
- * softmax at the bundle's temperature, margin, and the domain checks with their reasons. A row is
- * in domain when every enabled detector's value is at most its threshold.
+ * The scoring path shared by the service and the offline command: standardise, every member's
+ * forward pass, the mean of the members' softmax at the bundle's temperature, margin, and the
+ * domain checks with their reasons. A row is in domain when every voting detector's value is at
+ * most its threshold. A version-1 bundle is one member, scored exactly as version 1 scored it.
  */
 export function createScorer(bundle: LoadedBundle): Scorer {
   const { file } = bundle;
   const d = file.features.length;
   const K = file.classes.length;
-  const env = file.domain.envelope;
+  const M = bundle.members.length;
   const temperature = file.calibration.temperature;
-  const domain = decodeDomain(file.domain, temperature);
+  const domain = decodeDomain(file);
+  // Features are named with the range that named them: the training range (format 2) or the envelope (format 1).
+  const env = domain.models.naming ?? domain.models.envelope;
   const reviewMargin = file.domain.review_margin;
-  const pass: ForwardPass = createFastForwardPass(bundle.network);
+  const passes: ForwardPass[] = bundle.members.map((net) => createFastForwardPass(net));
   let z = new Float64Array(0);
   let p = new Float64Array(0);
+  let memberP: Float64Array[] = [];
+  let memberOfRow = new Int32Array(0);
 
   return {
     bundle,
@@ -74,16 +80,25 @@ export function createScorer(bundle: LoadedBundle): Scorer {
     featureIndex: new Map(file.features.map((f, j) => [f.name, j])),
     scoreRows(x, rows) {
       if (z.length < rows * d) z = new Float64Array(rows * d);
-      if (p.length < rows * K) p = new Float64Array(rows * K);
+      if (p.length < rows * K) {
+        p = new Float64Array(rows * K);
+        memberP = bundle.members.map(() => new Float64Array(rows * K));
+      }
+      if (memberOfRow.length < rows) memberOfRow = new Int32Array(rows);
       // The very arithmetic the detectors were calibrated with: a threshold can sit exactly on a
       // held-out score, and multiplying by 1/scale instead of dividing could tip it over.
       standardizeInto(file.preprocess, x, rows, z);
-      const { logits, hidden } = pass.run(z, rows);
-      // Never answer NaN: a value that overflows the network is refused, not guessed at.
-      for (let i = 0; i < rows * K; i++) if (!Number.isFinite(logits[i] as number)) throw new ScoreOverflowError(Math.floor(i / K));
-      softmaxRowsInto(logits, rows, K, temperature, p);
+      const outputs: MemberOutput[] = passes.map((pass) => {
+        const { logits, hidden } = pass.run(z, rows);
+        // Never answer NaN: a value that overflows the network is refused, not guessed at.
+        for (let i = 0; i < rows * K; i++) if (!Number.isFinite(logits[i] as number)) throw new ScoreOverflowError(Math.floor(i / K));
+        return { logits, hidden };
+      });
+      ensembleProbabilitiesInto(outputs.map((o) => o.logits), rows, K, temperature, memberP, p);
+      outputs.forEach((o, m) => (o.probabilities = memberP[m]));
+      for (let r = 0; r < rows; r++) memberOfRow[r] = memberForRow(x, r * d, d, M);
       const out: ScoreOutcome[] = new Array(rows);
-      const { outside: outsideIdx, scores } = scoreDomain(domain.models, { rows, raw: x, standardized: z, hidden, logits, classes: K });
+      const { outside: outsideIdx, scores } = scoreDomain(domain.models, { rows, raw: x, standardized: z, members: outputs, memberOfRow, mean: p, classes: K });
       // A detector value that overflows (a near-singular covariance, a hidden layer at 1e308) is
       // refused like an overflowing logit: no answer may carry a number JSON cannot hold.
       for (const detector of domain.enabled) {

@@ -3,7 +3,7 @@ import type { Network } from '../core/network.js';
 import { canonicalJson, sha256Hex } from './canonical-json.js';
 import { triangleSide } from './domain-codec.js';
 import { decodeNetwork } from './network-codec.js';
-import { type BundleBody, type BundleFile, REFERENCE_QUANTILE_LEVELS, bundleSchema } from './schema.js';
+import { type AnyBundleFile, BUNDLE_FORMATS, BUNDLE_FORMAT_V1, type BundleBody, type BundleFile, type LayerJson, REFERENCE_QUANTILE_LEVELS, bundleSchema, bundleV1Schema } from './schema.js';
 
 export interface BundleProblem {
   /** JSON path of the field, e.g. network.layers[1].weights; empty for the file as a whole. */
@@ -24,10 +24,17 @@ export class BundleError extends Error {
 }
 
 export interface LoadedBundle {
-  file: BundleFile;
-  network: Network;
+  /** As read: version 1 or 2 (docs/bundle-format.md). */
+  file: AnyBundleFile;
+  /** The networks that answer together; version 1 has one. */
+  members: Network[];
   /** Where it was read from, for messages. */
   source: string;
+}
+
+/** The member networks' layers as stored, whichever the version. */
+export function storedMembers(file: AnyBundleFile): Array<{ layers: LayerJson[] }> {
+  return file.format === BUNDLE_FORMAT_V1 ? [file.network] : file.members;
 }
 
 export function bundleSha256(body: BundleBody): string {
@@ -51,17 +58,18 @@ export function parseBundle(text: string, source: string): LoadedBundle {
   } catch (err) {
     throw new BundleError(source, [{ path: '', message: `is not JSON (${(err as Error).message})` }]);
   }
-  if (typeof json === 'object' && json !== null && 'format' in json && (json as { format: unknown }).format !== 'plumbline-bundle/1') {
-    throw new BundleError(source, [{ path: 'format', message: `is ${JSON.stringify((json as { format: unknown }).format)}, this reader takes "plumbline-bundle/1"` }]);
+  const format = typeof json === 'object' && json !== null && 'format' in json ? (json as { format: unknown }).format : undefined;
+  if (format !== undefined && !(BUNDLE_FORMATS as readonly unknown[]).includes(format)) {
+    throw new BundleError(source, [{ path: 'format', message: `is ${JSON.stringify(format)}, this reader takes ${BUNDLE_FORMATS.map((f) => JSON.stringify(f)).join(' or ')}` }]);
   }
-  const parsed = bundleSchema.safeParse(json);
+  const parsed = format === BUNDLE_FORMAT_V1 ? bundleV1Schema.safeParse(json) : bundleSchema.safeParse(json);
   if (!parsed.success) {
     throw new BundleError(
       source,
       parsed.error.issues.map((i) => ({ path: formatPath(i.path), message: i.message })),
     );
   }
-  const file = parsed.data;
+  const file: AnyBundleFile = parsed.data;
   // Hash what the file holds, not what the schema kept, so that nothing can be slipped in.
   const { sha256, ...raw } = json as Record<string, unknown>;
   const actual = sha256Hex(canonicalJson(raw));
@@ -69,16 +77,18 @@ export function parseBundle(text: string, source: string): LoadedBundle {
     throw new BundleError(source, [{ path: 'sha256', message: `is ${sha256} but the content hashes to ${actual}; the file was changed after it was written` }]);
   }
   const problems = checkConsistency(file);
-  let network: Network | null = null;
-  try {
-    network = decodeNetwork(file.network);
-  } catch (err) {
-    const message = (err as Error).message;
-    const space = message.indexOf(' ');
-    problems.push({ path: message.slice(0, space), message: message.slice(space + 1) });
-  }
-  if (problems.length > 0 || !network) throw new BundleError(source, problems);
-  return { file, network, source };
+  const members: Network[] = [];
+  storedMembers(file).forEach((m, i) => {
+    try {
+      members.push(decodeNetwork(m, file.format === BUNDLE_FORMAT_V1 ? 'network' : `members[${i}]`));
+    } catch (err) {
+      const message = (err as Error).message;
+      const space = message.indexOf(' ');
+      problems.push({ path: message.slice(0, space), message: message.slice(space + 1) });
+    }
+  });
+  if (problems.length > 0) throw new BundleError(source, problems);
+  return { file, members, source };
 }
 
 export async function readBundle(path: string): Promise<LoadedBundle> {
@@ -92,7 +102,7 @@ export async function readBundle(path: string): Promise<LoadedBundle> {
 }
 
 /** Checks that the parts of a schema-valid bundle agree with each other: shapes, names, lengths. */
-export function checkConsistency(b: BundleFile): BundleProblem[] {
+export function checkConsistency(b: AnyBundleFile): BundleProblem[] {
   const problems: BundleProblem[] = [];
   const add = (path: string, message: string): void => void problems.push({ path, message });
   const d = b.features.length;
@@ -104,15 +114,21 @@ export function checkConsistency(b: BundleFile): BundleProblem[] {
   const dupClass = b.classes.find((c, i) => b.classes.indexOf(c) !== i);
   if (dupClass !== undefined) add('classes', `${JSON.stringify(dupClass)} appears more than once`);
 
-  const layers = b.network.layers;
-  const first = layers[0];
-  const last = layers[layers.length - 1];
-  if (first && first.inputs !== d) add('network.layers[0].inputs', `is ${first.inputs} but the bundle lists ${d} features`);
-  if (last && last.outputs !== K) add(`network.layers[${layers.length - 1}].outputs`, `is ${last.outputs} but the bundle lists ${K} classes`);
-  if (last && last.activation !== 'identity') add(`network.layers[${layers.length - 1}].activation`, `is ${last.activation}; the last layer must be identity (it gives the logits)`);
-  layers.forEach((l, i) => {
-    const next = layers[i + 1];
-    if (next && next.inputs !== l.outputs) add(`network.layers[${i + 1}].inputs`, `is ${next.inputs} but layer ${i} gives ${l.outputs} outputs`);
+  const nets = storedMembers(b);
+  const at = (m: number): string => (b.format === BUNDLE_FORMAT_V1 ? 'network' : `members[${m}]`);
+  // Width of each member's last hidden layer (0 without one): the feature-space detector's dimension.
+  const widths = nets.map((net, m) => {
+    const layers = net.layers;
+    const first = layers[0];
+    const last = layers[layers.length - 1];
+    if (first && first.inputs !== d) add(`${at(m)}.layers[0].inputs`, `is ${first.inputs} but the bundle lists ${d} features`);
+    if (last && last.outputs !== K) add(`${at(m)}.layers[${layers.length - 1}].outputs`, `is ${last.outputs} but the bundle lists ${K} classes`);
+    if (last && last.activation !== 'identity') add(`${at(m)}.layers[${layers.length - 1}].activation`, `is ${last.activation}; the last layer must be identity (it gives the logits)`);
+    layers.forEach((l, i) => {
+      const next = layers[i + 1];
+      if (next && next.inputs !== l.outputs) add(`${at(m)}.layers[${i + 1}].inputs`, `is ${next.inputs} but layer ${i} gives ${l.outputs} outputs`);
+    });
+    return layers.length >= 2 && last ? last.inputs : 0;
   });
 
   const sameLength = (path: string, arr: readonly unknown[], n: number, what: string): void => {
@@ -127,25 +143,40 @@ export function checkConsistency(b: BundleFile): BundleProblem[] {
     if (hi !== undefined && lo > hi) add(`domain.envelope.low[${j}]`, `is ${lo}, above its high ${hi}`);
   });
 
-  const dom = b.domain;
-  if (dom.input_mahalanobis) {
-    sameLength('domain.input_mahalanobis.mean', dom.input_mahalanobis.mean, d, 'one per feature');
-    sameLength('domain.input_mahalanobis.cholesky', dom.input_mahalanobis.cholesky, (d * (d + 1)) / 2, 'the lower triangle of a features x features factor');
+  // The Gaussians of the distance detectors, each at its path: (path, mean length, factor side).
+  const gaussians: Array<{ path: string; cholesky: readonly number[]; side: number }> = [];
+  const input = (path: string, g: { mean: number[]; cholesky: number[] }): void => {
+    sameLength(`${path}.mean`, g.mean, d, 'one per feature');
+    sameLength(`${path}.cholesky`, g.cholesky, (d * (d + 1)) / 2, 'the lower triangle of a features x features factor');
+    gaussians.push({ path: `${path}.cholesky`, cholesky: g.cholesky, side: d });
+  };
+  const feature = (path: string, g: { class_means: number[][]; cholesky: number[] }, width: number): void => {
+    if (width === 0) add(path, 'needs a hidden layer, and the network has none');
+    sameLength(`${path}.class_means`, g.class_means, K, 'one per class');
+    g.class_means.forEach((mu, k) => sameLength(`${path}.class_means[${k}]`, mu, width, 'one per unit of the last hidden layer'));
+    sameLength(`${path}.cholesky`, g.cholesky, (width * (width + 1)) / 2, 'the lower triangle of a width x width factor');
+    gaussians.push({ path: `${path}.cholesky`, cholesky: g.cholesky, side: width });
+  };
+  if (b.format === BUNDLE_FORMAT_V1) {
+    if (b.domain.input_mahalanobis) input('domain.input_mahalanobis', b.domain.input_mahalanobis);
+    if (b.domain.feature_mahalanobis) feature('domain.feature_mahalanobis', b.domain.feature_mahalanobis, widths[0] ?? 0);
+  } else {
+    const dom = b.domain;
+    if (dom.input_mahalanobis) {
+      sameLength('domain.input_mahalanobis.members', dom.input_mahalanobis.members, nets.length, 'one per member');
+      dom.input_mahalanobis.members.forEach((g, m) => input(`domain.input_mahalanobis.members[${m}]`, g));
+    }
+    if (dom.feature_mahalanobis) {
+      sameLength('domain.feature_mahalanobis.members', dom.feature_mahalanobis.members, nets.length, 'one per member');
+      dom.feature_mahalanobis.members.forEach((g, m) => feature(`domain.feature_mahalanobis.members[${m}]`, g, widths[m] ?? 0));
+    }
+    if (dom.disagreement && nets.length < 2) add('domain.disagreement', 'needs two members or more');
   }
-  if (dom.feature_mahalanobis && last) {
-    const width = layers.length >= 2 ? last.inputs : 0;
-    if (width === 0) add('domain.feature_mahalanobis', 'needs a hidden layer, and the network has none');
-    sameLength('domain.feature_mahalanobis.class_means', dom.feature_mahalanobis.class_means, K, 'one per class');
-    dom.feature_mahalanobis.class_means.forEach((m, k) => sameLength(`domain.feature_mahalanobis.class_means[${k}]`, m, width, 'one per unit of the last hidden layer'));
-    sameLength('domain.feature_mahalanobis.cholesky', dom.feature_mahalanobis.cholesky, (width * (width + 1)) / 2, 'the lower triangle of a width x width factor');
-  }
-  for (const key of ['input_mahalanobis', 'feature_mahalanobis'] as const) {
-    const packed = dom[key]?.cholesky;
-    if (!packed) continue;
-    const n = triangleSide(packed.length);
-    for (let i = 0; i < n; i++) {
-      const diag = packed[(i * (i + 1)) / 2 + i] as number;
-      if (!(diag > 0)) add(`domain.${key}.cholesky`, `diagonal element ${i} is ${diag}; a Cholesky factor needs positive ones`);
+  for (const g of gaussians) {
+    if (triangleSide(g.cholesky.length) !== g.side) continue;
+    for (let i = 0; i < g.side; i++) {
+      const diag = g.cholesky[(i * (i + 1)) / 2 + i] as number;
+      if (!(diag > 0)) add(g.path, `diagonal element ${i} is ${diag}; a Cholesky factor needs positive ones`);
     }
   }
 
@@ -171,10 +202,11 @@ export function checkConsistency(b: BundleFile): BundleProblem[] {
   sameKeys('reference.class_prior', ref.class_prior);
   sameLength('reference.validation.margins', ref.validation.margins, ref.validation.rows, 'one per validation row');
   sameKeys('reference.validation.predicted_fractions', ref.validation.predicted_fractions);
-  const v = b.training.metrics.validation;
+  const v = b.format === BUNDLE_FORMAT_V1 ? b.training.metrics.validation : b.training.metrics.held_out;
+  const metricsAt = b.format === BUNDLE_FORMAT_V1 ? 'training.metrics.validation' : 'training.metrics.held_out';
   if (v) {
-    sameKeys('training.metrics.validation.per_class', v.per_class);
-    if (v.confusion.length !== K || v.confusion.some((row) => row.length !== K)) add('training.metrics.validation.confusion', `must be ${K} x ${K}`);
+    sameKeys(`${metricsAt}.per_class`, v.per_class);
+    if (v.confusion.length !== K || v.confusion.some((row) => row.length !== K)) add(`${metricsAt}.confusion`, `must be ${K} x ${K}`);
   }
   return problems;
 }

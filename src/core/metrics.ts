@@ -94,3 +94,28 @@ export function expectedCalibrationError(
   }
   return ece;
 }
+
+/** Smallest probability a log-loss takes the log of: float64 machine epsilon, as scikit-learn's log_loss clips. */
+const LOG_LOSS_FLOOR = 2.220446049250313e-16;
+
+/** Mean negative log-probability of each row's own class (cross-entropy, "log-loss"). */
+export function logLoss(probabilities: ArrayLike<number>, rows: number, classes: number, labels: ArrayLike<number>): number {
+  let s = 0;
+  for (let r = 0; r < rows; r++) s -= Math.log(Math.min(1 - LOG_LOSS_FLOOR, Math.max(LOG_LOSS_FLOOR, probabilities[r * classes + (labels[r] as number)] as number)));
+  return s / rows;
+}
+
+/**
+ * Brier score in its original multi-class form (Brier 1950, Monthly Weather Review 78):
+ * mean over rows of sum_k (p_k - o_k)^2, o the one-hot label; 0 is perfect, 2 the worst.
+ */
+export function brierScore(probabilities: ArrayLike<number>, rows: number, classes: number, labels: ArrayLike<number>): number {
+  let s = 0;
+  for (let r = 0; r < rows; r++) {
+    for (let k = 0; k < classes; k++) {
+      const e = (probabilities[r * classes + k] as number) - (k === labels[r] ? 1 : 0);
+      s += e * e;
+    }
+  }
+  return s / rows;
+}

@@ -24,7 +24,7 @@ export const DEFAULT_TRAIN_OPTIONS: TrainOptions = {
   epochs: 300,
   batchSize: 32,
   learningRate: 0.003,
-  weightDecay: 0.0001,
+  weightDecay: 0.3,
   patience: 30,
   seed: 1,
 };

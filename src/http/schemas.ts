@@ -137,17 +137,28 @@ export const modelSummarySchema = z
 
 export const modelDetailSchema = modelSummarySchema
   .extend({
+    format: z.string().describe('plumbline-bundle/2, or plumbline-bundle/1 for a bundle written before ensembles'),
     created_at: z.string(),
     file: z.string().describe('the bundle file it was loaded from'),
-    network: z.object({ layers: z.array(z.object({ inputs: z.number(), outputs: z.number(), activation: z.string(), alpha: z.number().optional() })) }),
-    calibration: z.object({ temperature: z.number() }),
+    members: z
+      .array(z.object({ layers: z.array(z.object({ inputs: z.number(), outputs: z.number(), activation: z.string(), alpha: z.number().optional() })) }))
+      .describe('the networks that answer together (the mean of their calibrated probabilities); one for version 1 and imported networks'),
+    calibration: z.object({ temperature: z.number(), fit: z.string().optional().describe('fitted, separable (left at 1: the held-out rows gave no minimum), flat or not_fitted') }),
     domain: z.object({
       review_margin: z.number(),
-      target_in_domain_rate: z.number().describe('share of held-out in-domain rows the flag was calibrated to pass'),
+      target_in_domain_rate: z.number().describe('share of held-out in-domain rows the flag was asked to pass'),
       held_out: z
-        .object({ source: z.string(), rows: z.number(), in_domain_rate: z.number(), false_alarm_rate: z.number() })
+        .object({
+          source: z.string(),
+          rows: z.number(),
+          level: z.number().optional().describe('the level calibrated to: the target, or n / (n + 1) where the rows cannot support it'),
+          in_domain_rate: z.number(),
+          false_alarm_rate: z.number(),
+          false_alarm_ci: z.object({ low: z.number(), high: z.number(), confidence: z.number() }).optional().describe('Clopper-Pearson interval of the false-alarm rate'),
+        })
         .describe('the calibration rows and the pass rate measured on them, leave-one-out: the baseline false-alarm rate'),
-      detectors: z.array(z.object({ detector: z.string(), threshold: z.number() })).describe('the enabled detectors; a check passes when value <= threshold'),
+      detectors: z.array(z.object({ detector: z.string(), threshold: z.number() })).describe('the detectors that vote; a check passes when value <= threshold'),
+      left_out: z.array(z.object({ detector: z.string(), reason: z.string() })).describe('detectors asked for that do not vote, and why'),
       evaluation: z.record(z.string(), z.unknown()).describe('pass rates on held-out rows, detection rates and AUROC on generated probes'),
       envelope: z.object({
         tolerance: z.number(),
@@ -155,11 +166,10 @@ export const modelDetailSchema = modelSummarySchema
       }),
     }),
     training: z.object({
-      rows: z.object({ total: z.number(), train: z.number(), validation: z.number() }),
+      rows: z.record(z.string(), z.number()),
       seed: z.number(),
       options: z.record(z.string(), z.unknown()),
-      epochs_run: z.number(),
-      best_epoch: z.number(),
+      members: z.array(z.record(z.string(), z.unknown())).describe('per network trained here: rows, epochs, losses'),
       metrics: z.record(z.string(), z.unknown()),
     }),
   })
@@ -219,7 +229,16 @@ export const driftReportSchema = z
     verdict: z.enum(['stable', 'watch', 'shifted', 'insufficient data']).describe('the worst of the findings'),
     counts: z.object({ scored: z.number(), rejected: z.number(), out_of_domain: z.number(), other_versions: z.number().describe('rows of other bundles of this model, not analysed') }),
     out_of_domain: z
-      .object({ rate: nullableNumber, ci_low: nullableNumber, ci_high: nullableNumber, expected_rate: z.number(), p_value: nullableNumber })
+      .object({
+        rate: nullableNumber,
+        ci_low: nullableNumber,
+        ci_high: nullableNumber,
+        expected_rate: z.number().describe('false-alarm rate of the bundle on its calibration rows'),
+        expected_ci_low: z.number().optional().describe('Clopper-Pearson 95% interval of expected_rate'),
+        expected_ci_high: z.number().optional(),
+        expected_rows: z.number().optional().describe('calibration rows expected_rate rests on'),
+        p_value: nullableNumber.describe('exact binomial test of the out-of-domain count against expected_ci_high'),
+      })
       .describe('share of answers out of domain, 95% Wilson interval, the false-alarm rate measured at calibration, exact one-sided binomial p'),
     features: z.array(
       z.object({

@@ -4,6 +4,7 @@ import { benjaminiHochberg, chiSquareGoodnessOfFit, jensenShannonDistance, psi, 
 import { ksTest } from '../core/stats/ks.js';
 import { binomialUpperTail, wilsonInterval } from '../core/stats/proportion.js';
 import type { LoadedBundle } from '../bundle/verify.js';
+import { falseAlarmBaseline } from '../bundle/baseline.js';
 import type { DriftStore } from '../store/drift-store.js';
 import { writeFindings } from './findings.js';
 import type { DriftReport, FeatureDrift } from './report-types.js';
@@ -141,7 +142,7 @@ export function buildDriftReport(
     features.forEach((f, j) => (f.p_adjusted = adjusted[j] as number));
   }
 
-  const expected = b.domain.held_out.false_alarm_rate;
+  const baseline = falseAlarmBaseline(b);
   const ci = wilsonInterval(ood, scored);
   const fractions = Object.fromEntries(b.classes.map((c, k) => [c, scored > 0 ? (labelCounts[k] as number) / scored : 0]));
   const referenceFractions = ref.validation.predicted_fractions;
@@ -167,8 +168,13 @@ export function buildDriftReport(
       rate: scored > 0 ? ood / scored : null,
       ci_low: scored > 0 ? ci.low : null,
       ci_high: scored > 0 ? ci.high : null,
-      expected_rate: expected,
-      p_value: enough ? binomialUpperTail(ood, scored, expected) : null,
+      expected_rate: baseline.rate,
+      expected_ci_low: baseline.low,
+      expected_ci_high: baseline.high,
+      expected_rows: baseline.rows,
+      // Against the top of the baseline's interval: a rate measured on a few hundred rows is not
+      // known better than that, and its sampling error must not read as drift.
+      p_value: enough ? binomialUpperTail(ood, scored, baseline.high) : null,
     },
     features,
     predictions: {

@@ -44,12 +44,15 @@ export function writeFindings(r: DriftReport, options: ReportOptions): { verdict
   }
 
   const o = r.out_of_domain;
-  if (o.rate !== null && o.p_value !== null && o.rate > o.expected_rate && o.p_value < WATCH_P) {
+  // The null rate: the top of the baseline's interval where the report has it.
+  const expectedHigh = o.expected_ci_high ?? o.expected_rate;
+  const baseline = o.expected_ci_high !== undefined && o.expected_rows !== undefined ? ` (at most ${pct(o.expected_ci_high)} at 95% on its ${o.expected_rows} calibration rows)` : '';
+  if (o.rate !== null && o.p_value !== null && o.rate > expectedHigh && o.p_value < WATCH_P) {
     const shifted = o.p_value < SHIFT_P;
     raise(shifted ? 'shifted' : 'watch');
     found.push({
       severity: shifted ? 90 : 50,
-      text: `Out-of-domain answers: ${pct(o.rate)} of ${n} (95% Wilson interval ${pct(o.ci_low ?? 0)} to ${pct(o.ci_high ?? 0)}), against ${pct(o.expected_rate)} expected from calibration; exact binomial p ${formatP(o.p_value)}.`,
+      text: `Out-of-domain answers: ${pct(o.rate)} of ${n} (95% Wilson interval ${pct(o.ci_low ?? 0)} to ${pct(o.ci_high ?? 0)}), against ${pct(o.expected_rate)} expected from calibration${baseline}; exact binomial p ${formatP(o.p_value)}.`,
     });
   }
 
@@ -83,7 +86,7 @@ export function writeFindings(r: DriftReport, options: ReportOptions): { verdict
   // Hours whose out-of-domain count the expected rate cannot explain (binomial p < 1e-6): the
   // signature of a fault with a start and an end, such as a failed sensor.
   for (const h of r.hourly) {
-    const p = faultHourP(h, o.expected_rate);
+    const p = faultHourP(h, expectedHigh);
     if (p !== null && p < FAULT_HOUR_P) {
       raise('watch');
       const end = new Date(Date.parse(h.hour) + 3_600_000).toISOString().slice(11, 16);

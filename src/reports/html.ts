@@ -28,7 +28,7 @@ function hourlyChart(r: DriftReport): string {
   const bars = r.hourly
     .map((x, i) => {
       const rate = rates[i] as number;
-      const fault = faultHourP(x, r.out_of_domain.expected_rate);
+      const fault = faultHourP(x, r.out_of_domain.expected_ci_high ?? r.out_of_domain.expected_rate);
       const over = fault !== null && fault < FAULT_HOUR_P;
       return `<rect x="${(left + i * bw + 1).toFixed(1)}" y="${y(rate).toFixed(1)}" width="${Math.max(1, bw - 2).toFixed(1)}" height="${(h - bottom - y(rate)).toFixed(1)}" fill="${over ? COLOURS.shifted : COLOURS.window}"><title>${esc(x.hour.slice(0, 16))}Z: ${x.out_of_domain} of ${x.scored} out of domain</title></rect>`;
     })
@@ -135,7 +135,7 @@ ol li{margin:.3rem 0}footer{margin-top:2rem;font-size:.8rem;color:#4b5a60}
 <div class="tiles">
 <div class="tile">scored<b>${r.counts.scored}</b></div>
 <div class="tile">out of domain<b>${pct(o.rate)}</b>95% Wilson ${pct(o.ci_low)}–${pct(o.ci_high)}</div>
-<div class="tile">expected (calibration)<b>${pct(o.expected_rate)}</b>binomial p ${pValue(o.p_value)}</div>
+<div class="tile">expected (calibration)<b>${pct(o.expected_rate)}</b>${o.expected_ci_high !== undefined ? `95% up to ${pct(o.expected_ci_high)} on ${o.expected_rows ?? 0} rows · ` : ''}binomial p ${pValue(o.p_value)}</div>
 <div class="tile">refused requests<b>${r.counts.rejected}</b></div>
 <div class="tile">marked for review<b>${pct(r.margin.review_rate)}</b></div>
 </div>

@@ -6,7 +6,18 @@ export interface DriftReport {
   created_at: string;
   verdict: 'stable' | 'watch' | 'shifted' | 'insufficient data';
   counts: { scored: number; rejected: number; out_of_domain: number; other_versions: number };
-  out_of_domain: { rate: number | null; ci_low: number | null; ci_high: number | null; expected_rate: number; p_value: number | null };
+  out_of_domain: {
+    rate: number | null;
+    ci_low: number | null;
+    ci_high: number | null;
+    /** The bundle's false-alarm rate on its calibration rows, with their count and its Clopper–Pearson interval. */
+    expected_rate: number;
+    expected_ci_low?: number;
+    expected_ci_high?: number;
+    expected_rows?: number;
+    /** Exact binomial test against the interval's upper end (reports made before it existed: the rate). */
+    p_value: number | null;
+  };
   features: FeatureDrift[];
   predictions: {
     fractions: Record<string, number>;

@@ -36,15 +36,16 @@ function problemsOf(fn: () => unknown): BundleError {
 }
 
 describe('bundle file', () => {
-  it('round-trips: written, read back and verified, it scores exactly as the trained network', async () => {
+  it('round-trips: written, read back and verified, it scores as the mean of its members\' calibrated softmax', async () => {
     const path = tmp.file('iris.bundle.json');
     await writeBundle(path, trained.bundle);
     const loaded = await readBundle(path);
     expect(loaded.file).toEqual(trained.bundle);
+    expect(loaded.members).toHaveLength(5);
     const x = Float64Array.of(5.1, 3.5, 1.4, 0.2, 6.7, 3.0, 5.2, 2.3);
-    const logits = forward(loaded.network, standardize(loaded.file.preprocess, x, 2), 2).logits;
     const scored = createScorer(loaded).scoreRows(x, 2);
-    const expected = softmax(logits.subarray(0, 3), loaded.file.calibration.temperature);
+    const z = standardize(loaded.file.preprocess, x, 2);
+    const expected = [0, 1, 2].map((k) => loaded.members.reduce((s, net) => s + softmax(forward(net, z, 2).logits.subarray(0, 3), loaded.file.calibration.temperature)[k]!, 0) / 5);
     loaded.file.classes.forEach((c, k) => expect(scored[0]!.probabilities[c]).toBeCloseTo(expected[k]!, 15));
     expect(scored[0]!.label).toBe('setosa');
     expect(scored[1]!.label).toBe('virginica');
@@ -56,7 +57,7 @@ describe('bundle file', () => {
   });
 
   it('stores weights as little-endian float32 that decode to what the network holds', () => {
-    const layer = trained.bundle.network.layers[0]!;
+    const layer = trained.bundle.members[0]!.layers[0]!;
     const bytes = Buffer.from(layer.weights, 'base64');
     expect(bytes.length).toBe(layer.inputs * layer.outputs * 4);
     expect(bytes.readFloatLE(0)).toBe(decodeFloat32(layer.weights)[0]);
@@ -77,9 +78,9 @@ describe('bundle file', () => {
 
   it('refuses a flipped weight bit', () => {
     const copy = JSON.parse(text) as BundleFile;
-    const w = Buffer.from(copy.network.layers[0]!.weights, 'base64');
+    const w = Buffer.from(copy.members[2]!.layers[0]!.weights, 'base64');
     w[3] = (w[3] as number) ^ 0x01;
-    copy.network.layers[0]!.weights = w.toString('base64');
+    copy.members[2]!.layers[0]!.weights = w.toString('base64');
     expect(problemsOf(() => parseBundle(JSON.stringify(copy), 'b.json')).problems[0]!.path).toBe('sha256');
   });
 
@@ -87,13 +88,13 @@ describe('bundle file', () => {
     const err = problemsOf(() =>
       parseBundle(
         resealed((b) => {
-          b.network.layers[0]!.inputs = 5;
+          b.members[1]!.layers[0]!.inputs = 5;
         }),
         'b.json',
       ),
     );
-    expect(err.problems.map((p) => p.path)).toEqual(expect.arrayContaining(['network.layers[0].inputs', 'network.layers[0].weights']));
-    expect(err.message).toMatch(/network\.layers\[0\]\.inputs: is 5 but the bundle lists 4 features/);
+    expect(err.problems.map((p) => p.path)).toEqual(expect.arrayContaining(['members[1].layers[0].inputs', 'members[1].layers[0].weights']));
+    expect(err.message).toMatch(/members\[1\]\.layers\[0\]\.inputs: is 5 but the bundle lists 4 features/);
   });
 
   it('refuses a class list that does not match the outputs, and names mismatched reference features', () => {
@@ -107,7 +108,7 @@ describe('bundle file', () => {
       ),
     );
     const paths = err.problems.map((p) => p.path);
-    expect(paths).toContain('network.layers[2].outputs');
+    expect(paths).toContain('members[0].layers[2].outputs');
     expect(paths).toContain('reference.features[1].name');
     expect(paths).toContain('reference.class_prior');
   });
@@ -118,12 +119,12 @@ describe('bundle file', () => {
         resealed((b) => {
           (b as { name: string }).name = 'Bad Name';
           b.preprocess.scale[2] = -1;
-          (b.network.layers[1] as { activation: string }).activation = 'swish';
+          (b.members[3]!.layers[1] as { activation: string }).activation = 'swish';
         }),
         'b.json',
       ),
     );
-    expect(err.problems.map((p) => p.path)).toEqual(expect.arrayContaining(['name', 'preprocess.scale[2]', 'network.layers[1].activation']));
+    expect(err.problems.map((p) => p.path)).toEqual(expect.arrayContaining(['name', 'preprocess.scale[2]', 'members[3].layers[1].activation']));
   });
 
   it('refuses duplicate feature names and a last layer that is not identity', () => {
@@ -131,7 +132,7 @@ describe('bundle file', () => {
       parseBundle(
         resealed((b) => {
           b.features[1]!.name = b.features[0]!.name;
-          b.network.layers[2]!.activation = 'relu';
+          b.members[0]!.layers[2]!.activation = 'relu';
         }),
         'b.json',
       ),
@@ -150,11 +151,11 @@ describe('bundle file', () => {
 
   it('refuses NaN or infinite float32 weights, a temperature outside [0.01, 100] and a __proto__ class', () => {
     const nan = resealed((b) => {
-      const w = Buffer.from(b.network.layers[1]!.weights, 'base64');
+      const w = Buffer.from(b.members[4]!.layers[1]!.weights, 'base64');
       w.writeFloatLE(Number.NaN, 8);
-      b.network.layers[1]!.weights = w.toString('base64');
+      b.members[4]!.layers[1]!.weights = w.toString('base64');
     });
-    expect(problemsOf(() => parseBundle(nan, 'b.json')).message).toMatch(/network\.layers\[1\]\.weights: value 2 is NaN/);
+    expect(problemsOf(() => parseBundle(nan, 'b.json')).message).toMatch(/members\[4\]\.layers\[1\]\.weights: value 2 is NaN/);
     const cold = resealed((b) => void (b.calibration.temperature = 5e-324));
     expect(problemsOf(() => parseBundle(cold, 'b.json')).problems[0]!.path).toBe('calibration.temperature');
     const proto = resealed((b) => void (b.classes[0] = '__proto__'));
@@ -181,22 +182,45 @@ describe('bundle file', () => {
     expect(r.sample.subsampled).toBe(false);
     expect(r.sample.values[0]!.slice(0, 3)).toEqual([5.1, 4.9, 4.7]);
     expect(r.class_prior).toEqual({ setosa: 1 / 3, versicolor: 1 / 3, virginica: 1 / 3 });
-    expect(r.validation.rows).toBe(30);
-    expect(r.validation.margins).toHaveLength(30);
+    // every row's out-of-fold answer is the reference of the predictions
+    expect(r.validation.rows).toBe(150);
+    expect(r.validation.margins).toHaveLength(150);
   });
 
   it('records provenance and metrics in training', () => {
     const t = trained.bundle.training;
-    expect(t.rows).toEqual({ total: 150, train: 120, validation: 30 });
+    expect(t.rows).toEqual({ total: 150, folds: 5, held_out: 150 });
     expect(t.seed).toBe(1);
-    expect(t.options).toMatchObject({ hidden: [32, 32], activation: 'relu', validation_fraction: 0.2 });
-    expect(t.metrics.validation?.confusion.flat().reduce((a, b) => a + b, 0)).toBe(30);
+    expect(t.options).toMatchObject({ hidden: [32, 32], activation: 'relu', folds: 5, validation_fraction: 0.2 });
+    // five members, each trained on four folds (120 rows) less a fifth of those for early stopping
+    expect(t.members.map((m) => m.train_rows + m.early_stopping_rows)).toEqual([120, 120, 120, 120, 120]);
+    expect(t.members.every((m) => m.early_stopping_rows === 24)).toBe(true);
+    expect(t.calibration_networks).toBe(10);
+    expect(t.metrics.held_out?.confusion.flat().reduce((a, b) => a + b, 0)).toBe(150);
     expect(t.metrics.calibration.bins).toBe(15);
     expect(trained.bundle.created_at).toBe('2026-01-02T03:04:05Z');
   });
 
-  it('matches the committed file format of the demo bundle', () => {
+  it('matches the committed file format of the demo bundle: version 2, five members', () => {
     const demo = readFileSync(new URL('../../demo-data/models/moulding-quality.bundle.json', import.meta.url), 'utf8');
-    expect(() => parseBundle(demo, 'demo')).not.toThrow();
+    const b = parseBundle(demo, 'demo');
+    expect(b.file.format).toBe('plumbline-bundle/2');
+    expect(b.members).toHaveLength(5);
+  });
+
+  it('refuses per-member detectors that do not match the members, and disagreement with one member', () => {
+    const err = problemsOf(() =>
+      parseBundle(
+        resealed((b) => {
+          b.domain.input_mahalanobis?.members.pop();
+          b.members = b.members.slice(0, 1);
+          b.domain.disagreement = { threshold: 0.1 };
+        }),
+        'b.json',
+      ),
+    );
+    const paths = err.problems.map((p) => p.path);
+    expect(paths).toContain('domain.input_mahalanobis.members');
+    expect(paths).toContain('domain.disagreement');
   });
 });

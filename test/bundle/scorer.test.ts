@@ -1,5 +1,6 @@
 import { describe, expect, it } from 'vitest';
 import { ScoreOverflowError, createScorer, modelRef } from '../../src/bundle/scorer.js';
+import { DETECTORS } from '../../src/core/domain/detectors.js';
 import { parseBundle } from '../../src/bundle/verify.js';
 import { serializeBundle } from '../../src/bundle/write.js';
 import { irisBundle } from '../helpers/bundles.js';
@@ -20,15 +21,21 @@ describe('scorer', () => {
     expect(o!.margin).toBeCloseTo(sorted[0]! - sorted[1]!, 15);
   });
 
-  it('names a feature pushed outside the envelope with its value, bounds and unit', () => {
+  it('names a feature pushed outside the envelope with its value, its training range and unit', () => {
     const x = Float64Array.of(5.8, 3.0, 4.35, 1.3);
     x[1] = (env.high[1] as number) + 0.5;
     const [o] = scorer.scoreRows(x, 1);
     expect(o!.domain.in_domain).toBe(false);
     expect(o!.review).toBe(true);
-    expect(o!.domain.outside).toEqual([{ feature: 'sepal_width', value: x[1], low: env.low[1], high: env.high[1], unit: 'cm' }]);
+    const range = bundle.domain.envelope.range;
+    expect(range.high[1]).toBeLessThanOrEqual(env.high[1] as number);
+    expect(o!.domain.outside).toEqual([{ feature: 'sepal_width', value: x[1], low: range.low[1], high: range.high[1], unit: 'cm' }]);
     expect(o!.domain.checks[0]).toEqual({ detector: 'envelope', value: 1, threshold: 0, passed: false });
-    expect(o!.domain.checks.map((c) => c.detector)).toEqual(['envelope', 'input_mahalanobis', 'feature_mahalanobis', 'energy']);
+    // the detectors that vote, in answer order; a detector the bundle left out is not checked
+    const voting = DETECTORS.filter((d) => d === 'envelope' || bundle.domain[d] !== undefined);
+    expect(voting).toEqual(expect.arrayContaining(['envelope', 'input_mahalanobis', 'feature_mahalanobis']));
+    expect(o!.domain.checks.map((c) => c.detector)).toEqual(voting);
+    for (const l of bundle.domain.left_out) expect(o!.domain.checks.map((c) => c.detector)).not.toContain(l.detector);
     for (const c of o!.domain.checks) expect(c.passed).toBe(c.value <= c.threshold);
   });
 
@@ -43,7 +50,7 @@ describe('scorer', () => {
   });
 
   it('refuses to answer when the network overflows, naming the row, rather than returning NaN', () => {
-    const huge = { ...loaded, network: { layers: loaded.network.layers.map((l, i) => (i < 2 ? { ...l, weights: l.weights.map(() => 1e300) } : l)) } };
+    const huge = { ...loaded, members: loaded.members.map((net) => ({ layers: net.layers.map((l, i) => (i < 2 ? { ...l, weights: l.weights.map(() => 1e300) } : l)) })) };
     const s = createScorer(huge);
     // row 0 standardises to a negative sum, which the ReLU zeroes; row 1 overflows to Infinity
     const err = (() => {

@@ -20,7 +20,7 @@ const fixture = (file: string) => expected.models.find((m) => m.file === file)!;
 const tmp = tempDir();
 afterAll(() => tmp.remove());
 const io = (): CliIo => ({ stdout: sink(), stderr: sink(), interactive: false });
-const base = { label: 'label', version: '1', tolerance: 0.1, reviewMargin: 0.2, detectors: ['input_mahalanobis', 'feature_mahalanobis', 'energy'] as const, inDomainRate: 0.99, seed: 1, createdAt: new Date('2026-12-01T00:00:00Z') };
+const base = { label: 'label', version: '1', tolerance: 0.1, reviewMargin: 0.2, detectors: ['input_mahalanobis', 'feature_mahalanobis', 'energy'] as const, inDomainRate: 0.99, keepWeak: false, seed: 1, createdAt: new Date('2026-12-01T00:00:00Z') };
 
 async function scoredAgainstTorch(out: string, rows: number[][]) {
   const loaded = await readBundle(out);
@@ -34,7 +34,8 @@ describe('plumbline bundle --onnx', () => {
     const out = tmp.file('wine.bundle.json');
     const { bundle } = await bundleAction({ ...base, onnx: `${ONNX}wine-relu-opset17.onnx`, data: `${DATA}wine.csv`, preprocess: pre, name: 'wine-press', out }, io());
     expect(bundle.classes).toEqual(f.classes);
-    expect(bundle.calibration.temperature).toBe(1);
+    expect(bundle.calibration).toEqual({ temperature: 1, fit: 'not_fitted' });
+    expect(bundle.format).toBe('plumbline-bundle/2');
     expect(bundle.training.source).toEqual({
       kind: 'onnx',
       onnx_sha256: createHash('sha256').update(readFileSync(`${ONNX}wine-relu-opset17.onnx`)).digest('hex'),
@@ -63,7 +64,9 @@ describe('plumbline bundle --onnx', () => {
     expect(bundle.calibration.temperature).not.toBe(1);
     expect(bundle.domain.held_out).toMatchObject({ source: 'calibrate-on', rows: 100 });
     expect(bundle.training.options).toMatchObject({ preprocess: 'in graph', onnx_ending: 'log_softmax' });
-    expect(bundle.training.rows).toEqual({ total: 669, train: 569, validation: 100 });
+    expect(bundle.training.rows).toEqual({ total: 669, folds: 1, held_out: 100 });
+    expect(bundle.members).toHaveLength(1);
+    expect(bundle.calibration.fit).toBe('fitted');
   });
 
   it('says when the graph and the data do not fit together, naming the flags to look at', async () => {

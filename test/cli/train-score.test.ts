@@ -5,7 +5,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { scoreAction } from '../../src/cli/actions/score.js';
 import { type TrainContext, trainAction } from '../../src/cli/actions/train.js';
 import type { CliIo } from '../../src/cli/io.js';
-import { DEFAULT_TRAIN_OPTIONS } from '../../src/core/train.js';
+import { TRAIN_DEFAULTS } from '../../src/cli/commands/train.js';
 import { UUID_V7 } from '../../src/ids.js';
 import { irisCsv, irisRows, stratifiedFolds, tempDir } from '../helpers/datasets.js';
 import { sink } from '../helpers/sink.js';
@@ -22,18 +22,13 @@ function io(): CliIo & { out: ReturnType<typeof sink>; err: ReturnType<typeof si
 
 function trainContext(data: string, out: string, overrides: Partial<TrainContext> = {}): TrainContext {
   return {
+    ...TRAIN_DEFAULTS,
     data,
     label: 'species',
     name: 'iris',
     version: '1',
     out,
-    ...DEFAULT_TRAIN_OPTIONS,
-    validationFraction: 0.2,
-    balance: false,
-    tolerance: 0.1,
-    reviewMargin: 0.2,
-    detectors: ['input_mahalanobis', 'feature_mahalanobis', 'energy'],
-    inDomainRate: 0.99,
+    detectors: [...TRAIN_DEFAULTS.detectors],
     createdAt: new Date('2026-03-04T05:06:07Z'),
     ...overrides,
   };
@@ -72,30 +67,46 @@ describe('plumbline train, then plumbline score', () => {
     const t = io();
     const { bundle } = await trainAction(trainContext(irisData, out, { featureInfo: units }), t);
     const text = t.out.text();
-    expect(text).toMatch(/validation accuracy 0\.\d{4}, macro-F1 0\.\d{4}/);
-    expect(text).toMatch(/^setosa\s+\d\.\d{3}\s+\d\.\d{3}\s+\d\.\d{3}\s+10$/m);
-    expect(text).toMatch(/temperature \d+\.\d{4}; ECE \(15 bins\)/);
+    expect(text).toMatch(/^rows 150: 5 folds, each network trained without one; trained on 96 rows, early stopping on 24;/m);
+    expect(text).toMatch(/out-of-fold accuracy \(each of the 150 rows answered by the network that never saw it\) 0\.\d{4}, macro-F1 0\.\d{4}/);
+    expect(text).toMatch(/^class\s+precision\s+recall\s+F1\s+rows$/m);
+    // every row is held out once: 50 of each class
+    expect(text).toMatch(/^setosa\s+\d\.\d{3}\s+\d\.\d{3}\s+\d\.\d{3}\s+50$/m);
+    expect(text).toMatch(/^temperature \d+\.\d{4}: (fitted on the 150 held-out rows|not sharpened)/m);
+    expect(text).toMatch(/^before \(T = 1\)\s+\d\.\d{4}\s+\d\.\d{4}\s+\d\.\d{4}$/m);
+    expect(text).toMatch(/^after\s+\d\.\d{4}\s+\d\.\d{4}\s+\d\.\d{4}$/m);
     expect(text).toContain(`bundle ${out}\nsha256 ${bundle.sha256}\n`);
     expect(t.err.text()).toMatch(/^read 150 rows, 4 features, 3 classes/);
-    expect(t.err.text()).toMatch(/^epoch 1\/300 loss \d/m);
+    // five served networks and ten that only calibrate them, one after another
+    expect(t.err.text()).toMatch(/^network 1\/15 epoch 1\/300 loss \d/m);
+    expect(t.err.text()).toMatch(/^network 15\/15 epoch 1\/300 loss \d/m);
     expect(bundle.features[2]).toEqual({ name: 'petal_length', unit: 'cm', description: 'petal length' });
   });
 
-  it('train prints the domain evaluation table and warns when too few rows calibrate the flag', async () => {
+  it('train prints the domain evaluation table, and says which pass rate too few rows can support', async () => {
     const t = io();
-    await trainAction(trainContext(irisData, tmp.file('dom.bundle.json'), { epochs: 20 }), t);
+    const { bundle } = await trainAction(trainContext(irisData, tmp.file('dom.bundle.json'), { epochs: 20 }), t);
     const out = t.out.text();
-    expect(out).toMatch(/^domain flag: calibrated on 30 validation rows to pass 0\.99; measured \d\.\d{4} \(false alarms \d\.\d{4}\)$/m);
+    expect(out).toMatch(/^domain flag: calibrated on 150 out-of-fold rows to pass \d\.\d+; false alarms \d\.\d{4} \(\d+ of 150 left out one at a time; 95% interval \d\.\d{4}-\d\.\d{4}\)$/m);
     expect(out).toMatch(/^detector\s+threshold\s+held-out\s+scaled_2x\s+scaled_10x\s+scaled_100x\s+one_feature_out\s+stuck_at_zero\s+uniform_box_2x$/m);
-    for (const d of ['envelope', 'input_mahalanobis', 'feature_mahalanobis', 'energy', 'composite', 'max_probability\\*']) expect(out).toMatch(new RegExp(`^${d}\\s`, 'm'));
-    expect(t.err.text()).toContain('warning: only 30 held-out rows calibrate the domain flag; 99 or more are needed for a pass rate of 0.99');
+    for (const d of ['envelope', 'input_mahalanobis', 'feature_mahalanobis', 'composite', 'max_probability\\*']) expect(out).toMatch(new RegExp(`^${d}\\s`, 'm'));
+    // a detector left out of the vote says why, and stays in the table marked for comparison
+    for (const l of bundle.domain.left_out) {
+      expect(out).toContain(`${l.detector} does not vote: ${l.reason}`);
+      expect(out).toMatch(new RegExp(`^${l.detector}\\*\\s`, 'm'));
+    }
+    // 150 rows cannot promise 0.99 for three or more detectors voting together
+    const h = bundle.domain.held_out;
+    expect(h.level).toBeLessThan(0.99);
+    expect(out).toContain(`150 rows support a pass rate of at most ${h.level.toFixed(4)} for these`);
+    expect(t.err.text()).toContain(`warning: the domain flag is calibrated to pass ${h.level.toFixed(4)}, not 0.99: 150 held-out rows cannot support more`);
   });
 
   it('train draws a progress bar instead of lines when stderr is a terminal', async () => {
     const t = { ...io(), interactive: true };
     await trainAction(trainContext(irisData, tmp.file('tty.bundle.json'), { epochs: 12 }), t);
-    expect(t.err.text()).toMatch(/training \[[\u2591\u2588]+\] epoch 12\/12 {2}loss \d\.\d{4} {2}validation \d\.\d{4} {2}best epoch \d+/);
-    expect(t.err.text()).not.toMatch(/^epoch 1\/12 loss/m);
+    expect(t.err.text()).toMatch(/training network 15\/15 \[[\u2591\u2588]+\] epoch 12\/12 {2}loss \d\.\d{4} {2}validation \d\.\d{4} {2}best epoch \d+/);
+    expect(t.err.text()).not.toMatch(/epoch 1\/12 loss/m);
   });
 
   it('score writes the service response shape for every row and ignores extra columns', async () => {
@@ -139,9 +150,9 @@ describe('plumbline train, then plumbline score', () => {
     const data = tmp.file('rare.csv', `${[...rows, '5.0,3.0,3.0,1.0,hybrid'].join('\n')}\n`);
     const t = io();
     const { bundle } = await trainAction(trainContext(data, tmp.file('rare.bundle.json'), { epochs: 5 }), t);
-    expect(t.err.text()).toContain('warning: class "hybrid" has only 1 row; its validation metrics are unreliable');
-    // a one-row class is trained on, not held out
-    expect(bundle.training.metrics.validation?.per_class.hybrid?.support).toBe(0);
+    expect(t.err.text()).toContain('warning: class "hybrid" has only 1 row; its held-out metrics are unreliable');
+    // the one row is held out once, by the one network that never saw its class
+    expect(bundle.training.metrics.held_out?.per_class.hybrid?.support).toBe(1);
   });
 
   it('score names a missing feature column', async () => {
@@ -172,6 +183,6 @@ describe('plumbline train, then plumbline score', () => {
     expect(badName.stderr).toMatch(/--name "Iris Model" must match/);
     const badDetector = await fail(['train', '--data', irisData, '--label', 'species', '--name', 'i', '--out', tmp.file('y.json'), '--detectors', 'energy,psychic']);
     expect(badDetector.code).toBe(2);
-    expect(badDetector.stderr).toMatch(/option '--detectors <a,b,...>' argument 'energy,psychic' is invalid\. psychic is not one of input_mahalanobis, feature_mahalanobis, energy \(or none\)/);
+    expect(badDetector.stderr).toMatch(/option '--detectors <a,b,...>' argument 'energy,psychic' is invalid\. psychic is not one of input_mahalanobis, feature_mahalanobis, energy, disagreement \(or none\)/);
   });
 });

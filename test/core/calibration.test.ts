@@ -1,5 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { fitTemperature, meanNll } from '../../src/core/calibration.js';
+import { ensembleMeanNll, fitEnsembleTemperature, fitTemperature, meanNll } from '../../src/core/calibration.js';
 import { expectedCalibrationError } from '../../src/core/metrics.js';
 import { softmaxRowsInto } from '../../src/core/softmax.js';
 import reference from '../fixtures/core-reference.json' with { type: 'json' };
@@ -13,23 +13,64 @@ describe('temperature scaling (Guo et al. 2017)', () => {
     it(`finds the NLL-minimising temperature scipy finds, case ${i + 1} (T = ${c.temperature.toFixed(4)})`, () => {
       const z = flat(c.logits);
       const rows = c.labels.length;
-      const t = fitTemperature(z, rows, c.classes, c.labels);
+      const { temperature: t, fit } = fitTemperature(z, rows, c.classes, c.labels);
+      expect(fit).toBe('fitted');
       expect(t).toBeCloseTo(c.temperature, 6);
       expect(meanNll(z, rows, c.classes, c.labels, t)).toBeCloseTo(c.nll_at_temperature, 10);
       expect(meanNll(z, rows, c.classes, c.labels, 1)).toBeCloseTo(c.nll_at_1, 12);
     });
   });
 
-  it('clamps the temperature when the held-out rows are separable', () => {
-    // Every row right with a growing margin: the NLL keeps falling as T -> 0.
+  it('does not sharpen when the held-out rows are separable: T stays 1 and the fit says why', () => {
+    // Every row right: the NLL keeps falling as T -> 0, so a minimiser would make every answer certain.
     const z = Float64Array.of(5, 0, 0, 5, 4, 0);
-    expect(fitTemperature(z, 3, 2, [0, 1, 0])).toBe(0.01);
+    const nll = (t: number): number => meanNll(z, 3, 2, [0, 1, 0], t);
+    expect(nll(0.5)).toBeLessThan(nll(1));
+    expect(nll(1)).toBeLessThan(nll(2));
+    expect(fitTemperature(z, 3, 2, [0, 1, 0])).toEqual({ temperature: 1, fit: 'separable' });
+  });
+
+  it('fits an interior minimum as soon as one row is wrong, where the NLL turns up again', () => {
+    const z = Float64Array.of(5, 0, 0, 5, 4, 0, 0, 1);
+    const { temperature, fit } = fitTemperature(z, 4, 2, [0, 1, 0, 0]);
+    expect(fit).toBe('fitted');
+    const nll = (t: number): number => meanNll(z, 4, 2, [0, 1, 0, 0], t);
+    expect(nll(temperature)).toBeLessThan(nll(temperature * 1.01));
+    expect(nll(temperature)).toBeLessThan(nll(temperature / 1.01));
+  });
+});
+
+describe('the temperature of an ensemble, calibrated after pooling (Rahaman & Thiery 2021)', () => {
+  // scipy.optimize.minimize_scalar (bounded, on log T) of the NLL of the mean of the members'
+  // softmax(z / T), made by test/fixtures/make-core-fixtures.py.
+  reference.ensemble_temperature.forEach((c, i) => {
+    it(`finds the temperature scipy finds for a ${c.logits.length}-member ensemble, case ${i + 1} (T = ${c.temperature.toFixed(4)})`, () => {
+      const z = c.logits.map((m) => flat(m));
+      const rows = c.labels.length;
+      const { temperature, fit } = fitEnsembleTemperature(z, rows, c.classes, c.labels);
+      expect(fit).toBe('fitted');
+      expect(temperature).toBeCloseTo(c.temperature, 6);
+      expect(ensembleMeanNll(z, rows, c.classes, c.labels, temperature)).toBeCloseTo(c.nll_at_temperature, 10);
+      expect(ensembleMeanNll(z, rows, c.classes, c.labels, 1)).toBeCloseTo(c.nll_at_1, 12);
+    });
+  });
+
+  it('is the single-network fit when there is one member', () => {
+    const c = reference.temperature[0]!;
+    const z = flat(c.logits);
+    expect(fitEnsembleTemperature([z], c.labels.length, c.classes, c.labels)).toEqual(fitTemperature(z, c.labels.length, c.classes, c.labels));
+  });
+
+  it('does not sharpen when every member answers every row right: T stays 1', () => {
+    const a = Float64Array.of(5, 0, 0, 5, 4, 0);
+    const b = Float64Array.of(3, 1, 1, 2, 6, 1);
+    expect(fitEnsembleTemperature([a, b], 3, 2, [0, 1, 0])).toEqual({ temperature: 1, fit: 'separable' });
   });
 });
 
 describe('temperature scaling on logits that carry no information', () => {
   it('leaves T at 1 when every row has equal logits, since the NLL does not depend on T', () => {
-    expect(fitTemperature(Float64Array.of(2, 2, 2, -1, -1, -1), 2, 3, [0, 2])).toBe(1);
+    expect(fitTemperature(Float64Array.of(2, 2, 2, -1, -1, -1), 2, 3, [0, 2])).toEqual({ temperature: 1, fit: 'flat' });
   });
 });
 

@@ -1,5 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { classificationMetrics, confusionMatrix } from '../../src/core/metrics.js';
+import { brierScore, classificationMetrics, confusionMatrix, logLoss } from '../../src/core/metrics.js';
 import reference from '../fixtures/core-reference.json' with { type: 'json' };
 
 describe('classification metrics', () => {
@@ -29,5 +29,22 @@ describe('classification metrics', () => {
 
   it('refuses a class index outside the matrix', () => {
     expect(() => confusionMatrix([0, 5], [0, 1], 2)).toThrow(/out of range/);
+  });
+});
+
+describe('log-loss and Brier score', () => {
+  const s = reference.scores;
+  it('log-loss matches scikit-learn log_loss on 4 and on 2 classes (fixture of make-core-fixtures.py)', () => {
+    for (const c of [s.multi, s.binary]) expect(logLoss(Float64Array.from(c.probabilities.flat()), c.labels.length, c.classes, c.labels)).toBeCloseTo(c.log_loss, 12);
+  });
+
+  it('Brier score on 2 classes is twice scikit-learn brier_score_loss, as the multi-class definition (Brier 1950) makes it', () => {
+    const c = s.binary;
+    expect(brierScore(Float64Array.from(c.probabilities.flat()), c.labels.length, 2, c.labels)).toBeCloseTo(2 * c.brier_binary, 12);
+  });
+
+  it('Brier score is 0 for certain right answers and 2 for certain wrong ones', () => {
+    expect(brierScore(Float64Array.of(1, 0, 0, 1), 2, 2, [0, 1])).toBe(0);
+    expect(brierScore(Float64Array.of(0, 1, 1, 0), 2, 2, [0, 1])).toBe(2);
   });
 });

@@ -4,7 +4,7 @@ import BetterSqlite3, { type Database } from 'better-sqlite3';
 import type { FastifyInstance } from 'fastify';
 import type { Logger } from 'pino';
 import { type ModelRegistry, createModelRegistry } from '../../src/bundle/registry.js';
-import type { BundleFile } from '../../src/bundle/schema.js';
+import type { AnyBundleFile, BundleFile } from '../../src/bundle/schema.js';
 import { writeBundle } from '../../src/bundle/write.js';
 import { type Config, configSchema } from '../../src/config.js';
 import { buildApp } from '../../src/http/app.js';
@@ -35,7 +35,7 @@ export interface TestService {
 }
 
 /** The app over a fresh temporary database and models directory (CONVENTIONS 10). */
-export async function startTestService(options: { bundles?: BundleFile[]; config?: Record<string, unknown>; logger?: Logger } = {}): Promise<TestService> {
+export async function startTestService(options: { bundles?: AnyBundleFile[]; config?: Record<string, unknown>; logger?: Logger } = {}): Promise<TestService> {
   const tmp = tempDir('plumbline-svc-');
   const modelsDir = join(tmp.dir, 'models');
   mkdirSync(modelsDir);

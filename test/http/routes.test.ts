@@ -50,19 +50,22 @@ describe('models', () => {
     const res = await svc.app.inject('/v1/models/iris');
     expect(res.statusCode).toBe(200);
     const m = res.json();
-    expect(m.network.layers.map((l: { outputs: number }) => l.outputs)).toEqual([32, 32, 3]);
-    expect(res.body).not.toContain(iris().network.layers[0]!.weights.slice(0, 40));
+    expect(m.format).toBe('plumbline-bundle/2');
+    expect(m.members).toHaveLength(5);
+    expect(m.members[0].layers.map((l: { outputs: number }) => l.outputs)).toEqual([32, 32, 3]);
+    expect(res.body).not.toContain(iris().members[0]!.layers[0]!.weights.slice(0, 40));
     expect(m.domain.envelope.features[2]).toEqual({ name: 'petal_length', unit: 'cm', low: iris().domain.envelope.low[2], high: iris().domain.envelope.high[2] });
-    expect(m.training.metrics.validation.accuracy).toBe(iris().training.metrics.validation?.accuracy);
+    expect(m.training.metrics.held_out.accuracy).toBe(iris().training.metrics.held_out?.accuracy);
+    expect(m.training.members).toEqual(iris().training.members);
     expect(m.calibration.temperature).toBe(iris().calibration.temperature);
     expect(m.domain.held_out).toEqual(iris().domain.held_out);
+    const d = iris().domain;
     expect(m.domain.detectors).toEqual([
       { detector: 'envelope', threshold: 0 },
-      { detector: 'input_mahalanobis', threshold: iris().domain.input_mahalanobis?.threshold },
-      { detector: 'feature_mahalanobis', threshold: iris().domain.feature_mahalanobis?.threshold },
-      { detector: 'energy', threshold: iris().domain.energy?.threshold },
+      ...(['input_mahalanobis', 'feature_mahalanobis', 'energy', 'disagreement'] as const).flatMap((n) => (d[n] ? [{ detector: n, threshold: d[n].threshold }] : [])),
     ]);
-    expect(res.body).not.toContain(JSON.stringify(iris().domain.input_mahalanobis?.cholesky.slice(0, 3)).slice(1, -1));
+    expect(m.domain.left_out).toEqual(d.left_out);
+    expect(res.body).not.toContain(JSON.stringify(d.input_mahalanobis?.members[0]?.cholesky.slice(0, 3)).slice(1, -1));
   });
 
   it('GET /v1/models/{name} of an unknown model is a 404 problem', async () => {

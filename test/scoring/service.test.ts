@@ -32,7 +32,7 @@ describe('scoring service, batches larger than one chunk', () => {
   });
 
   it('names the item that overflows the network by its index in the whole batch, in a later chunk, and logs nothing', async () => {
-    const huge = { ...loaded, network: { layers: loaded.network.layers.map((l, i) => (i < 2 ? { ...l, weights: l.weights.map(() => 1e300) } : l)) } };
+    const huge = { ...loaded, members: loaded.members.map((net) => ({ layers: net.layers.map((l, i) => (i < 2 ? { ...l, weights: l.weights.map(() => 1e300) } : l)) })) };
     const log = memoryLog();
     const items = Array.from({ length: SCORE_CHUNK_ROWS + 50 }, (_, i) => ({ features: i === SCORE_CHUNK_ROWS + 20 ? [1e6, 1e6, 1e6, 1e6] : [5, 3, 1, 0.2] }));
     const err = await createScoringService(registry(entry(huge)), log).scoreBatch('iris', items, ctx).catch((e: unknown) => e);

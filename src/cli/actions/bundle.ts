@@ -26,6 +26,8 @@ export interface BundleContext {
   reviewMargin: number;
   detectors: readonly DetectorName[];
   inDomainRate: number;
+  /** Keep in the vote a detector that separates no probe family. */
+  keepWeak: boolean;
   seed: number;
   createdAt: Date;
 }
@@ -79,6 +81,7 @@ export async function bundleAction(ctx: BundleContext, io: CliIo): Promise<{ bun
       reviewMargin: ctx.reviewMargin,
       detectors: ctx.detectors,
       inDomainRate: ctx.inDomainRate,
+      keepWeak: ctx.keepWeak,
       seed: ctx.seed,
       dataSha256: sha256,
       labelColumn: ctx.label,

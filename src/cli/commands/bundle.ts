@@ -1,5 +1,7 @@
 import type { Command } from 'commander';
 import { DOMAIN_DEFAULTS, OPTIONAL_DETECTORS } from '../../bundle/domain-fit.js';
+
+const SINGLE_NETWORK_DETECTORS = OPTIONAL_DETECTORS.filter((d) => d !== 'disagreement');
 import { buildTime } from '../../config.js';
 import { DEFAULT_TRAIN_OPTIONS } from '../../core/train.js';
 import { type BundleContext, bundleAction } from '../actions/bundle.js';
@@ -20,7 +22,9 @@ export function registerBundle(program: Command): void {
     .option('--feature-info <file.json>', 'units and descriptions: {"name": {"unit": "degC", "description": "..."}}')
     .option('--tolerance <x>', 'envelope widening, as a share of the 0.1%-99.9% range', numberIn(0, 100), DOMAIN_DEFAULTS.tolerance)
     .option('--review-margin <x>', 'answers with a smaller margin are marked for review', numberIn(0, 1), DOMAIN_DEFAULTS.reviewMargin)
-    .option('--detectors <a,b,...>', `domain detectors that vote with the envelope: ${OPTIONAL_DETECTORS.join(', ')}`, listOf(OPTIONAL_DETECTORS), [...OPTIONAL_DETECTORS])
+    // One imported network has no members to disagree: disagreement is not offered.
+    .option('--detectors <a,b,...>', `domain detectors that vote with the envelope: ${SINGLE_NETWORK_DETECTORS.join(', ')}`, listOf(SINGLE_NETWORK_DETECTORS), [...SINGLE_NETWORK_DETECTORS])
+    .option('--keep-weak', 'keep in the vote a detector that separates none of the generated out-of-domain probes (AUROC below 0.6 in every family)', false)
     .option('--in-domain-rate <x>', 'share of held-out in-domain rows the domain flag is calibrated to pass', numberIn(0.5, 0.99999), DOMAIN_DEFAULTS.inDomainRate)
     .option('--seed <n>', 'seed of the reference sample and the probes', integerIn(0, 4294967295), DEFAULT_TRAIN_OPTIONS.seed)
     .requiredOption('--name <name>', 'model name, [a-z0-9][a-z0-9._-]{0,63}')

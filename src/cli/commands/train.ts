@@ -10,8 +10,22 @@ import { integerIn, integerList, list, listOf, numberIn, oneOf } from '../option
 /** What commander parses: the action's context, with the split under its flag's name. */
 type TrainFlags = Omit<TrainContext, 'validationFraction' | 'createdAt'> & { validationSplit: number };
 
+/** What `train` does when no flag says otherwise; the demo build and the tests start from it too. */
+export const TRAIN_DEFAULTS = {
+  ...DEFAULT_TRAIN_OPTIONS,
+  folds: 5,
+  validationFraction: 0.2,
+  balance: false,
+  tolerance: DOMAIN_DEFAULTS.tolerance,
+  reviewMargin: DOMAIN_DEFAULTS.reviewMargin,
+  detectors: [...OPTIONAL_DETECTORS],
+  keepWeak: false,
+  inDomainRate: DOMAIN_DEFAULTS.inDomainRate,
+  version: '1',
+} as const satisfies Partial<TrainContext>;
+
 export function registerTrain(program: Command): void {
-  const d = DEFAULT_TRAIN_OPTIONS;
+  const d = TRAIN_DEFAULTS;
   program
     .command('train')
     .description('train a classifier on a labelled CSV and write a verified bundle')
@@ -27,16 +41,18 @@ export function registerTrain(program: Command): void {
     .option('--learning-rate <x>', 'Adam step size', numberIn(0, 10, { exclusiveMin: true }), d.learningRate)
     .option('--weight-decay <x>', 'decoupled weight decay', numberIn(0, 1), d.weightDecay)
     .option('--patience <n>', 'epochs without a better validation loss before stopping', integerIn(1, 100000), d.patience)
-    .option('--validation-split <x>', 'share of each class held out for validation and calibration', numberIn(0, 0.9), 0.2)
-    .option('--balance', 'weight classes by n / (classes x class count)', false)
+    .option('--folds <k>', 'cross-fitting: k networks, each trained without one of k stratified folds, answer together; every row is calibrated and evaluated by the network that never saw it (1: one network and a hold-out, for large data)', integerIn(1, 32), d.folds)
+    .option('--validation-split <x>', 'share of each network\'s rows its early stopping watches (with --folds 1, the hold-out that also calibrates)', numberIn(0, 0.9), d.validationFraction)
+    .option('--balance', 'weight classes by n / (classes x class count)', d.balance)
     .option('--seed <n>', 'seed of every random choice; same data, options, seed and SOURCE_DATE_EPOCH give the same bundle', integerIn(0, 4294967295), d.seed)
-    .option('--tolerance <x>', 'envelope widening, as a share of the 0.1%-99.9% range', numberIn(0, 100), DOMAIN_DEFAULTS.tolerance)
-    .option('--review-margin <x>', 'answers with a smaller margin are marked for review', numberIn(0, 1), DOMAIN_DEFAULTS.reviewMargin)
-    .option('--detectors <a,b,...>', `domain detectors that vote with the envelope: ${OPTIONAL_DETECTORS.join(', ')}`, listOf(OPTIONAL_DETECTORS), [...OPTIONAL_DETECTORS])
-    .option('--in-domain-rate <x>', 'share of held-out in-domain rows the domain flag is calibrated to pass', numberIn(0.5, 0.99999), DOMAIN_DEFAULTS.inDomainRate)
-    .option('--calibrate-on <file.csv>', 'held-out in-domain rows to calibrate the flag on, instead of the validation split')
+    .option('--tolerance <x>', 'envelope widening, as a share of the 0.1%-99.9% range', numberIn(0, 100), d.tolerance)
+    .option('--review-margin <x>', 'answers with a smaller margin are marked for review', numberIn(0, 1), d.reviewMargin)
+    .option('--detectors <a,b,...>', `domain detectors that vote with the envelope: ${OPTIONAL_DETECTORS.join(', ')}`, listOf(OPTIONAL_DETECTORS), [...d.detectors])
+    .option('--keep-weak', 'keep in the vote a detector that separates none of the generated out-of-domain probes (AUROC below 0.6 in every family)', d.keepWeak)
+    .option('--in-domain-rate <x>', 'share of held-out in-domain rows the domain flag is calibrated to pass', numberIn(0.5, 0.99999), d.inDomainRate)
+    .option('--calibrate-on <file.csv>', 'in-domain rows no network trained on, to calibrate the flag on instead of the out-of-fold rows')
     .requiredOption('--name <name>', 'model name, [a-z0-9][a-z0-9._-]{0,63}')
-    .option('--version <v>', 'model version, [A-Za-z0-9._-]{1,64}', '1')
+    .option('--version <v>', 'model version, [A-Za-z0-9._-]{1,64}', d.version)
     .requiredOption('--out <file.bundle.json>', 'where to write the bundle')
     .action(async (flags: TrainFlags) => {
       const { validationSplit, ...rest } = flags;

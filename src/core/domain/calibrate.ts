@@ -15,43 +15,131 @@ export function conformalThresholdSorted(sorted: ArrayLike<number>, level: numbe
   return sorted[Math.max(0, k - 1)] as number;
 }
 
-export interface CompositeCalibration {
-  /** Per-detector level used for every calibrated detector. */
+/**
+ * The largest pass rate that n calibration rows can promise one detector: the conformal
+ * threshold at level p needs ceil((n + 1) p) <= n, so p <= n / (n + 1) (fewer than 1/(1 - p) - 1
+ * rows cannot support p). A union of detectors can promise less (calibrateJoint).
+ */
+export function supportedLevel(n: number, target: number): number {
+  return n <= 0 ? 0 : Math.min(target, n / (n + 1));
+}
+
+export interface JointCalibration {
+  /** The level calibrated to: the target, or the most the rows can support for this union. */
   level: number;
+  /** Every detector's threshold is its rank-th smallest calibration score. */
+  rank: number;
   thresholds: number[];
-  /** Share of the held-out rows that pass every detector with these thresholds. */
-  passRate: number;
+  /** Per calibration row, whether it passes every detector at thresholds calibrated without it. */
+  looPasses: boolean[];
 }
 
 /**
- * Thresholds for a composite flag that is raised when any detector exceeds its threshold. All
- * calibrated detectors share one level q, the smallest q (by bisection over [target, 1]) at which
- * the held-out pass rate of the composite, including detectors with fixed outcomes (`alsoPass`,
- * e.g. the envelope), reaches the target. When even q = 1 cannot reach it (the fixed detectors
- * alone fail too many rows), q = 1 is used and the shortfall shows in passRate.
+ * One flag, one budget: thresholds for a flag that is raised when any detector exceeds its own,
+ * calibrated together so that a new row exchangeable with the n calibration rows passes all of
+ * them with probability at least the level.
+ *
+ * Each detector's scores become ranks (1 + the rows scoring strictly lower: a conformal p-value
+ * up to scale; Vovk et al. 2005; Bates et al. 2023, "Testing for outliers with conformal
+ * p-values", Annals of Statistics), and a row's combined score c is its worst rank over the
+ * detectors. Computed on the n rows and a new one together, c gives an exactly valid full
+ * conformal p-value; the flag here is the per-detector form of that test. A new row is flagged
+ * when its rank in some detector exceeds R, and then at most #{rows with c >= R} rows (their
+ * ranks can grow by one when the new row joins) score at least as high as it does; so with
+ * R = c_(k) + 1, k = ceil((n + 1) level), its p-value is at most 1 - level and the flag is raised
+ * no more often than the full conformal test raises it. With one detector no rank can be
+ * overtaken, and R = c_(k) is the split-conformal threshold itself. The price of deciding
+ * detector by detector is at most about one row in n + 1 of extra passes per detector.
+ * The most the rows support is #{c <= n - 1} / (n + 1) (n / (n + 1) for one detector): with
+ * few rows and several detectors the level is lowered to it.
  */
-export function calibrateComposite(scores: Float64Array[], rows: number, target: number, alsoPass: (row: number) => boolean = () => true): CompositeCalibration {
+export function calibrateJoint(scores: readonly ArrayLike<number>[], rows: number, target: number): JointCalibration {
   const sorted = scores.map((s) => Float64Array.from(s).sort());
-  const rate = (q: number): { thresholds: number[]; passRate: number } => {
-    const thresholds = sorted.map((s) => conformalThresholdSorted(s, q));
-    let pass = 0;
-    for (let r = 0; r < rows; r++) if (alsoPass(r) && scores.every((s, d) => (s[r] as number) <= (thresholds[d] as number))) pass++;
-    return { thresholds, passRate: rows > 0 ? pass / rows : 1 };
+  const worst = new Float64Array(rows).fill(1);
+  sorted.forEach((sj, j) => {
+    const s = scores[j] as ArrayLike<number>;
+    for (let r = 0; r < rows; r++) worst[r] = Math.max(worst[r] as number, 1 + countBelow(sj, s[r] as number));
+  });
+  const slack = scores.length > 1 ? 1 : 0;
+  const order = Float64Array.from(worst).sort();
+  const within = countBelow(order, rows - slack + 1);
+  const level = rows === 0 ? 0 : Math.min(target, within / (rows + 1));
+  const k = Math.max(1, Math.ceil((rows + 1) * level));
+  const rank = rows === 0 ? 0 : (order[k - 1] as number) + slack;
+  return { level, rank, thresholds: sorted.map((sj) => (rank > 0 ? (sj[rank - 1] as number) : Infinity)), looPasses: leaveOneOutJoint(scores, sorted, rows, target, slack) };
+}
+
+/** Up to this many rows the leave-one-out check recalibrates exactly, in O(n^2) per detector. */
+export const EXACT_LOO_ROWS = 6000;
+
+/**
+ * For each calibration row, whether it passes thresholds calibrated by calibrateJoint on the other
+ * n - 1 rows: their ranks among themselves, their own supported level and rank. Exact up to
+ * EXACT_LOO_ROWS rows; above that each row's own rank is taken out of the combined scores but the
+ * others' ranks are left as they are (each could fall by one), which errs by at most one rank in
+ * several thousand.
+ */
+function leaveOneOutJoint(scores: readonly ArrayLike<number>[], sorted: readonly Float64Array[], n: number, target: number, slack: number): boolean[] {
+  if (n < 2) return Array.from({ length: n }, () => true);
+  const J = scores.length;
+  const ranks = sorted.map((sj, j) => Int32Array.from({ length: n }, (_, r) => 1 + countBelow(sj, (scores[j] as ArrayLike<number>)[r] as number)));
+  const worst = Int32Array.from({ length: n }, (_, r) => Math.max(1, ...ranks.map((rj) => rj[r] as number)));
+  const passWith = (i: number, rank: number): boolean =>
+    sorted.every((sj, j) => {
+      const v = (scores[j] as ArrayLike<number>)[i] as number;
+      // The rank-th smallest of the others: one further along when row i is among the first rank.
+      const t = v > (sj[rank - 1] as number) ? (sj[rank - 1] as number) : (sj[rank] as number);
+      return v <= t;
+    });
+  const counts = new Int32Array(n + 2);
+  const rankWithout = (others: (l: number) => number): number => {
+    counts.fill(0);
+    for (let l = 0; l < n; l++) counts[others(l)] = (counts[others(l)] as number) + 1;
+    // n - 1 rows: level, k and rank as calibrateJoint computes them on those rows.
+    let within = 0;
+    for (let c = 1; c <= n - 1 - slack; c++) within += counts[c] as number;
+    const level = Math.min(target, within / n);
+    const k = Math.max(1, Math.ceil(n * level));
+    let seen = 0;
+    for (let c = 1; c <= n; c++) {
+      seen += counts[c] as number;
+      if (seen >= k) return Math.min(n - 1, c + slack);
+    }
+    return n - 1;
   };
-  let lo = target;
-  let hi = 1;
-  let best = { level: 1, ...rate(1) };
-  const first = rate(lo);
-  if (first.passRate >= target) return { level: lo, ...first };
-  for (let iter = 0; iter < 40; iter++) {
-    const mid = (lo + hi) / 2;
-    const r = rate(mid);
-    if (r.passRate >= target) {
-      best = { level: mid, ...r };
-      hi = mid;
-    } else lo = mid;
+  if (n > EXACT_LOO_ROWS) {
+    return Array.from({ length: n }, (_, i) => passWith(i, rankWithout((l) => (l === i ? 0 : (worst[l] as number)))));
   }
-  return best;
+  const without = new Int32Array(n);
+  return Array.from({ length: n }, (_, i) => {
+    for (let l = 0; l < n; l++) {
+      if (l === i) {
+        without[l] = 0;
+        continue;
+      }
+      let w = 1;
+      for (let j = 0; j < J; j++) {
+        const s = scores[j] as ArrayLike<number>;
+        // Without row i, row l's rank drops by one where row i scored strictly below it.
+        const r = ((ranks[j] as Int32Array)[l] as number) - (((s[i] as number) < (s[l] as number)) ? 1 : 0);
+        if (r > w) w = r;
+      }
+      without[l] = w;
+    }
+    return passWith(i, rankWithout((l) => without[l] as number));
+  });
+}
+
+/** How many values of an ascending array are strictly below v (a lower-bound binary search). */
+function countBelow(sorted: ArrayLike<number>, v: number): number {
+  let lo = 0;
+  let hi = sorted.length;
+  while (lo < hi) {
+    const mid = (lo + hi) >>> 1;
+    if ((sorted[mid] as number) < v) lo = mid + 1;
+    else hi = mid;
+  }
+  return lo;
 }
 
 /**

@@ -84,7 +84,7 @@ export function rangeExceedance(q: { low: ArrayLike<number>; high: ArrayLike<num
 }
 
 /** Indices of the features of one row that lie outside the envelope (NaN counts as outside). */
-export function featuresOutside(env: Envelope, x: ArrayLike<number>, offset = 0): number[] {
+export function featuresOutside(env: { low: readonly number[]; high: readonly number[] }, x: ArrayLike<number>, offset = 0): number[] {
   const out: number[] = [];
   for (let j = 0; j < env.low.length; j++) {
     const v = x[offset + j] as number;

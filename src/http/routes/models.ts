@@ -1,7 +1,9 @@
 import type { FastifyPluginAsyncZod } from 'fastify-type-provider-zod';
 import { type ModelEntry, RegistryError } from '../../bundle/registry.js';
 import { ProblemError } from '../../errors.js';
-import { OPTIONAL_DETECTORS } from '../../bundle/domain-fit.js';
+import { decodeDomain } from '../../bundle/domain-codec.js';
+import { BUNDLE_FORMAT_V1 } from '../../bundle/schema.js';
+import { storedMembers } from '../../bundle/verify.js';
 import { requireModel } from '../../scoring/service.js';
 import { commonErrors, jsonResponse, modelDetailSchema, modelNameParam, modelSummarySchema, problemResponse } from '../schemas.js';
 import { z } from 'zod';
@@ -15,23 +17,20 @@ function summary(e: ModelEntry) {
 function detail(e: ModelEntry) {
   const b = e.bundle.file;
   const env = b.domain.envelope;
+  const runtime = decodeDomain(b);
   return {
     ...summary(e),
+    format: b.format,
     created_at: b.created_at,
     file: e.path,
-    network: { layers: b.network.layers.map(({ inputs, outputs, activation, alpha }) => ({ inputs, outputs, activation, ...(alpha !== undefined ? { alpha } : {}) })) },
+    members: storedMembers(b).map((net) => ({ layers: net.layers.map(({ inputs, outputs, activation, alpha }) => ({ inputs, outputs, activation, ...(alpha !== undefined ? { alpha } : {}) })) })),
     calibration: b.calibration,
     domain: {
       review_margin: b.domain.review_margin,
       target_in_domain_rate: b.domain.target_in_domain_rate,
       held_out: b.domain.held_out,
-      detectors: [
-        { detector: 'envelope', threshold: 0 },
-        ...OPTIONAL_DETECTORS.flatMap((n) => {
-          const d = b.domain[n];
-          return d ? [{ detector: n, threshold: d.threshold }] : [];
-        }),
-      ],
+      detectors: runtime.enabled.map((n) => ({ detector: n, threshold: runtime.thresholds[n] })),
+      left_out: b.format === BUNDLE_FORMAT_V1 ? [] : b.domain.left_out,
       evaluation: b.domain.evaluation,
       envelope: {
         tolerance: env.tolerance,
@@ -42,8 +41,11 @@ function detail(e: ModelEntry) {
       rows: b.training.rows,
       seed: b.training.seed,
       options: b.training.options,
-      epochs_run: b.training.epochs_run,
-      best_epoch: b.training.best_epoch,
+      // Version 1 trained one network: shown as the one member it is.
+      members:
+        b.format === BUNDLE_FORMAT_V1
+          ? [{ train_rows: b.training.rows.train, early_stopping_rows: b.training.rows.validation, epochs_run: b.training.epochs_run, best_epoch: b.training.best_epoch, stopped_early: b.training.stopped_early }]
+          : b.training.members,
       metrics: b.training.metrics,
     },
   };
