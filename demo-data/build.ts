@@ -5,8 +5,7 @@ import { join } from 'node:path';
 import { Writable } from 'node:stream';
 import { fileURLToPath } from 'node:url';
 import { trainAction } from '../src/cli/actions/train.js';
-import { DEFAULT_TRAIN_OPTIONS } from '../src/core/train.js';
-import { DOMAIN_DEFAULTS, OPTIONAL_DETECTORS } from '../src/bundle/domain-fit.js';
+import { TRAIN_DEFAULTS } from '../src/cli/commands/train.js';
 import { FEATURES, makeCsv } from './generator.js';
 
 /** The demo's files, each with its seed and scenario (README.md tells the story of each). */
@@ -32,6 +31,7 @@ export async function buildDemo(outDir: string, log: Writable = quiet()): Promis
   }
   await trainAction(
     {
+      ...TRAIN_DEFAULTS,
       data: join(outDir, 'training.csv'),
       label: 'outcome',
       features: [...FEATURES],
@@ -39,13 +39,7 @@ export async function buildDemo(outDir: string, log: Writable = quiet()): Promis
       name: DEMO_BUNDLE.name,
       version: DEMO_BUNDLE.version,
       out: join(outDir, 'models', `${DEMO_BUNDLE.name}.bundle.json`),
-      ...DEFAULT_TRAIN_OPTIONS,
-      validationFraction: 0.2,
-      balance: false,
-      tolerance: DOMAIN_DEFAULTS.tolerance,
-      reviewMargin: DOMAIN_DEFAULTS.reviewMargin,
-      detectors: [...OPTIONAL_DETECTORS],
-      inDomainRate: DOMAIN_DEFAULTS.inDomainRate,
+      detectors: [...TRAIN_DEFAULTS.detectors],
       createdAt: DEMO_BUNDLE.createdAt,
     },
     { stdout: log, stderr: quiet(), interactive: false },
