@@ -22,7 +22,7 @@ export const DOMAIN_DEFAULTS = { tolerance: 0.1, reviewMargin: 0.2, inDomainRate
 /** A detector whose AUROC stays below this in every probe family separates nothing and leaves the vote. */
 export const MIN_AUROC = 0.6;
 
-/** The widest envelope calibration may choose: a whole range beyond each end of the quantile range. */
+/** The widest envelope calibration may choose (unless a wider tolerance is asked for): a whole range beyond each end of the quantile range. */
 export const MAX_TOLERANCE = 1;
 
 /** Confidence of the interval stored around the false-alarm rate. */
@@ -172,10 +172,15 @@ export function fitDomain(input: DomainFitInput, rng: Rng): Domain {
   });
 
   const joint = calibrateJoint([floor(held.exceedance), ...voting.map((n) => held.scores[n] as Float64Array)], cal.rows, input.targetRate);
-  const tolerance = Math.min(MAX_TOLERANCE, cal.rows === 0 ? input.tolerance : Math.max(input.tolerance, joint.thresholds[0] as number));
+  // Calibration widens the envelope at most to MAX_TOLERANCE (or to the tolerance asked for, if
+  // wider). Where that cap binds, the rows beyond it fail the served envelope whatever the ranks
+  // said, and the pass rate measured below counts them as failed.
+  const cap = Math.max(MAX_TOLERANCE, input.tolerance);
+  const tolerance = Math.min(cap, cal.rows === 0 ? input.tolerance : Math.max(input.tolerance, joint.thresholds[0] as number));
   models.envelope = envelopeFromRange(servingRange, tolerance);
   const thresholds = Object.fromEntries(voting.map((n, i) => [n, joint.thresholds[i + 1] as number])) as Record<DetectorName, number>;
-  const passed = joint.looPasses.filter(Boolean).length;
+  const passes = joint.looPasses.map((ok, r) => ok && (held.exceedance[r] as number) <= tolerance);
+  const passed = passes.filter(Boolean).length;
   const ci = clopperPearsonInterval(cal.rows - passed, cal.rows, CI_CONFIDENCE);
   const inDomainRate = cal.rows === 0 ? 0 : round6(passed / cal.rows);
 
@@ -193,7 +198,7 @@ export function fitDomain(input: DomainFitInput, rng: Rng): Domain {
     return out;
   };
   const heldPasses = passesOf(held, cal.rows, true);
-  heldPasses.composite = joint.looPasses;
+  heldPasses.composite = passes;
   for (const n of compared) heldPasses[n] = leaveOneOutPasses(continuous(held, n), input.targetRate);
   const order = ['envelope', ...voting, 'composite', ...compared];
   const evaluation: Evaluation = {

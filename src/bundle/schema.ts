@@ -215,7 +215,7 @@ export const domainSchema = z.strictObject({
   held_out: z.strictObject({
     source: z.enum(['out_of_fold', 'validation', 'calibrate-on', 'training']),
     rows: count,
-    /** The level calibrated to: the target, or n / (n + 1) where the rows cannot support it. */
+    /** The level calibrated to: the target, or the most the rows support where they cannot support it (n / (n + 1) for one detector, #{worst rank <= n - 1} / (n + 1) for several; src/core/domain/calibrate.ts). */
     level: probability,
     /** Leave-one-out share of the rows the flag passes, and its complement. */
     in_domain_rate: probability,
@@ -261,7 +261,7 @@ export const trainingSchema = z.strictObject({
     }),
   ),
   metrics: z.strictObject({
-    /** On the held-out rows: out of fold, each row answered by the member that never saw it. */
+    /** On the held-out rows: out of fold, each row answered by networks that never saw it (the K - 1 calibration networks of its fold for K >= 3, the member without its fold for K = 2). */
     held_out: metricsSchema.nullable(),
     calibration: z.strictObject({
       temperature: finite.positive(),

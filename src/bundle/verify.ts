@@ -142,6 +142,18 @@ export function checkConsistency(b: AnyBundleFile): BundleProblem[] {
     const hi = b.domain.envelope.high[j];
     if (hi !== undefined && lo > hi) add(`domain.envelope.low[${j}]`, `is ${lo}, above its high ${hi}`);
   });
+  if ('range' in b.domain.envelope) {
+    const { range, low, high } = b.domain.envelope;
+    sameLength('domain.envelope.range.low', range.low, d, 'one per feature');
+    sameLength('domain.envelope.range.high', range.high, d, 'one per feature');
+    // The envelope widens the training range: the range lies inside it.
+    range.low.forEach((lo, j) => {
+      const hi = range.high[j];
+      if (hi !== undefined && lo > hi) add(`domain.envelope.range.low[${j}]`, `is ${lo}, above its high ${hi}`);
+      if (low[j] !== undefined && lo < (low[j] as number)) add(`domain.envelope.range.low[${j}]`, `is ${lo}, below the envelope's low ${low[j]}`);
+      if (hi !== undefined && high[j] !== undefined && hi > (high[j] as number)) add(`domain.envelope.range.high[${j}]`, `is ${hi}, above the envelope's high ${high[j]}`);
+    });
+  }
 
   // The Gaussians of the distance detectors, each at its path: (path, mean length, factor side).
   const gaussians: Array<{ path: string; cholesky: readonly number[]; side: number }> = [];

@@ -223,4 +223,19 @@ describe('bundle file', () => {
     expect(paths).toContain('domain.input_mahalanobis.members');
     expect(paths).toContain('domain.disagreement');
   });
+
+  it('refuses a training range that does not fit the features or lies outside the envelope', () => {
+    const err = problemsOf(() =>
+      parseBundle(
+        resealed((b) => {
+          b.domain.envelope.range.low.push(0);
+          b.domain.envelope.range.high[0] = (b.domain.envelope.high[0] as number) + 1;
+        }),
+        'b.json',
+      ),
+    );
+    const paths = err.problems.map((p) => p.path);
+    expect(paths).toContain('domain.envelope.range.low');
+    expect(paths).toContain('domain.envelope.range.high[0]');
+  });
 });

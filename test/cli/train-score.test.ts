@@ -68,7 +68,7 @@ describe('plumbline train, then plumbline score', () => {
     const { bundle } = await trainAction(trainContext(irisData, out, { featureInfo: units }), t);
     const text = t.out.text();
     expect(text).toMatch(/^rows 150: 5 folds, each network trained without one; trained on 96 rows, early stopping on 24;/m);
-    expect(text).toMatch(/out-of-fold accuracy \(each of the 150 rows answered by the network that never saw it\) 0\.\d{4}, macro-F1 0\.\d{4}/);
+    expect(text).toMatch(/out-of-fold accuracy \(each of the 150 rows answered by networks that never saw it\) 0\.\d{4}, macro-F1 0\.\d{4}/);
     expect(text).toMatch(/^class\s+precision\s+recall\s+F1\s+rows$/m);
     // every row is held out once: 50 of each class
     expect(text).toMatch(/^setosa\s+\d\.\d{3}\s+\d\.\d{3}\s+\d\.\d{3}\s+50$/m);

@@ -44,7 +44,7 @@ export function formatMetrics(b: BundleFile): string {
   const on = imported && t.rows.held_out === 0
     ? 'accuracy on --data (not held out: it may be the training data)'
     : t.rows.folds > 1
-      ? `out-of-fold accuracy (each of the ${t.rows.held_out} rows answered by the network that never saw it)`
+      ? `out-of-fold accuracy (each of the ${t.rows.held_out} rows answered by networks that never saw it)`
       : `accuracy on the ${t.rows.held_out} held-out rows`;
   lines.push(`${on} ${m.accuracy.toFixed(4)}, macro-F1 ${m.macro_f1.toFixed(4)}`);
   const width = Math.max(5, ...b.classes.map((c, k) => `${k} ${c}`.length)) + 2;

@@ -41,7 +41,7 @@ export function registerTrain(program: Command): void {
     .option('--learning-rate <x>', 'Adam step size', numberIn(0, 10, { exclusiveMin: true }), d.learningRate)
     .option('--weight-decay <x>', 'decoupled weight decay', numberIn(0, 1), d.weightDecay)
     .option('--patience <n>', 'epochs without a better validation loss before stopping', integerIn(1, 100000), d.patience)
-    .option('--folds <k>', 'cross-fitting: k networks, each trained without one of k stratified folds, answer together; every row is calibrated and evaluated by the network that never saw it (1: one network and a hold-out, for large data)', integerIn(1, 32), d.folds)
+    .option('--folds <k>', 'cross-fitting: k networks, each trained without one of k stratified folds, answer together; every row is calibrated and evaluated by networks that never saw it (1: one network and a hold-out, for large data)', integerIn(1, 32), d.folds)
     .option('--validation-split <x>', 'share of each network\'s rows its early stopping watches (with --folds 1, the hold-out that also calibrates)', numberIn(0, 0.9), d.validationFraction)
     .option('--balance', 'weight classes by n / (classes x class count)', d.balance)
     .option('--seed <n>', 'seed of every random choice; same data, options, seed and SOURCE_DATE_EPOCH give the same bundle', integerIn(0, 4294967295), d.seed)

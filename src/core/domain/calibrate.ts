@@ -65,7 +65,9 @@ export function calibrateJoint(scores: readonly ArrayLike<number>[], rows: numbe
   const within = countBelow(order, rows - slack + 1);
   const level = rows === 0 ? 0 : Math.min(target, within / (rows + 1));
   const k = Math.max(1, Math.ceil((rows + 1) * level));
-  const rank = rows === 0 ? 0 : (order[k - 1] as number) + slack;
+  // With as few rows as detectors no level is supported (level 0): the thresholds are then the
+  // largest calibration scores, the least a flag can say.
+  const rank = rows === 0 ? 0 : Math.min(rows, (order[k - 1] as number) + slack);
   return { level, rank, thresholds: sorted.map((sj) => (rank > 0 ? (sj[rank - 1] as number) : Infinity)), looPasses: leaveOneOutJoint(scores, sorted, rows, target, slack) };
 }
 

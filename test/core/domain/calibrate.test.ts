@@ -131,6 +131,15 @@ describe('joint calibration: one flag, one budget', () => {
     expect(passed).toBeGreaterThan(level - 2.576 * Math.sqrt((level * (1 - level)) / trials));
   });
 
+  it('with no more rows than detectors, supports no level and still gives finite thresholds: the largest scores', () => {
+    for (const rows of [1, 2]) {
+      const cols = [Float64Array.from({ length: rows }, (_, i) => i + 1), Float64Array.from({ length: rows }, (_, i) => 10 - i)];
+      const cal = calibrateJoint(cols, rows, 0.99);
+      expect(cal.level).toBeLessThan(0.5);
+      expect(cal.thresholds).toEqual(cols.map((c) => Math.max(...c)));
+    }
+  });
+
   it('measures the pass rate leave-one-out: each row against thresholds calibrated on the other rows, by definition', () => {
     const rng = createRng(21);
     const n = 60;
