@@ -1,5 +1,6 @@
 // Batch scoring: vectors/s through POST score-batch and through the offline `plumbline score`,
-// and the forward pass alone in GFLOP/s against a numpy (OpenBLAS) matmul chain on one thread.
+// the forward pass alone in GFLOP/s against a numpy (OpenBLAS) matmul chain on one thread, and the
+// ensemble's forward passes, members x rows.
 //   npx tsx bench/batch.ts
 import { execFileSync } from 'node:child_process';
 import { mkdtempSync, readdirSync, rmSync, writeFileSync } from 'node:fs';
@@ -77,9 +78,9 @@ export interface ForwardFigure {
   ratio: number | null;
 }
 
-function ourForward(shape: number[], batch: number): number {
-  const rng = createRng(1);
-  const net: Network = {
+function randomNetwork(shape: number[], seed: number): Network {
+  const rng = createRng(seed);
+  return {
     layers: shape.slice(0, -1).map((a, i) => ({
       inputs: a,
       outputs: shape[i + 1] as number,
@@ -89,17 +90,56 @@ function ourForward(shape: number[], batch: number): number {
       bias: Float64Array.from({ length: shape[i + 1] as number }, () => rng.next() - 0.5),
     })),
   };
-  const x = Float64Array.from({ length: batch * (shape[0] as number) }, () => rng.next());
-  const pass = createFastForwardPass(net, batch);
-  const flops = 2 * batch * shape.slice(0, -1).reduce((s, a, i) => s + a * (shape[i + 1] as number), 0);
-  for (let i = 0; i < 5; i++) pass.run(x, batch);
+}
+
+/** Calls per second of fn, after a warm-up, over about a second. */
+function callsPerSecond(fn: () => void): number {
+  for (let i = 0; i < 5; i++) fn();
   let n = 0;
   const t = performance.now();
   while (performance.now() - t < 1000) {
-    pass.run(x, batch);
+    fn();
     n++;
   }
-  return flops / ((performance.now() - t) / n / 1000) / 1e9;
+  return n / ((performance.now() - t) / 1000);
+}
+
+function ourForward(shape: number[], batch: number): number {
+  const net = randomNetwork(shape, 1);
+  const rng = createRng(2);
+  const x = Float64Array.from({ length: batch * (shape[0] as number) }, () => rng.next());
+  const pass = createFastForwardPass(net, batch);
+  const flops = 2 * batch * shape.slice(0, -1).reduce((s, a, i) => s + a * (shape[i + 1] as number), 0);
+  return (flops * callsPerSecond(() => pass.run(x, batch))) / 1e9;
+}
+
+export interface EnsembleFigure {
+  shape: string;
+  members: number;
+  rows: number;
+  /** Microseconds for every member's forward pass over the rows. */
+  microseconds: number;
+  vectorsPerSecond: number;
+}
+
+/**
+ * The ensemble's cost: an answer runs every member's forward pass, so the work is members x rows.
+ * Each figure runs M networks of the shape over a batch of the rows, as the scorer does.
+ */
+export function measureEnsembleForward(shape: ShapeName, members: number[], rows: number[]): EnsembleFigure[] {
+  const label = shapeLabel(shape);
+  const dims = label.split('-').map(Number);
+  return members.flatMap((m) =>
+    rows.map((batch) => {
+      const passes = Array.from({ length: m }, (_, i) => createFastForwardPass(randomNetwork(dims, 10 + i), batch));
+      const rng = createRng(3);
+      const x = Float64Array.from({ length: batch * (dims[0] as number) }, () => rng.next());
+      const perSecond = callsPerSecond(() => {
+        for (const p of passes) p.run(x, batch);
+      });
+      return { shape: label, members: m, rows: batch, microseconds: 1e6 / perSecond, vectorsPerSecond: perSecond * batch };
+    }),
+  );
 }
 
 function numpyForward(shapes: string[], batches: number[]): Map<string, number> | null {
@@ -128,6 +168,7 @@ export function measureForward(shapes: ShapeName[], batches: number[]): ForwardF
 
 if (process.argv[1]?.endsWith('batch.ts')) {
   for (const f of measureForward(['mid', 'wide'], [64, 1024, 8192])) console.log(`forward ${f.shape} batch ${f.batch}: ${f.gflops.toFixed(2)} GFLOP/s, numpy ${f.numpyGflops?.toFixed(2)}, ratio ${f.ratio?.toFixed(2)}`);
+  for (const f of measureEnsembleForward('mid', [1, 5], [1, 64, 1024])) console.log(`ensemble ${f.shape} ${f.members} members x ${f.rows} rows: ${f.microseconds.toFixed(1)} us, ${f.vectorsPerSecond.toFixed(0)} vectors/s`);
   for (const shape of ['mid', 'wide'] as const) {
     for (const t of await measureScoreBatch(shape, [10, 100, 1000], 5)) console.log(`score-batch ${t.shape} x${t.size}: ${t.vectorsPerSecond.toFixed(0)} vectors/s`);
     for (const t of await measureOfflineScore(shape, [1000, 10_000, 100_000])) console.log(`offline score ${t.shape} ${t.size} rows: ${t.vectorsPerSecond.toFixed(0)} vectors/s`);

@@ -46,8 +46,11 @@ export async function benchModels(dir: string, shape: ShapeName): Promise<{ dir:
       name: 'bench',
       version: shape,
       createdAt: new Date('2026-12-01T00:00:00Z'),
+      // Five networks, as train makes by default: the scorer runs every member.
+      folds: 5,
       validationFraction: 0.2,
       balance: false,
+      keepWeak: true,
       tolerance: DOMAIN_DEFAULTS.tolerance,
       reviewMargin: DOMAIN_DEFAULTS.reviewMargin,
       detectors: ['input_mahalanobis', 'feature_mahalanobis', 'energy'],
