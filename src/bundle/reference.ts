@@ -2,7 +2,7 @@ import { binIndex, column, meanAndStd, quantileSorted, sortedCopy } from '../cor
 import { type Rng, shuffleInPlace } from '../core/rng.js';
 import { REFERENCE_QUANTILE_LEVELS, type Reference } from './schema.js';
 
-/** Rows kept verbatim as the reference sample for two-sample tests (DESIGN.md). */
+/** Rows kept verbatim as the reference sample for two-sample tests (docs/bundle-format.md). */
 export const REFERENCE_SAMPLE_MAX = 10_000;
 
 const DECILE_LEVELS = [0.1, 0.2, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9];
