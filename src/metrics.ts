@@ -32,7 +32,7 @@ export function createMetrics(): Metrics {
       registers: [registry],
     }),
     alertSignal: new Gauge({ name: 'plumbline_alert_signal', help: "An alert rule's signal at its last evaluation (NaN when it could not be computed: too few requests, or no loaded bundle to compare with).", labelNames: ['rule', 'model'], registers: [registry] }),
-    alertState: new Gauge({ name: 'plumbline_alert_state', help: 'An alert rule: 0 ok, 1 condition holding (pending), 2 raised.', labelNames: ['rule', 'model'], registers: [registry] }),
+    alertState: new Gauge({ name: 'plumbline_alert_state', help: 'An alert rule: 0 quiet, 1 condition holding, 2 raised.', labelNames: ['rule', 'model'], registers: [registry] }),
     driftMaxPsi: new Gauge({ name: 'plumbline_drift_max_psi', help: 'Largest feature PSI of the newest drift report of a model.', labelNames: ['model'], registers: [registry] }),
     outboxDepth: new Gauge({ name: 'plumbline_outbox_depth', help: 'Webhook deliveries waiting to be sent or retried.', registers: [registry] }),
   };

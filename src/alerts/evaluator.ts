@@ -8,7 +8,7 @@ import { formatDuration } from './durations.js';
 import type { AlertRule } from './rules.js';
 import { computeSignal } from './signals.js';
 
-export type AlertPhase = 'ok' | 'pending' | 'raised';
+export type AlertPhase = 'quiet' | 'holding' | 'raised';
 
 export interface AlertState {
   rule: string;
@@ -70,7 +70,7 @@ export function createEvaluator(deps: { rules: AlertRule[]; registry: ModelRegis
 
   const evaluate = (rule: AlertRule, model: string, now: number): void => {
     const k = key(rule.name, model);
-    const t = tracks.get(k) ?? { phase: 'ok', since: now, clearSince: null, alertId: null, raisedAt: null, value: null, threshold: null, requests: 0 };
+    const t = tracks.get(k) ?? { phase: 'quiet', since: now, clearSince: null, alertId: null, raisedAt: null, value: null, threshold: null, requests: 0 };
     tracks.set(k, t);
     const direction = rule.below !== undefined ? 'below' : 'above';
     const threshold = thresholdFor(rule, model);
@@ -80,7 +80,7 @@ export function createEvaluator(deps: { rules: AlertRule[]; registry: ModelRegis
     const enough = signal !== null && signal.requests >= rule.min_requests && threshold !== null;
     t.value = enough ? signal.value : null;
     if (!enough) {
-      if (t.phase === 'pending') t.phase = 'ok';
+      if (t.phase === 'holding') t.phase = 'quiet';
       return;
     }
     const holds = direction === 'above' ? signal.value > threshold : signal.value < threshold;
@@ -90,11 +90,11 @@ export function createEvaluator(deps: { rules: AlertRule[]; registry: ModelRegis
     };
     if (holds) {
       t.clearSince = null;
-      if (t.phase === 'ok') {
-        t.phase = 'pending';
+      if (t.phase === 'quiet') {
+        t.phase = 'holding';
         t.since = now;
       }
-      if (t.phase === 'pending' && now - t.since >= rule.sustain) {
+      if (t.phase === 'holding' && now - t.since >= rule.sustain) {
         const id = uuidv7(now);
         store.raise(
           { id, rule: rule.name, model_name: model, signal: rule.signal, direction, threshold, window_ms: rule.window, raised_value: signal.value, raised_at: now },
@@ -106,13 +106,13 @@ export function createEvaluator(deps: { rules: AlertRule[]; registry: ModelRegis
       }
       return;
     }
-    if (t.phase === 'pending') t.phase = 'ok';
+    if (t.phase === 'holding') t.phase = 'quiet';
     if (t.phase === 'raised' && t.alertId !== null) {
       t.clearSince ??= now;
       if (now - t.clearSince >= rule.window) {
         store.clear(t.alertId, signal.value, now, deliveries(rule, model, 'plumbline.alert.cleared', now, facts(t.alertId, t.raisedAt ?? now, now)));
         log.info({ alert: t.alertId, rule: rule.name, model, value: signal.value }, 'alert cleared');
-        Object.assign(t, { phase: 'ok', since: now, alertId: null, raisedAt: null, clearSince: null });
+        Object.assign(t, { phase: 'quiet', since: now, alertId: null, raisedAt: null, clearSince: null });
       }
     }
   };
@@ -136,6 +136,6 @@ export function createEvaluator(deps: { rules: AlertRule[]; registry: ModelRegis
 
   function stateOf(rule: string, model: string): AlertState {
     const t = tracks.get(key(rule, model));
-    return { rule, model, phase: t?.phase ?? 'ok', value: t?.value ?? null, threshold: t?.threshold ?? null, requests: t?.requests ?? 0, alertId: t?.alertId ?? null };
+    return { rule, model, phase: t?.phase ?? 'quiet', value: t?.value ?? null, threshold: t?.threshold ?? null, requests: t?.requests ?? 0, alertId: t?.alertId ?? null };
   }
 }

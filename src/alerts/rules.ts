@@ -51,7 +51,7 @@ export const webhookSchema = z
 
 export const alertsSchema = z
   .strictObject({
-    evaluate_every: duration('evaluate_every', 1000, DAY_MS).default(30_000),
+    check_every: duration('check_every', 1000, DAY_MS).default(30_000),
     rules: z.array(ruleSchema).default([]),
     webhooks: z.record(z.string().regex(/^[A-Za-z0-9][A-Za-z0-9._-]{0,63}$/, 'webhook names are 1-64 letters, digits, dots, dashes or underscores'), webhookSchema).default({}),
     delivery: z

@@ -14,11 +14,11 @@ export interface Alerting {
   stop(): Promise<void>;
 }
 
-const PHASE = { ok: 0, pending: 1, raised: 2 } as const;
+const PHASE = { quiet: 0, holding: 1, raised: 2 } as const;
 
 /**
- * Alerts in the server: rules evaluated every alerts.evaluate_every, deliveries attempted every
- * second (a pending one survives restarts in the outbox). Timers are unref'd: they never keep the
+ * Alerts in the server: rules evaluated every alerts.check_every, deliveries attempted every
+ * second (an undelivered one survives restarts in the outbox). Timers are unref'd: they never keep the
  * process alive, and evaluation is a few indexed aggregates, so scoring is not held up.
  */
 export function startAlerting(deps: { config: Config; registry: ModelRegistry; store: Store; metrics: Metrics; log: Logger; env: NodeJS.ProcessEnv; timers?: boolean }): Alerting {
@@ -48,7 +48,7 @@ export function startAlerting(deps: { config: Config; registry: ModelRegistry; s
   };
   const timers: NodeJS.Timeout[] = [];
   if (deps.timers !== false) {
-    if (config.alerts.rules.length > 0) timers.push(setInterval(() => void tick().catch((err: unknown) => log.error({ err }, 'alert evaluation failed')), config.alerts.evaluate_every));
+    if (config.alerts.rules.length > 0) timers.push(setInterval(() => void tick().catch((err: unknown) => log.error({ err }, 'alert evaluation failed')), config.alerts.check_every));
     timers.push(setInterval(() => void deliver().catch((err: unknown) => log.error({ err }, 'alert delivery failed')), 1000));
     for (const t of timers) t.unref();
   }

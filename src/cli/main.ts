@@ -10,7 +10,7 @@ import { StoreIntegrityError } from '../store/store.js';
 import { DataFileError } from '../io/csv.js';
 import { DataFileErrors } from '../io/feature-table.js';
 import { registerAudit } from './commands/audit.js';
-import { registerBundle } from './commands/bundle.js';
+import { registerImport } from './commands/import.js';
 import { registerDemo } from './commands/demo.js';
 import { registerKeys } from './commands/keys.js';
 import { registerDrift } from './commands/drift.js';
@@ -27,7 +27,7 @@ export function buildProgram(): Command {
     .exitOverride();
   registerServe(program);
   registerTrain(program);
-  registerBundle(program);
+  registerImport(program);
   registerScore(program);
   registerDrift(program);
   registerDemo(program);

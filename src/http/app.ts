@@ -10,7 +10,7 @@ import guards from './plugins/guards.js';
 import services, { type Services } from './plugins/services.js';
 import problems, { clientErrorHandler, sendProblem, toProblem } from './problems.js';
 import { zodValidatorCompiler } from './validation.js';
-import docs from './routes/docs.js';
+import apiDescription from './routes/api-description.js';
 import health from './routes/health.js';
 import models from './routes/models.js';
 import alerts from './routes/alerts.js';
@@ -176,6 +176,6 @@ export async function buildApp(svc: Services, options: AppOptions = {}): Promise
   await app.register(reports);
   await app.register(alerts);
   await app.register(metrics);
-  await app.register(docs);
+  await app.register(apiDescription);
   return app;
 }

@@ -17,12 +17,14 @@ describe('alert configuration', () => {
     expect(parseDuration('-5s')).toBeNull();
   });
 
-  it('takes sustain 0s, and refuses an evaluate_every no timer can wait for', () => {
+  it('takes sustain 0s, and refuses a check_every no timer can wait for, and the old key evaluate_every', () => {
     const rule = { name: 'r', model: '*', signal: 'out_of_domain_rate', above: 0.05, sustain: '0s' };
     expect(configSchema.parse({ alerts: { rules: [rule] } }).alerts.rules[0]?.sustain).toBe(0);
     // Node runs a timer of more than 2^31-1 ms (about 24.8 days) after 1 ms instead
-    expect(() => configSchema.parse({ alerts: { evaluate_every: '30d' } })).toThrow(/evaluate_every must be from 1s to 1d/);
-    expect(() => configSchema.parse({ alerts: { evaluate_every: '0s' } })).toThrow(/evaluate_every must be from 1s to 1d/);
+    expect(() => configSchema.parse({ alerts: { check_every: '30d' } })).toThrow(/check_every must be from 1s to 1d/);
+    expect(() => configSchema.parse({ alerts: { check_every: '0s' } })).toThrow(/check_every must be from 1s to 1d/);
+    // renamed, not aliased: a configuration that still says evaluate_every is refused
+    expect(() => configSchema.parse({ alerts: { evaluate_every: '30s' } })).toThrow(/evaluate_every/);
   });
 
   it('does not warn about a PLUMBLINE_ variable that holds a webhook secret', () => {

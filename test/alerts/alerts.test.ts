@@ -62,12 +62,12 @@ describe('alerts on out-of-domain traffic', () => {
     server = await start(tmp.file('a.db'));
     await traffic(server, GOOD, 200, T0, T0 + 10 * MIN);
     await tick(server, T0 + 10 * MIN);
-    expect(server.app.alerting!.evaluator.states()).toEqual([expect.objectContaining({ phase: 'ok', requests: 200 })]);
+    expect(server.app.alerting!.evaluator.states()).toEqual([expect.objectContaining({ phase: 'quiet', requests: 200 })]);
 
     // the cushion transducer sticks at 0 mm for five minutes
     await traffic(server, STUCK, 100, T0 + 10 * MIN, T0 + 15 * MIN);
     await tick(server, T0 + 15 * MIN);
-    expect(server.app.alerting!.evaluator.states()[0]!.phase).toBe('pending');
+    expect(server.app.alerting!.evaluator.states()[0]!.phase).toBe('holding');
     expect(receiver.received).toHaveLength(0);
     await traffic(server, STUCK, 60, T0 + 15 * MIN, T0 + 18 * MIN);
     await tick(server, T0 + 18 * MIN);
@@ -88,7 +88,7 @@ describe('alerts on out-of-domain traffic', () => {
     await tick(server, T0 + 35 * MIN);
     expect(server.app.alerting!.evaluator.states()[0]!.phase).toBe('raised');
     await tick(server, T0 + 39 * MIN);
-    expect(server.app.alerting!.evaluator.states()[0]!.phase).toBe('ok');
+    expect(server.app.alerting!.evaluator.states()[0]!.phase).toBe('quiet');
     const [, cleared] = events();
     expect(cleared!.event.type).toBe('plumbline.alert.cleared');
     expect(cleared!.event.data.alert_id).toBe(raised!.event.data.alert_id);

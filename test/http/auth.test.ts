@@ -46,7 +46,7 @@ describe('API keys and roles', () => {
     { method: 'GET', url: '/healthz', ok: 200, needs: 'public' },
     { method: 'GET', url: '/readyz', ok: 200, needs: 'public' },
     { method: 'GET', url: '/openapi.json', ok: 200, needs: 'public' },
-    { method: 'GET', url: '/docs', ok: 200, needs: 'public' },
+    { method: 'GET', url: '/api.html', ok: 200, needs: 'public' },
   ];
   const expected = (needs: Role | 'public', role: Role | null, ok: number): number => {
     if (needs === 'public') return ok;
@@ -202,11 +202,11 @@ describe('rate limit, security headers, load shedding', () => {
 
   it('sends security headers on every answer, and a content security policy on HTML pages', async () => {
     svc = await startTestService();
-    for (const url of ['/v1/models', '/healthz', '/v1/nothing', '/docs']) {
+    for (const url of ['/v1/models', '/healthz', '/v1/nothing', '/api.html']) {
       const res = await svc.app.inject(url);
       expect(res.headers).toMatchObject({ 'x-content-type-options': 'nosniff', 'referrer-policy': 'no-referrer', 'x-frame-options': 'DENY', 'cache-control': 'no-store' });
     }
-    const page = await svc.app.inject('/docs');
+    const page = await svc.app.inject('/api.html');
     expect(page.headers['content-security-policy']).toContain("default-src 'none'");
     expect(page.headers['content-security-policy']).toContain("frame-ancestors 'none'");
     expect((await svc.app.inject('/v1/models')).headers['content-security-policy']).toBeUndefined();

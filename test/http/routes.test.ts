@@ -227,8 +227,9 @@ describe('OpenAPI and docs', () => {
     expect(res.json()).toEqual(committed);
   });
 
-  it('GET /docs is a self-contained page listing every route', async () => {
-    const res = await svc.app.inject('/docs');
+  it('GET /api.html is a self-contained page listing every route; the old /docs path is not served', async () => {
+    expect((await svc.app.inject('/docs')).statusCode).toBe(404);
+    const res = await svc.app.inject('/api.html');
     expect(res.statusCode).toBe(200);
     expect(res.headers['content-type']).toMatch(/^text\/html/);
     for (const route of ['/v1/models/{name}/score', '/v1/models/{name}/score-batch', '/v1/requests', '/readyz']) expect(res.body).toContain(route);

@@ -68,7 +68,7 @@ export async function demoAction(ctx: DemoContext, io: CliIo): Promise<DemoResul
   say();
   say(`The report, with its charts: ${url}`);
   say(`What the stuck sensor looked like to the model: ${server.url}/v1/requests?in_domain=false&limit=3`);
-  say(`The API: ${server.url}/docs`);
+  say(`The API: ${server.url}/api.html`);
   if (ctx.exit) {
     await close();
   } else if (ctx.signals) {

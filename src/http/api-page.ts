@@ -25,7 +25,7 @@ function anchor(method: string, path: string): string {
   return `${method}-${path}`.replace(/[^A-Za-z0-9]+/g, '-');
 }
 
-export function renderDocsPage(doc: OpenApiDoc): string {
+export function renderApiPage(doc: OpenApiDoc): string {
   const ops = Object.entries(doc.paths).flatMap(([path, methods]) => Object.entries(methods).map(([method, op]) => ({ path, method: method.toUpperCase(), op })));
   const toc = ops.map(({ path, method, op }) => `<li><a href="#${anchor(method, path)}"><code>${method} ${escape(path)}</code></a> ${escape(op.summary ?? '')}</li>`).join('\n');
   const sections = ops

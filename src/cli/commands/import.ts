@@ -4,13 +4,13 @@ import { DOMAIN_DEFAULTS, OPTIONAL_DETECTORS } from '../../bundle/domain-fit.js'
 const SINGLE_NETWORK_DETECTORS = OPTIONAL_DETECTORS.filter((d) => d !== 'disagreement');
 import { buildTime } from '../../config.js';
 import { DEFAULT_TRAIN_OPTIONS } from '../../core/train.js';
-import { type BundleContext, bundleAction } from '../actions/bundle.js';
+import { type ImportContext, importAction } from '../actions/import.js';
 import { processIo } from '../io.js';
 import { integerIn, list, listOf, numberIn } from '../options.js';
 
-export function registerBundle(program: Command): void {
+export function registerImport(program: Command): void {
   program
-    .command('bundle')
+    .command('import')
     .description('seal a network trained elsewhere (ONNX) into a verified bundle, with the reference and domain detectors of its training data')
     .requiredOption('--onnx <file.onnx>', 'the exported network: a dense feed-forward classifier (docs/models.md lists the ops)')
     .requiredOption('--data <file.csv>', 'the data it was trained on, RFC 4180 CSV with a header row')
@@ -30,7 +30,7 @@ export function registerBundle(program: Command): void {
     .requiredOption('--name <name>', 'model name, [a-z0-9][a-z0-9._-]{0,63}')
     .option('--version <v>', 'model version, [A-Za-z0-9._-]{1,64}', '1')
     .requiredOption('--out <file.bundle.json>', 'where to write the bundle')
-    .action(async (flags: Omit<BundleContext, 'createdAt'>) => {
-      await bundleAction({ ...flags, createdAt: buildTime() }, processIo());
+    .action(async (flags: Omit<ImportContext, 'createdAt'>) => {
+      await importAction({ ...flags, createdAt: buildTime() }, processIo());
     });
 }

@@ -10,7 +10,7 @@ import { indexLabels, readLabelledCsv } from '../../io/feature-table.js';
 import { type CliIo, UsageError } from '../io.js';
 import { checkNameAndVersion, readTable, writeVerifiedBundle } from './bundle-common.js';
 
-export interface BundleContext {
+export interface ImportContext {
   onnx: string;
   data: string;
   label: string;
@@ -50,10 +50,10 @@ async function readPreprocess(path: string): Promise<Standardizer> {
 }
 
 /**
- * `plumbline bundle`: a network trained elsewhere, exported as ONNX, sealed into a bundle with
+ * `plumbline import --onnx`: a network trained elsewhere, exported as ONNX, sealed into a bundle with
  * the reference statistics and domain detectors of the data it was trained on.
  */
-export async function bundleAction(ctx: BundleContext, io: CliIo): Promise<{ bundle: BundleFile; graph: ImportedGraph }> {
+export async function importAction(ctx: ImportContext, io: CliIo): Promise<{ bundle: BundleFile; graph: ImportedGraph }> {
   checkNameAndVersion(ctx.name, ctx.version);
   const preprocess = ctx.preprocess === undefined ? undefined : await readPreprocess(ctx.preprocess);
   const graph = await readOnnx(ctx.onnx, preprocess);
