@@ -3,10 +3,12 @@ import { FAULT_HOUR_P, faultHourP } from './findings.js';
 
 // A self-contained page: inline CSS and SVG, no script, no font or image from anywhere.
 
+// Every string put into the page goes through esc, the formatted numbers included: a p-value
+// written "< 1e-15" is text, and a raw "<" in text is an HTML parse error.
 const esc = (s: string): string => s.replace(/[&<>"']/g, (c) => `&#${c.charCodeAt(0)};`);
-const pct = (v: number | null): string => (v === null ? '–' : `${(v * 100).toFixed(v < 0.1 ? 2 : 1)}%`);
-const fixed = (v: number | null, digits = 3): string => (v === null ? '–' : v.toFixed(digits));
-const pValue = (p: number | null): string => (p === null ? '–' : p < 1e-15 ? '< 1e-15' : p < 0.001 ? p.toExponential(1) : p.toFixed(3));
+const pct = (v: number | null): string => esc(v === null ? '–' : `${(v * 100).toFixed(v < 0.1 ? 2 : 1)}%`);
+const fixed = (v: number | null, digits = 3): string => esc(v === null ? '–' : v.toFixed(digits));
+const pValue = (p: number | null): string => esc(p === null ? '–' : p < 1e-15 ? '< 1e-15' : p < 0.001 ? p.toExponential(1) : p.toFixed(3));
 
 const COLOURS = { ink: '#1f2a2e', paper: '#fbfaf6', rule: '#d8d2c4', reference: '#8c9aa3', window: '#2f5d62', stable: '#3f7d4e', watch: '#b7791f', shifted: '#a23b2a', grey: '#7a7a7a' };
 const bandColour = (band: string | null): string => (band === 'shifted' ? COLOURS.shifted : band === 'watch' ? COLOURS.watch : band === 'stable' ? COLOURS.stable : COLOURS.grey);
@@ -54,7 +56,7 @@ function psiChart(features: FeatureDrift[]): string {
     .map((f, i) => {
       const y0 = 8 + i * row;
       const v = f.psi ?? 0;
-      return `<text x="${left - 8}" y="${y0 + 14}" font-size="11" text-anchor="end">${esc(f.name)}</text><rect x="${left}" y="${y0 + 3}" width="${Math.max(1, x(v) - left).toFixed(1)}" height="${row - 8}" fill="${bandColour(f.band)}"/><text x="${(x(v) + 4).toFixed(1)}" y="${y0 + 14}" font-size="10">${fixed(f.psi, 3)}</text>`;
+      return `<text x="${left - 8}" y="${y0 + 14}" font-size="11" text-anchor="end">${esc(f.name)}</text><rect x="${left}" y="${y0 + 3}" width="${Math.max(1, x(v) - left).toFixed(1)}" height="${row - 8}" fill="${COLOURS.window}"/><text x="${(x(v) + 4).toFixed(1)}" y="${y0 + 14}" font-size="10">${fixed(f.psi, 3)}</text>`;
     })
     .join('');
   const guide = (v: number, label: string): string =>
@@ -74,7 +76,7 @@ function histogram(f: FeatureDrift): string {
     .map((ref, i) => {
       const win = f.bins.window[i] ?? 0;
       const x0 = 5 + i * bw;
-      return `<rect x="${(x0 + 1).toFixed(1)}" y="${y(ref).toFixed(1)}" width="${(bw / 2 - 1).toFixed(1)}" height="${(h - 18 - y(ref)).toFixed(1)}" fill="${COLOURS.reference}"/><rect x="${(x0 + bw / 2).toFixed(1)}" y="${y(win).toFixed(1)}" width="${(bw / 2 - 1).toFixed(1)}" height="${(h - 18 - y(win)).toFixed(1)}" fill="${bandColour(f.band)}"/>`;
+      return `<rect x="${(x0 + 1).toFixed(1)}" y="${y(ref).toFixed(1)}" width="${(bw / 2 - 1).toFixed(1)}" height="${(h - 18 - y(ref)).toFixed(1)}" fill="${COLOURS.reference}"/><rect x="${(x0 + bw / 2).toFixed(1)}" y="${y(win).toFixed(1)}" width="${(bw / 2 - 1).toFixed(1)}" height="${(h - 18 - y(win)).toFixed(1)}" fill="${COLOURS.window}"/>`;
     })
     .join('');
   const first = f.bins.edges[0];
@@ -146,7 +148,7 @@ ${hourlyChart(r)}
 <h2>Population stability index per feature</h2>
 ${psiChart(r.features)}
 <h2>Each feature: training against window</h2>
-<p class="key">Shares per training decile bin: <span style="background:${COLOURS.reference}"></span>training <span style="background:${COLOURS.window}"></span>window (coloured by PSI band)</p>
+<p class="key">Shares per training decile bin: <span style="background:${COLOURS.reference}"></span>training <span style="background:${COLOURS.window}"></span>window; the PSI band is in each caption and in the table</p>
 <div class="grid">${histograms}</div>
 <table><thead><tr><th>feature</th><th>unit</th><th class="n">mean</th><th class="n">training mean</th><th class="n">PSI</th><th class="n">KS D</th><th class="n">adjusted p</th><th class="n">W1 (SD)</th><th class="n">outside</th></tr></thead><tbody>${featureRows}</tbody></table>
 <h2>Predicted classes</h2>
