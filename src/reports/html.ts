@@ -156,7 +156,7 @@ ${psiChart(r.features)}
 ${classChart(r)}
 <h2>Margin</h2>
 <p>Mean margin (top-1 minus top-2 probability) ${fixed(r.margin.mean)} against ${fixed(r.margin.reference_mean)} on the validation split; KS D ${fixed(r.margin.ks.d)}, p ${pValue(r.margin.ks.p_value)}.</p>
-<footer>PSI: population stability index on the training decile bins (bands, common practice: below 0.1 stable, 0.1–0.25 watch, 0.25 and above shifted). KS: two-sample Kolmogorov-Smirnov against the bundle's reference sample, p-values adjusted across features by Benjamini-Hochberg. W1: Wasserstein-1 distance in training standard deviations. Out-of-domain rate against the false-alarm rate measured when the flag was calibrated, Wilson interval and exact one-sided binomial test.${r.sample.reservoir ? ` KS and W1 use a seeded uniform sample of ${r.sample.cap} rows.` : ''} This report is decision support, not a safety function.</footer>
+<footer>PSI: population stability index on the training decile bins (bands, common practice: below 0.1 stable, 0.1–0.25 watch, 0.25 and above shifted). KS: two-sample Kolmogorov-Smirnov against the bundle's reference sample, p-values adjusted across features by Benjamini-Hochberg. W1: Wasserstein-1 distance in training standard deviations. Out-of-domain rate with its Wilson interval, tested (exact one-sided binomial) against the upper end of the 95% Clopper-Pearson interval of the false-alarm rate measured when the flag was calibrated.${r.sample.reservoir ? ` KS and W1 use a seeded uniform sample of ${r.sample.cap} rows.` : ''} This report is decision support, not a safety function.</footer>
 </body></html>
 `;
 }
