@@ -1,4 +1,9 @@
-/** A cursor the client cannot read or forge: `${tag}.${seq}` in base64url, checked on the way back. */
+/**
+ * A paging position, not a secret: `${tag}.${seq}` in base64url. A client can read it and could
+ * write another one, which only moves where its own query resumes (the filters still apply, and
+ * every row it reaches it could page to anyway); the tag and the round trip refuse what this
+ * service would not have written, so a mangled cursor is a 400, never a silent restart.
+ */
 export class CursorError extends Error {
   constructor() {
     super('is not a cursor this service gave out');
