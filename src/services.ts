@@ -1,9 +1,9 @@
 import type { Logger } from 'pino';
 import type { ModelRegistry } from './bundle/registry.js';
-import type { Config } from './config.js';
+import type { Config } from './config/config.js';
 import type { Services } from './http/plugins/services.js';
 import { createMetrics } from './metrics.js';
-import type { DriftReport } from './reports/report-types.js';
+import type { DriftReport } from './contracts/drift-report.js';
 import { createReportService } from './reports/service.js';
 import { createScoringService } from './scoring/service.js';
 import type { Store } from './store/store.js';

@@ -1,5 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { CONFIG_KEYS, ConfigError, buildTime, loadConfig } from '../src/config.js';
+import { CONFIG_KEYS, ConfigError, buildTime, loadConfig } from '../src/config/config.js';
 import { tempDir } from './helpers/datasets.js';
 
 const tmp = tempDir();

@@ -3,7 +3,7 @@ import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { promisify } from 'node:util';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { configSchema } from '../src/config.js';
+import { configSchema } from '../src/config/config.js';
 import { type RunningServer, startServer } from '../src/http/server.js';
 import { tempDir } from './helpers/datasets.js';
 

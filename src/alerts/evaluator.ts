@@ -4,8 +4,8 @@ import type { ModelRegistry } from '../bundle/registry.js';
 import { uuidv7 } from '../ids.js';
 import type { AlertsStore, NewDelivery } from '../store/alerts-store.js';
 import { type AlertEventType, type AlertFacts, alertEvent, describeAlert } from './cloudevents.js';
-import { formatDuration } from './durations.js';
-import type { AlertRule } from './rules.js';
+import { formatDuration } from '../config/durations.js';
+import type { AlertRule } from '../config/alert-rules.js';
 import { computeSignal } from './signals.js';
 
 export type AlertPhase = 'quiet' | 'holding' | 'raised';

@@ -1,4 +1,4 @@
-import { ConfigError } from '../config.js';
+import { ConfigError } from '../config/config.js';
 import type { Logger } from 'pino';
 import type { AlertsStore, OutboxRow } from '../store/alerts-store.js';
 import { secretKey, signDelivery } from './signing.js';

@@ -1,6 +1,6 @@
 import type { Logger } from 'pino';
 import type { ModelRegistry } from '../bundle/registry.js';
-import type { Config } from '../config.js';
+import type { Config } from '../config/config.js';
 import type { Metrics } from '../metrics.js';
 import type { Store } from '../store/store.js';
 import { type Evaluator, createEvaluator } from './evaluator.js';

@@ -1,5 +1,5 @@
 import type { AlertsStore } from '../store/alerts-store.js';
-import type { AlertRule } from './rules.js';
+import type { AlertRule } from '../config/alert-rules.js';
 
 export interface SignalValue {
   value: number;

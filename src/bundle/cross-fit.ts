@@ -3,7 +3,7 @@ import { createRng, deriveSeed } from '../core/rng.js';
 import { rowsOfFold, stratifiedFolds, stratifiedSplit, take, takeRows } from '../core/split.js';
 import { type Standardizer, fitStandardizer, standardize } from '../core/standardize.js';
 import { type EpochReport, type TrainOptions, type TrainResult, classWeightsFor, trainClassifier } from '../core/train.js';
-import type { LabelledTable } from './train-bundle.js';
+import type { LabelledTable } from './labelled-table.js';
 
 export interface CrossFitOptions extends TrainOptions {
   /** K: 1 trains one network beside a hold-out; 2 or more trains one network per fold. */

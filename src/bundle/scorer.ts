@@ -6,31 +6,7 @@ import { createFastForwardPass } from '../core/wasm-dense.js';
 import { topTwo } from '../core/softmax.js';
 import { standardizeInto } from '../core/standardize.js';
 import type { LoadedBundle } from './verify.js';
-
-export interface DomainCheck {
-  detector: string;
-  value: number;
-  threshold: number;
-  passed: boolean;
-}
-
-export interface OutsideFeature {
-  feature: string;
-  value: number;
-  low: number;
-  high: number;
-  unit: string;
-}
-
-export interface ScoreResponse {
-  request_id: string;
-  model: { name: string; version: string; sha256: string };
-  label: string;
-  probabilities: Record<string, number>;
-  margin: number;
-  review: boolean;
-  domain: { in_domain: boolean; checks: DomainCheck[]; outside: OutsideFeature[] };
-}
+import type { DomainCheck, ModelRef, ScoreOutcome } from '../contracts/score.js';
 
 /** The network or a detector gave a non-finite value for a row: its values are too extreme to score. */
 export class ScoreOverflowError extends Error {
@@ -39,9 +15,6 @@ export class ScoreOverflowError extends Error {
     this.name = 'ScoreOverflowError';
   }
 }
-
-/** What one scored row comes to, before it is given a request id. */
-export type ScoreOutcome = Omit<ScoreResponse, 'request_id' | 'model'>;
 
 export interface Scorer {
   readonly bundle: LoadedBundle;
@@ -138,6 +111,6 @@ export function createScorer(bundle: LoadedBundle): Scorer {
   };
 }
 
-export function modelRef(bundle: LoadedBundle): ScoreResponse['model'] {
+export function modelRef(bundle: LoadedBundle): ModelRef {
   return { name: bundle.file.name, version: bundle.file.version, sha256: bundle.file.sha256 };
 }

@@ -12,18 +12,10 @@ import { encodeNetwork } from './network-codec.js';
 import { fitReference } from './reference.js';
 import { BUNDLE_FORMAT, type BundleFile, type FeatureInfo } from './schema.js';
 import { sealBundle } from './verify.js';
+import type { LabelledTable } from './labelled-table.js';
 
 export { DOMAIN_DEFAULTS } from './domain-fit.js';
-
-export interface LabelledTable {
-  features: FeatureInfo[];
-  /** rows x features, row-major, in the units of the features. */
-  x: Float64Array;
-  rows: number;
-  /** Class index of each row into `classes`. */
-  labels: Int32Array;
-  classes: string[];
-}
+export type { LabelledTable } from './labelled-table.js';
 
 export interface BundleOptions extends TrainOptions {
   name: string;

@@ -4,7 +4,7 @@ import { ExposureError } from '../auth/exposure.js';
 import { OnnxError } from '../io/onnx/index.js';
 import { RegistryError } from '../bundle/registry.js';
 import { BundleError } from '../bundle/verify.js';
-import { ConfigError } from '../config.js';
+import { ConfigError } from '../config/config.js';
 import { MigrationError } from '../store/migrate.js';
 import { StoreIntegrityError } from '../store/store.js';
 import { DataFileError } from '../io/csv.js';

@@ -1,5 +1,5 @@
 import type { ModelRegistry } from '../bundle/registry.js';
-import { configSchema } from '../config.js';
+import { configSchema } from '../config/config.js';
 import { createServices } from '../services.js';
 import { openStore } from '../store/store.js';
 import { VERSION } from '../version.js';

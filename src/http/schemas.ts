@@ -1,6 +1,11 @@
 import { z } from 'zod';
-import type { Config } from '../config.js';
+import type { Config } from '../config/config.js';
 import { MAX_FEATURE_MAGNITUDE } from '../core/network.js';
+import { modelRefSchema, scoreResponseSchema } from '../contracts/score.js';
+
+export { modelRefSchema, scoreResponseSchema };
+export { requestPageSchema } from '../contracts/logged-request.js';
+export { driftReportSchema } from '../contracts/drift-report.js';
 
 // Request and response schemas, declared once: routes validate with them and the OpenAPI
 // document is generated from them.
@@ -82,39 +87,6 @@ export function scoringSchemas(limits: Config['limits']) {
   return { item, batch };
 }
 
-const domainCheck = z.object({
-  detector: z.string(),
-  value: z.number(),
-  threshold: z.number(),
-  passed: z.boolean().describe('value <= threshold'),
-});
-
-const outsideFeature = z.object({
-  feature: z.string(),
-  value: z.number(),
-  low: z.number(),
-  high: z.number(),
-  unit: z.string(),
-});
-
-export const modelRefSchema = z.object({ name: z.string(), version: z.string(), sha256: z.string() });
-
-export const scoreResponseSchema = z
-  .object({
-    request_id: z.string().describe('UUID v7 of this answer in the audit log'),
-    model: modelRefSchema,
-    label: z.string().describe('the class with the largest probability'),
-    probabilities: z.record(z.string(), z.number()).describe('softmax(logits / temperature) per class; they sum to 1'),
-    margin: z.number().describe('largest minus second-largest probability'),
-    review: z.boolean().describe('out of domain, or margin below the bundle review margin'),
-    domain: z.object({
-      in_domain: z.boolean(),
-      checks: z.array(domainCheck),
-      outside: z.array(outsideFeature).describe('features outside the training envelope, in their units'),
-    }),
-  })
-  .meta({ id: 'ScoreResponse' });
-
 export const scoreBatchResponseSchema = z
   .object({
     batch_id: z.string().describe('id of this call; the audit log stores it with every item (GET /v1/requests shows it as batch_id)'),
@@ -189,85 +161,12 @@ export const requestsQuerySchema = z.strictObject({
   cursor: z.string().optional().describe('next_cursor of the previous page'),
 });
 
-export const loggedRequestSchema = z
-  .object({
-    request_id: z.string(),
-    batch_id: z.string().nullable(),
-    received_at: z.string(),
-    model: modelRefSchema,
-    features: z.record(z.string(), z.number()),
-    tags: z.record(z.string(), z.string()),
-    label: z.string(),
-    probabilities: z.record(z.string(), z.number()),
-    margin: z.number(),
-    review: z.boolean(),
-    in_domain: z.boolean(),
-    domain: z.object({ checks: z.array(domainCheck), outside: z.array(outsideFeature) }),
-    latency_ms: z.number().describe('from receipt to the answer being ready, before the commit'),
-    key_label: z.string().nullable().describe('label of the API key the request came with; null when keys were not in use'),
-  })
-  .meta({ id: 'LoggedRequest' });
-
-export const requestPageSchema = z.object({ items: z.array(loggedRequestSchema), next_cursor: z.string().nullable() });
-
 export const healthSchema = z.object({ status: z.literal('ok') });
 export const readySchema = z.object({
   status: z.enum(['ready', 'not ready']),
   models: z.number().int(),
   database: z.enum(['writable', 'not writable']),
 });
-
-const nullableNumber = z.number().nullable();
-const band = z.enum(['stable', 'watch', 'shifted']);
-
-export const driftReportSchema = z
-  .object({
-    id: z.string().describe('UUID v7'),
-    model: modelRefSchema,
-    window: z.object({ from: z.string(), to: z.string() }).describe('[from, to), UTC'),
-    created_at: z.string(),
-    verdict: z.enum(['stable', 'watch', 'shifted', 'insufficient data']).describe('the worst of the findings'),
-    counts: z.object({ scored: z.number(), rejected: z.number(), out_of_domain: z.number(), other_versions: z.number().describe('rows of other bundles of this model, not analysed') }),
-    out_of_domain: z
-      .object({
-        rate: nullableNumber,
-        ci_low: nullableNumber,
-        ci_high: nullableNumber,
-        expected_rate: z.number().describe('false-alarm rate of the bundle on its calibration rows'),
-        expected_ci_low: z.number().optional().describe('Clopper-Pearson 95% interval of expected_rate'),
-        expected_ci_high: z.number().optional(),
-        expected_rows: z.number().optional().describe('calibration rows expected_rate rests on'),
-        p_value: nullableNumber.describe('exact binomial test of the out-of-domain count against expected_ci_high'),
-      })
-      .describe('share of answers out of domain, 95% Wilson interval, the false-alarm rate measured at calibration, exact one-sided binomial p'),
-    features: z.array(
-      z.object({
-        name: z.string(),
-        unit: z.string(),
-        n: z.number(),
-        mean: nullableNumber,
-        reference_mean: z.number(),
-        psi: nullableNumber.describe('population stability index on the training decile bins'),
-        band: band.nullable().describe('PSI band: < 0.1 stable, 0.1-0.25 watch, >= 0.25 shifted (common practice)'),
-        ks: z.object({ d: nullableNumber, p_value: nullableNumber, method: z.enum(['exact', 'asymptotic']).nullable() }).describe('two-sample Kolmogorov-Smirnov against the reference sample'),
-        p_adjusted: nullableNumber.describe('Benjamini-Hochberg adjusted KS p-value across features'),
-        wasserstein: nullableNumber.describe('Wasserstein-1 distance in training standard deviations'),
-        outside_count: z.number().describe('rows with this feature outside its envelope'),
-        bins: z.object({ edges: z.array(z.number()), reference: z.array(z.number()), window: z.array(z.number()) }),
-      }),
-    ),
-    predictions: z.object({
-      fractions: z.record(z.string(), z.number()),
-      reference_fractions: z.record(z.string(), z.number()).describe('predicted-class shares on the validation split'),
-      chi_square: z.object({ statistic: nullableNumber, df: z.number(), p_value: nullableNumber }),
-      js_distance: nullableNumber.describe('Jensen-Shannon distance, base 2'),
-    }),
-    margin: z.object({ mean: nullableNumber, reference_mean: z.number(), ks: z.object({ d: nullableNumber, p_value: nullableNumber }), review_rate: nullableNumber }),
-    hourly: z.array(z.object({ hour: z.string(), scored: z.number(), out_of_domain: z.number() })),
-    sample: z.object({ rows: z.number(), cap: z.number(), reservoir: z.boolean(), seed: z.number() }),
-    findings: z.array(z.string()).describe('plain sentences, worst first'),
-  })
-  .meta({ id: 'DriftReport' });
 
 export const reportSummarySchema = z.object({
   id: z.string(),

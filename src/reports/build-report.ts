@@ -7,17 +7,8 @@ import type { LoadedBundle } from '../bundle/verify.js';
 import { falseAlarmBaseline } from '../bundle/baseline.js';
 import type { DriftStore } from '../store/drift-store.js';
 import { writeFindings } from './findings.js';
-import type { DriftReport, FeatureDrift } from './report-types.js';
-
-export interface ReportOptions {
-  /** Below this many scored rows the report gives counts, not tests. */
-  minRows: number;
-  /** Rows kept (a seeded uniform reservoir above it) for the KS and Wasserstein comparisons. */
-  sampleCap: number;
-  seed: number;
-}
-
-export const REPORT_DEFAULTS: ReportOptions = { minRows: 30, sampleCap: 10_000, seed: 1 };
+import { REPORT_DEFAULTS, type ReportOptions } from './options.js';
+import type { DriftReport, FeatureDrift } from '../contracts/drift-report.js';
 
 const HOUR = 3_600_000;
 

@@ -1,6 +1,6 @@
 import { binomialUpperTail } from '../core/stats/proportion.js';
-import type { ReportOptions } from './build-report.js';
-import type { DriftReport } from './report-types.js';
+import type { ReportOptions } from './options.js';
+import type { DriftReport } from '../contracts/drift-report.js';
 
 type Verdict = DriftReport['verdict'];
 

@@ -1,4 +1,4 @@
-import type { DriftReport, FeatureDrift } from './report-types.js';
+import type { DriftReport, FeatureDrift } from '../contracts/drift-report.js';
 import { FAULT_HOUR_P, faultHourP } from './findings.js';
 
 // A self-contained page: inline CSS and SVG, no script, no font or image from anywhere.

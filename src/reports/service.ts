@@ -3,8 +3,9 @@ import { startModuleWorker } from '../worker-boot.js';
 import { parseBundle } from '../bundle/verify.js';
 import { uuidv7 } from '../ids.js';
 import type { Store } from '../store/store.js';
-import { type ReportOptions, buildDriftReport } from './build-report.js';
-import type { DriftReport } from './report-types.js';
+import { buildDriftReport } from './build-report.js';
+import type { ReportOptions } from './options.js';
+import type { DriftReport } from '../contracts/drift-report.js';
 import type { WorkerJob } from './worker.js';
 
 export type ReportTrigger = 'nightly' | 'request' | 'cli' | 'demo';

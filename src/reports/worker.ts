@@ -5,7 +5,8 @@ import { parentPort, workerData } from 'node:worker_threads';
 import BetterSqlite3 from 'better-sqlite3';
 import { parseBundle } from '../bundle/verify.js';
 import { createDriftStore } from '../store/drift-store.js';
-import { type ReportOptions, buildDriftReport } from './build-report.js';
+import { buildDriftReport } from './build-report.js';
+import type { ReportOptions } from './options.js';
 
 export interface WorkerJob {
   dbFile: string;

@@ -1,5 +1,6 @@
 import type { ModelEntry, ModelRegistry } from '../bundle/registry.js';
-import { type ScoreOutcome, type ScoreResponse, ScoreOverflowError, modelRef } from '../bundle/scorer.js';
+import { ScoreOverflowError, modelRef } from '../bundle/scorer.js';
+import type { ScoreOutcome, ScoreResponse } from '../contracts/score.js';
 import { type FieldError, ProblemError, pointer } from '../errors.js';
 import { uuidv7 } from '../ids.js';
 import { LogBackpressureError, LogClosedError, LogWriteError, type RequestLog, type ScoredRow } from '../store/request-log.js';

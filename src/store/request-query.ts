@@ -1,5 +1,6 @@
 import type { Database } from 'better-sqlite3';
-import type { DomainCheck, OutsideFeature } from '../bundle/scorer.js';
+import type { DomainCheck, OutsideFeature } from '../contracts/score.js';
+import type { LoggedRequest, RequestPage } from '../contracts/logged-request.js';
 import { cursorCodec } from '../cursor.js';
 import { fromFloat64Blob } from './float64-blob.js';
 import { createModelCache } from './models-table.js';
@@ -15,29 +16,6 @@ export interface RequestFilter {
   label?: string;
   /** Every pair must be among the row's tags. */
   tags?: Array<[string, string]>;
-}
-
-export interface LoggedRequest {
-  request_id: string;
-  batch_id: string | null;
-  received_at: string;
-  model: { name: string; version: string; sha256: string };
-  features: Record<string, number>;
-  tags: Record<string, string>;
-  label: string;
-  probabilities: Record<string, number>;
-  margin: number;
-  review: boolean;
-  in_domain: boolean;
-  domain: { checks: DomainCheck[]; outside: OutsideFeature[] };
-  latency_ms: number;
-  /** Label of the API key the request came with; null when keys were not in use. */
-  key_label: string | null;
-}
-
-export interface RequestPage {
-  items: LoggedRequest[];
-  next_cursor: string | null;
 }
 
 /** A stored row of scored_requests, as read back: the columns the chain seals. */

@@ -10,7 +10,8 @@ import { type Checkpointer, startCheckpointer } from './checkpointer.js';
 import { type DriftStore, createDriftStore } from './drift-store.js';
 import { type ModelRecord, recordModel } from './models-table.js';
 import { type RequestLog, type WriterOptions, createRequestLog } from './request-log.js';
-import { type RequestFilter, type RequestPage, createRequestQuery } from './request-query.js';
+import type { RequestPage } from '../contracts/logged-request.js';
+import { type RequestFilter, createRequestQuery } from './request-query.js';
 
 /** Everything the rest of the service may ask of the database; SQL stays behind this. */
 export interface Store {

@@ -1,6 +1,6 @@
 import { describe, expect, it } from 'vitest';
-import { parseDuration } from '../../src/alerts/durations.js';
-import { ConfigError, configSchema, loadConfig } from '../../src/config.js';
+import { parseDuration } from '../../src/config/durations.js';
+import { ConfigError, configSchema, loadConfig } from '../../src/config/config.js';
 import { startServer } from '../../src/http/server.js';
 import { DEMO_DIR } from '../helpers/demo.js';
 import { tempDir } from '../helpers/datasets.js';

@@ -1,6 +1,6 @@
 import { join } from 'node:path';
 import { afterAll, afterEach, beforeEach, describe, expect, it } from 'vitest';
-import { configSchema } from '../../src/config.js';
+import { configSchema } from '../../src/config/config.js';
 import { type RunningServer, startServer } from '../../src/http/server.js';
 import { uuidv7 } from '../../src/ids.js';
 import { tempDir } from '../helpers/datasets.js';

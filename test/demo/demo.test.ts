@@ -2,7 +2,7 @@ import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { scoreAction } from '../../src/cli/actions/score.js';
-import type { ScoreResponse } from '../../src/bundle/scorer.js';
+import type { ScoreResponse } from '../../src/contracts/score.js';
 import { readBundle } from '../../src/bundle/verify.js';
 import { DEMO_FILES, buildDemo } from '../../demo-data/build.js';
 import { tempDir } from '../helpers/datasets.js';

@@ -6,7 +6,7 @@ import type { Logger } from 'pino';
 import { type ModelRegistry, createModelRegistry } from '../../src/bundle/registry.js';
 import type { AnyBundleFile, BundleFile } from '../../src/bundle/schema.js';
 import { writeBundle } from '../../src/bundle/write.js';
-import { type Config, configSchema } from '../../src/config.js';
+import { type Config, configSchema } from '../../src/config/config.js';
 import { buildApp } from '../../src/http/app.js';
 import { modelRecord } from '../../src/http/server.js';
 import { createServices } from '../../src/services.js';

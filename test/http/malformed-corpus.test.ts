@@ -2,7 +2,7 @@ import { once } from 'node:events';
 import { connect } from 'node:net';
 import { fileURLToPath } from 'node:url';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { configSchema } from '../../src/config.js';
+import { configSchema } from '../../src/config/config.js';
 import { type RunningServer, startServer } from '../../src/http/server.js';
 import { MALFORMED } from '../fixtures/malformed-corpus.js';
 import { tempDir } from '../helpers/datasets.js';

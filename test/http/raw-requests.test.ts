@@ -2,7 +2,7 @@ import { once } from 'node:events';
 import { connect } from 'node:net';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { configSchema } from '../../src/config.js';
+import { configSchema } from '../../src/config/config.js';
 import { type RunningServer, startServer } from '../../src/http/server.js';
 import { tempDir } from '../helpers/datasets.js';
 

@@ -4,7 +4,7 @@ import { get } from 'node:https';
 import { fileURLToPath } from 'node:url';
 import { afterAll, describe, expect, it } from 'vitest';
 import { ExposureError, checkExposure, isLoopback } from '../../src/auth/exposure.js';
-import { ConfigError, configSchema } from '../../src/config.js';
+import { ConfigError, configSchema } from '../../src/config/config.js';
 import { startServer } from '../../src/http/server.js';
 import { tempDir } from '../helpers/datasets.js';
 import { capturedLogger } from '../helpers/sink.js';

@@ -1,7 +1,8 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { REPORT_DEFAULTS, buildDriftReport } from '../../src/reports/build-report.js';
+import { buildDriftReport } from '../../src/reports/build-report.js';
+import { REPORT_DEFAULTS } from '../../src/reports/options.js';
 import { writeFindings } from '../../src/reports/findings.js';
-import type { DriftReport } from '../../src/reports/report-types.js';
+import type { DriftReport } from '../../src/contracts/drift-report.js';
 import { DAY_END, DAY_START, demoDayService } from '../helpers/demo.js';
 import type { TestService } from '../helpers/service.js';
 

@@ -2,7 +2,7 @@ import { parse } from 'parse5';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { buildDriftReport } from '../../src/reports/build-report.js';
 import { renderReportHtml } from '../../src/reports/html.js';
-import type { DriftReport } from '../../src/reports/report-types.js';
+import type { DriftReport } from '../../src/contracts/drift-report.js';
 import { DAY_END, DAY_START, demoDayService } from '../helpers/demo.js';
 import type { TestService } from '../helpers/service.js';
 

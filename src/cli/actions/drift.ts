@@ -1,8 +1,8 @@
 import { existsSync, rmSync } from 'node:fs';
 import { type FileHandle, open } from 'node:fs/promises';
 import { renderReportHtml } from '../../reports/html.js';
-import type { DriftReport } from '../../reports/report-types.js';
-import { REPORT_DEFAULTS } from '../../reports/build-report.js';
+import type { DriftReport } from '../../contracts/drift-report.js';
+import { REPORT_DEFAULTS } from '../../reports/options.js';
 import { ReportError, createReportService } from '../../reports/service.js';
 import { openStore } from '../../store/store.js';
 import { type CliIo, UsageError, fileProblem } from '../io.js';

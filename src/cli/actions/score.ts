@@ -1,7 +1,8 @@
 import { open } from 'node:fs/promises';
 import { once } from 'node:events';
 import type { Writable } from 'node:stream';
-import { type ScoreOutcome, ScoreOverflowError, createScorer, modelRef } from '../../bundle/scorer.js';
+import { ScoreOverflowError, createScorer, modelRef } from '../../bundle/scorer.js';
+import type { ScoreOutcome } from '../../contracts/score.js';
 import { readBundle } from '../../bundle/verify.js';
 import { uuidv7 } from '../../ids.js';
 import { DataFileError, openCsv } from '../../io/csv.js';

@@ -1,6 +1,6 @@
 import { existsSync } from 'node:fs';
 import type { Command } from 'commander';
-import { REPORT_DEFAULTS } from '../../reports/build-report.js';
+import { REPORT_DEFAULTS } from '../../reports/options.js';
 import { driftAction } from '../actions/drift.js';
 import { UsageError, processIo } from '../io.js';
 import { integerIn, isoTime } from '../options.js';

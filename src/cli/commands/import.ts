@@ -2,7 +2,7 @@ import type { Command } from 'commander';
 import { DOMAIN_DEFAULTS, OPTIONAL_DETECTORS } from '../../bundle/domain-fit.js';
 
 const SINGLE_NETWORK_DETECTORS = OPTIONAL_DETECTORS.filter((d) => d !== 'disagreement');
-import { buildTime } from '../../config.js';
+import { buildTime } from '../../config/config.js';
 import { DEFAULT_TRAIN_OPTIONS } from '../../core/train.js';
 import { type ImportContext, importAction } from '../actions/import.js';
 import { processIo } from '../io.js';

@@ -1,5 +1,5 @@
 import type { Command } from 'commander';
-import { loadConfig, processEnv } from '../../config.js';
+import { loadConfig, processEnv } from '../../config/config.js';
 import { startServer } from '../../http/server.js';
 import { asListenError } from '../listen-error.js';
 import { integerIn, oneOf } from '../options.js';

@@ -2,7 +2,7 @@ import type { Command } from 'commander';
 import { ACTIVATIONS } from '../../core/activations.js';
 import { DEFAULT_TRAIN_OPTIONS } from '../../core/train.js';
 import { DOMAIN_DEFAULTS, OPTIONAL_DETECTORS } from '../../bundle/domain-fit.js';
-import { buildTime } from '../../config.js';
+import { buildTime } from '../../config/config.js';
 import { type TrainContext, trainAction } from '../actions/train.js';
 import { processIo } from '../io.js';
 import { integerIn, integerList, list, listOf, numberIn, oneOf } from '../options.js';

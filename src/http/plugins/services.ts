@@ -1,7 +1,7 @@
 import type { FastifyInstance } from 'fastify';
 import fp from 'fastify-plugin';
 import type { ModelRegistry } from '../../bundle/registry.js';
-import type { Config } from '../../config.js';
+import type { Config } from '../../config/config.js';
 import type { Metrics } from '../../metrics.js';
 import type { ReportService } from '../../reports/service.js';
 import type { ScoringService } from '../../scoring/service.js';

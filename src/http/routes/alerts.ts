@@ -1,6 +1,6 @@
 import type { FastifyPluginAsyncZod } from 'fastify-type-provider-zod';
 import { z } from 'zod';
-import { formatDuration } from '../../alerts/durations.js';
+import { formatDuration } from '../../config/durations.js';
 import { cursorCodec } from '../../cursor.js';
 import { withCursor } from '../cursor-param.js';
 import { queryWindow } from '../query-window.js';

@@ -4,7 +4,7 @@ import { cursorCodec } from '../../cursor.js';
 import { withCursor } from '../cursor-param.js';
 import { queryWindow } from '../query-window.js';
 import { ProblemError } from '../../errors.js';
-import type { DriftReport } from '../../reports/report-types.js';
+import type { DriftReport } from '../../contracts/drift-report.js';
 import { renderReportHtml } from '../../reports/html.js';
 import { ReportError } from '../../reports/service.js';
 import {

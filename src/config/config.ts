@@ -2,7 +2,7 @@
 import { readFileSync } from 'node:fs';
 import { Cron } from 'croner';
 import { z } from 'zod';
-import { alertsSchema } from './alerts/rules.js';
+import { alertsSchema } from './alert-rules.js';
 
 /**
  * The build time for reproducible artefacts: SOURCE_DATE_EPOCH (seconds since the epoch, see
