@@ -1,6 +1,6 @@
 import { existsSync } from 'node:fs';
-import BetterSqlite3 from 'better-sqlite3';
-import { type ChainAnchor, type ChainVerdict, verifyChain } from '../../store/audit-verify.js';
+import type { ChainAnchor, ChainVerdict } from '../../store/audit-verify.js';
+import { openAuditReader } from '../../store/reader.js';
 import { type CliIo, UsageError } from '../io.js';
 
 /** seq:hash, as `audit verify` prints the head. */
@@ -17,14 +17,13 @@ export function parseAnchor(v: string): ChainAnchor {
  */
 export function auditVerifyAction(ctx: { db: string; head?: ChainAnchor; json: boolean }, io: CliIo): ChainVerdict {
   if (!existsSync(ctx.db)) throw new UsageError(`--db ${ctx.db}: no such file`);
-  const db = new BetterSqlite3(ctx.db, { readonly: true, fileMustExist: true });
+  const reader = openAuditReader(ctx.db);
   let v: ChainVerdict;
   try {
-    const hasChain = db.prepare("SELECT 1 FROM pragma_table_info('scored_requests') WHERE name = 'chain_hash'").get() !== undefined;
-    if (!hasChain) throw new UsageError(`${ctx.db} has no hash chain yet: start this version of plumbline on it once, to migrate and seal it`);
-    v = verifyChain(db, ctx.head);
+    if (!reader.hasChain()) throw new UsageError(`${ctx.db} has no hash chain yet: start this version of plumbline on it once, to migrate and seal it`);
+    v = reader.verifyChain(ctx.head);
   } finally {
-    db.close();
+    reader.close();
   }
   if (ctx.json) {
     io.stdout.write(`${JSON.stringify(v, null, 2)}\n`);

@@ -1,0 +1,27 @@
+import BetterSqlite3, { type Database } from 'better-sqlite3';
+import { type ChainAnchor, type ChainVerdict, verifyChain } from './audit-verify.js';
+import { type DriftStore, createDriftStore } from './drift-store.js';
+
+/**
+ * A read-only connection to an audit log another process or thread may be writing (WAL lets it
+ * read meanwhile): what `audit verify` and the report worker need, without the writer's
+ * migrations, sealing or checkpoints.
+ */
+export interface AuditReader {
+  readonly drift: DriftStore;
+  /** Whether the log has been migrated to the hash chain (a log from before it has not). */
+  hasChain(): boolean;
+  verifyChain(anchor?: ChainAnchor): ChainVerdict;
+  close(): void;
+}
+
+/** Opens an existing database file read-only; throws if there is none. */
+export function openAuditReader(file: string): AuditReader {
+  const db: Database = new BetterSqlite3(file, { readonly: true, fileMustExist: true });
+  return {
+    drift: createDriftStore(db),
+    hasChain: () => db.prepare("SELECT 1 FROM pragma_table_info('scored_requests') WHERE name = 'chain_hash'").get() !== undefined,
+    verifyChain: (anchor) => verifyChain(db, anchor),
+    close: () => db.close(),
+  };
+}
