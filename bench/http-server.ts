@@ -3,7 +3,7 @@
 // else. Prints {"url": ..., "bytes": n} once it listens. Loopback only.
 //   tsx bench/http-server.ts MODELS_DIR DB_FILE MODEL VECTOR_JSON [CONFIG_JSON]
 import { pino } from 'pino';
-import { configSchema } from '../src/config.js';
+import { configSchema } from '../src/config/config.js';
 import { startServer } from '../src/http/server.js';
 
 const [modelsDir, db, model, vectorJson, configJson] = process.argv.slice(2);

@@ -14,14 +14,29 @@ export interface Metrics {
   alertState: Gauge<'rule' | 'model'>;
   driftMaxPsi: Gauge<'model'>;
   outboxDepth: Gauge;
+  /** Counts one scored vector: plumbline_scored_total{model, label, in_domain} + 1. */
+  countScored(model: string, label: string, inDomain: boolean): void;
 }
 
 export function createMetrics(): Metrics {
   const registry = new Registry();
   collectDefaultMetrics({ register: registry, prefix: 'plumbline_' });
+  const scored = new Counter({ name: 'plumbline_scored_total', help: 'Vectors scored and committed to the audit log.', labelNames: ['model', 'label', 'in_domain'] as const, registers: [registry] });
+  // One child counter per label set, found by a string key: no label object is built per answer.
+  // Bounded by models x classes x 2.
+  const scoredChildren = new Map<string, { inc(): void }>();
   return {
     registry,
-    scored: new Counter({ name: 'plumbline_scored_total', help: 'Vectors scored and committed to the audit log.', labelNames: ['model', 'label', 'in_domain'], registers: [registry] }),
+    scored,
+    countScored(model, label, inDomain) {
+      const key = `${model}\u0000${label}\u0000${inDomain ? 1 : 0}`;
+      let child = scoredChildren.get(key);
+      if (child === undefined) {
+        child = scored.labels(model, label, String(inDomain));
+        scoredChildren.set(key, child);
+      }
+      child.inc();
+    },
     rejected: new Counter({ name: 'plumbline_rejected_total', help: 'Requests refused with a problem+json answer, by problem type.', labelNames: ['model', 'problem'], registers: [registry] }),
     unlogged: new Counter({ name: 'plumbline_unlogged_answers_total', help: 'Answers served although their audit rows could not be committed (log.on_error "serve").', labelNames: ['model'], registers: [registry] }),
     scoreLatency: new Histogram({

@@ -7,7 +7,8 @@ import { parseJsonBody } from './json-body.js';
 import { VERSION } from '../version.js';
 import auth from './plugins/auth.js';
 import guards from './plugins/guards.js';
-import services, { type Services } from './plugins/services.js';
+import { registerRuntime } from './plugins/runtime.js';
+import type { Runtime } from '../runtime.js';
 import problems, { clientErrorHandler, sendProblem, toProblem } from './problems.js';
 import { zodValidatorCompiler } from './validation.js';
 import apiDescription from './routes/api-description.js';
@@ -29,7 +30,6 @@ export interface AppOptions {
 }
 
 const PATH_MODEL = /^\/v1\/models\/([^/?]+)/;
-const SCORING_ROUTE = /\/score(-batch)?$/;
 
 type OpenApiLike = ReturnType<typeof jsonSchemaTransformObject> & { components?: { schemas?: Record<string, unknown> } };
 
@@ -54,16 +54,17 @@ function pruneUnusedSchemas(doc: OpenApiLike): OpenApiLike {
 }
 
 /**
- * Builds the HTTP app from services the caller made (CONVENTIONS 1 and 2): ecosystem plugins,
- * then infrastructure (services, problems), then hooks, then one plugin per resource.
+ * Builds the HTTP app over a runtime the caller opened (CONVENTIONS 1 and 2): ecosystem plugins,
+ * then infrastructure (one plugin per part of the runtime, problems), then hooks, then one plugin
+ * per resource, the versioned ones under /v1. Closing the app closes the runtime's parts.
  */
-export async function buildApp(svc: Services, options: AppOptions = {}): Promise<FastifyInstance> {
+export async function buildApp(runtime: Runtime, options: AppOptions = {}): Promise<FastifyInstance> {
   const logger = options.logger ?? false;
   const isInstance = typeof logger === 'object' && logger !== null && 'child' in logger;
   const app = Fastify({
     ...(options.https ? { https: options.https } : {}),
     ...(isInstance ? { loggerInstance: logger as FastifyServerOptions['loggerInstance'] } : { logger: logger as FastifyServerOptions['logger'] }),
-    bodyLimit: svc.config.limits.body_bytes,
+    bodyLimit: runtime.config.limits.body_bytes,
     genReqId: () => uuidv7(),
     requestIdHeader: false,
     // One line per request from the onResponse hook below, not fastify's two.
@@ -72,19 +73,15 @@ export async function buildApp(svc: Services, options: AppOptions = {}): Promise
     // Model names are at most 64 characters; a longer parameter is a 404 from our handler.
     routerOptions: { maxParamLength: 256 },
     // A URL the router cannot decode, or a path segment beyond maxParamLength: problem+json too.
-    frameworkErrors: (err, _req, reply) => void sendProblem(reply, toProblem(err, svc.config.limits.body_bytes)),
+    frameworkErrors: (err, _req, reply) => void sendProblem(reply, toProblem(err, runtime.config.limits.body_bytes)),
     clientErrorHandler,
     // Requests that reach a closing server on an open connection are still answered, with
     // Connection: close (below); the audit log closes only after the last of them.
     return503OnClosing: false,
   }).withTypeProvider<ZodTypeProvider>();
   app.setValidatorCompiler(zodValidatorCompiler);
-  // Scoring answers are built by the scorer to their response schema (test/http/scoring.test.ts
-  // checks them against it); they go out with JSON.stringify rather than a zod encode of every
-  // answer, the hottest path of the service. Every other answer is encoded through its schema.
-  app.setSerializerCompiler((route) =>
-    SCORING_ROUTE.test(route.url) && String(route.httpStatus) === '200' ? (data: unknown) => JSON.stringify(data) : serializerCompiler(route as Parameters<typeof serializerCompiler>[0]),
-  );
+  // Answers are encoded through their response schemas; the scoring routes set their own.
+  app.setSerializerCompiler(serializerCompiler);
   // JSON only: fastify would otherwise hand a text/plain body to the schema as a string. Our own
   // JSON parser keeps the reason a body does not parse, which fastify's drops.
   app.removeContentTypeParser(['text/plain', 'application/json']);
@@ -121,16 +118,16 @@ export async function buildApp(svc: Services, options: AppOptions = {}): Promise
     transformObject: (doc) => pruneUnusedSchemas(jsonSchemaTransformObject(doc) as OpenApiLike),
   });
 
-  await app.register(services, { services: svc });
+  await registerRuntime(app, runtime);
   await app.register(problems, {
-    bodyLimit: svc.config.limits.body_bytes,
+    bodyLimit: runtime.config.limits.body_bytes,
     onRejected: ({ code, status, request }) => {
       const path = request.url.split('?')[0] ?? '';
       const length = Number(request.headers['content-length']);
       const model = PATH_MODEL.exec(path)?.[1]?.slice(0, 64) ?? null;
       // Only loaded models become label values: garbage paths must not grow the series.
-      svc.metrics.rejected.inc({ model: model === null ? '' : svc.registry.get(model) ? model : 'unknown', problem: code });
-      svc.store.log.appendRejected({
+      runtime.metrics.rejected.inc({ model: model === null ? '' : runtime.registry.get(model) ? model : 'unknown', problem: code });
+      runtime.store.log.appendRejected({
         requestId: request.id,
         receivedAt: Date.now(),
         method: request.method,
@@ -150,8 +147,8 @@ export async function buildApp(svc: Services, options: AppOptions = {}): Promise
       throw new ProblemError('invalid-request', 'an HTTP/1.1 request must carry a Host header (RFC 9112, section 3.2)', [{ header: 'host', detail: 'is missing' }]);
     }
   });
-  await app.register(auth, { mode: svc.config.auth, keys: svc.store.keys });
-  await app.register(guards, { requestsPerMinute: svc.config.limits.requests_per_minute, eventLoopDelayMs: svc.config.limits.event_loop_delay_ms });
+  await app.register(auth, { mode: runtime.config.auth, keys: runtime.store.keys });
+  await app.register(guards, { requestsPerMinute: runtime.config.limits.requests_per_minute, eventLoopDelayMs: runtime.config.limits.event_loop_delay_ms });
 
   // While shutting down, every answer asks the client to close its connection, so that keep-alive
   // sockets neither hold the process open nor carry further requests (the listener is closed).
@@ -170,12 +167,17 @@ export async function buildApp(svc: Services, options: AppOptions = {}): Promise
   });
 
   await app.register(health);
-  await app.register(models);
-  await app.register(scoring);
-  await app.register(requests);
-  await app.register(reports);
-  await app.register(alerts);
   await app.register(metrics);
   await app.register(apiDescription);
+  await app.register(
+    async (v1) => {
+      await v1.register(models);
+      await v1.register(scoring);
+      await v1.register(requests);
+      await v1.register(reports);
+      await v1.register(alerts);
+    },
+    { prefix: '/v1' },
+  );
   return app;
 }

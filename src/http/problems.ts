@@ -56,20 +56,24 @@ export interface ProblemsOptions {
   onRejected?: (r: Rejection) => void;
 }
 
-/** Scoring routes say that a refused body scored nothing; the others need not. */
-const scores = (route: string | undefined): boolean => route !== undefined && /\/score(-batch)?$/.test(route);
+declare module 'fastify' {
+  interface FastifyContextConfig {
+    /** A scoring route: its refusals say that nothing was scored. */
+    scoring?: boolean;
+  }
+}
 
 /**
  * Maps any error to RFC 9457 problem+json; the stack and internals stay in the service log.
- * `route` is the matched route pattern, when there is one.
+ * `scoring`: the request was for a scoring route.
  */
-export function toProblem(err: FastifyError, bodyLimit: number, route?: string): ProblemError {
+export function toProblem(err: FastifyError, bodyLimit: number, scoring = false): ProblemError {
   if (err instanceof ProblemError) return err;
   if (err instanceof RequestValidationError) {
     const errors = validationErrors(err);
     const where = err.validationContext === 'querystring' ? 'query string' : err.validationContext === 'params' ? 'path' : 'body';
     const count = `${errors.length} problem${errors.length === 1 ? '' : 's'}`;
-    return new ProblemError('invalid-request', where === 'body' ? `the body has ${count}${scores(route) ? '; nothing was scored' : ''}` : `the ${where} has ${count}`, errors);
+    return new ProblemError('invalid-request', where === 'body' ? `the body has ${count}${scoring ? '; nothing was scored' : ''}` : `the ${where} has ${count}`, errors);
   }
   switch (err.code) {
     case 'FST_ERR_BAD_URL':
@@ -134,7 +138,7 @@ async function problems(app: FastifyInstance, options: ProblemsOptions): Promise
   };
 
   app.setErrorHandler((err: FastifyError, request, reply) => {
-    const problem = toProblem(err, options.bodyLimit, request.routeOptions.url);
+    const problem = toProblem(err, options.bodyLimit, request.routeOptions.config.scoring === true);
     // Shedding load is the service working as meant: a warning without a stack, so that a flood of
     // refusals does not become a flood of error logs on top of the load.
     if (SHED.has(problem.code)) request.log.warn({ problem: problem.code, status: problem.status }, 'request shed');

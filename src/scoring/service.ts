@@ -87,7 +87,8 @@ function toProblem(err: unknown): never {
  */
 /** Told of every answer, for the metrics. */
 export interface ScoringObserver {
-  scored(model: string, answers: ScoreResponse[], latencyMs: number): void;
+  /** The label and domain verdict of each answer of one call. */
+  scored(model: string, answers: ReadonlyArray<{ label: string; inDomain: boolean }>, latencyMs: number): void;
   /** Answers sent although their rows could not be committed (log.on_error "serve"). */
   unlogged?(model: string, answers: number, err: Error): void;
 }
@@ -156,7 +157,7 @@ export function createScoringService(registry: ModelRegistry, log: RequestLog, o
       observer?.unlogged?.(entry.name, responses.length, err as Error);
       ctx.onUnlogged?.();
     }
-    observer?.scored(entry.name, responses, latencyUs / 1000);
+    observer?.scored(entry.name, rows, latencyUs / 1000);
     return responses;
   };
   return {

@@ -34,20 +34,20 @@ function config(db: string, url: string) {
 }
 
 async function start(db: string): Promise<RunningServer> {
-  return startServer(config(db, receiver.url), { env: { PLANT_OPS_SECRET: SECRET }, alertTimers: false });
+  return startServer(config(db, receiver.url), { env: { PLANT_OPS_SECRET: SECRET }, timers: false });
 }
 
 /** Scores `n` vectors stamped evenly over [from, to), as the plant-floor app would send them. */
 async function traffic(s: RunningServer, vector: number[], n: number, from: number, to: number): Promise<void> {
   await Promise.all(
     Array.from({ length: n }, (_, i) =>
-      s.app.services.scoring.scoreOne('moulding-quality', { features: vector }, { requestId: uuidv7(), receivedAt: Math.round(from + ((to - from) * i) / n), elapsedMs: () => 0 }),
+      s.app.scoring.scoreOne('moulding-quality', { features: vector }, { requestId: uuidv7(), receivedAt: Math.round(from + ((to - from) * i) / n), elapsedMs: () => 0 }),
     ),
   );
 }
 
 const events = () => receiver.received.map((r) => ({ ...r, event: JSON.parse(r.body) as { id: string; type: string; specversion: string; source: string; subject: string; time: string; datacontenttype: string; data: Record<string, unknown> } }));
-const tick = (s: RunningServer, at: number) => s.app.alerting!.tick(at);
+const tick = (s: RunningServer, at: number) => s.app.alerting.tick(at);
 
 beforeEach(async () => {
   receiver = await startReceiver();
@@ -62,16 +62,16 @@ describe('alerts on out-of-domain traffic', () => {
     server = await start(tmp.file('a.db'));
     await traffic(server, GOOD, 200, T0, T0 + 10 * MIN);
     await tick(server, T0 + 10 * MIN);
-    expect(server.app.alerting!.evaluator.states()).toEqual([expect.objectContaining({ phase: 'quiet', requests: 200 })]);
+    expect(server.app.alerting.evaluator.states()).toEqual([expect.objectContaining({ phase: 'quiet', requests: 200 })]);
 
     // the cushion transducer sticks at 0 mm for five minutes
     await traffic(server, STUCK, 100, T0 + 10 * MIN, T0 + 15 * MIN);
     await tick(server, T0 + 15 * MIN);
-    expect(server.app.alerting!.evaluator.states()[0]!.phase).toBe('holding');
+    expect(server.app.alerting.evaluator.states()[0]!.phase).toBe('holding');
     expect(receiver.received).toHaveLength(0);
     await traffic(server, STUCK, 60, T0 + 15 * MIN, T0 + 18 * MIN);
     await tick(server, T0 + 18 * MIN);
-    expect(server.app.alerting!.evaluator.states()[0]!.phase).toBe('raised');
+    expect(server.app.alerting.evaluator.states()[0]!.phase).toBe('raised');
 
     const [raised] = events();
     expect(raised!.headers['content-type']).toBe('application/cloudevents+json; charset=utf-8');
@@ -83,12 +83,12 @@ describe('alerts on out-of-domain traffic', () => {
     // recovery: normal shots again; the condition is false from 29 min, cleared a window later
     await traffic(server, GOOD, 600, T0 + 18 * MIN, T0 + 45 * MIN);
     await tick(server, T0 + 25 * MIN);
-    expect(server.app.alerting!.evaluator.states()[0]!.phase).toBe('raised');
+    expect(server.app.alerting.evaluator.states()[0]!.phase).toBe('raised');
     await tick(server, T0 + 29 * MIN);
     await tick(server, T0 + 35 * MIN);
-    expect(server.app.alerting!.evaluator.states()[0]!.phase).toBe('raised');
+    expect(server.app.alerting.evaluator.states()[0]!.phase).toBe('raised');
     await tick(server, T0 + 39 * MIN);
-    expect(server.app.alerting!.evaluator.states()[0]!.phase).toBe('quiet');
+    expect(server.app.alerting.evaluator.states()[0]!.phase).toBe('quiet');
     const [, cleared] = events();
     expect(cleared!.event.type).toBe('plumbline.alert.cleared');
     expect(cleared!.event.data.alert_id).toBe(raised!.event.data.alert_id);
@@ -110,19 +110,19 @@ describe('alerts on out-of-domain traffic', () => {
     await traffic(server, GOOD, 2000, T0 + 8 * MIN, T0 + 30 * MIN);
     await tick(server, T0 + 16 * MIN);
     await tick(server, T0 + 27 * MIN); // cleared
-    for (let s = 1; s <= 5; s++) await server.app.alerting!.deliverer.tick(T0 + 30 * MIN + s * 1000);
+    for (let s = 1; s <= 5; s++) await server.app.alerting.deliverer.tick(T0 + 30 * MIN + s * 1000);
     expect(receiver.received).toHaveLength(0);
     // the raised event has been tried and tried again; the cleared one waits behind it, in order
-    const [first, second] = server.store.alerts.deliveries();
+    const [first, second] = server.runtime.store.alerts.deliveries();
     expect(first!.attempts).toBeGreaterThanOrEqual(3);
     expect(first!.last_error).toBe('answered 503');
     expect(second!.attempts).toBe(0);
 
     receiver.down = false;
-    await server.app.alerting!.deliverer.tick(T0 + 2 * 60 * MIN);
-    await server.app.alerting!.deliverer.tick(T0 + 2 * 60 * MIN);
+    await server.app.alerting.deliverer.tick(T0 + 2 * 60 * MIN);
+    await server.app.alerting.deliverer.tick(T0 + 2 * 60 * MIN);
     expect(events().map((e) => e.event.type)).toEqual(['plumbline.alert.raised', 'plumbline.alert.cleared']);
-    const outbox = server.store.alerts.deliveries();
+    const outbox = server.runtime.store.alerts.deliveries();
     expect(outbox.map((d) => d.status)).toEqual(['delivered', 'delivered']);
     expect(events().map((e) => e.headers['webhook-id'])).toEqual(outbox.map((d) => d.event_id));
   });
@@ -134,17 +134,17 @@ describe('alerts on out-of-domain traffic', () => {
     await traffic(server, STUCK, 60, T0, T0 + 5 * MIN);
     await tick(server, T0 + 5 * MIN);
     await tick(server, T0 + 8 * MIN);
-    expect(server.store.alerts.deliveries().map((d) => d.status)).toEqual(['pending']);
+    expect(server.runtime.store.alerts.deliveries().map((d) => d.status)).toEqual(['pending']);
     await server.close();
 
     receiver.down = false;
     server = await start(db);
     // the raised alert is still raised after the restart, and is not raised twice
-    expect(server.app.alerting!.evaluator.states()).toEqual([expect.objectContaining({ phase: 'raised' })]);
+    expect(server.app.alerting.evaluator.states()).toEqual([expect.objectContaining({ phase: 'raised' })]);
     await tick(server, T0 + 9 * MIN);
-    await server.app.alerting!.deliverer.tick(T0 + 60 * MIN);
+    await server.app.alerting.deliverer.tick(T0 + 60 * MIN);
     expect(events().map((e) => e.event.type)).toEqual(['plumbline.alert.raised']);
-    expect(server.store.alerts.deliveries().map((d) => d.status)).toEqual(['delivered']);
+    expect(server.runtime.store.alerts.deliveries().map((d) => d.status)).toEqual(['delivered']);
   });
 
   it('give up after give_up_after, mark the delivery failed, and keep going', async () => {
@@ -153,9 +153,9 @@ describe('alerts on out-of-domain traffic', () => {
     await traffic(server, STUCK, 60, T0, T0 + 5 * MIN);
     await tick(server, T0 + 5 * MIN);
     await tick(server, T0 + 8 * MIN);
-    await server.app.alerting!.deliverer.tick(T0 + 8 * MIN);
-    await server.app.alerting!.deliverer.tick(T0 + 8 * MIN + 2 * 60 * MIN); // past the hour
-    const [d] = server.store.alerts.deliveries();
+    await server.app.alerting.deliverer.tick(T0 + 8 * MIN);
+    await server.app.alerting.deliverer.tick(T0 + 8 * MIN + 2 * 60 * MIN); // past the hour
+    const [d] = server.runtime.store.alerts.deliveries();
     expect(d).toMatchObject({ status: 'failed', last_error: 'answered 503' });
   });
 });

@@ -84,7 +84,7 @@ describe('plumbline demo', () => {
     } finally {
       await demo.close();
     }
-    expect(existsSync(demo.server.store.file)).toBe(false);
+    expect(existsSync(demo.server.runtime.store.file)).toBe(false);
   });
 
   it('says the port is taken, as a usage error, and leaves no temporary directory behind', async () => {

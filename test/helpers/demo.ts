@@ -14,6 +14,6 @@ export function demoBundle() {
 /** A fresh service on the demo bundle with the invented day of demo traffic replayed into it. */
 export async function demoDayService(config: Record<string, unknown> = {}): Promise<TestService> {
   const svc = await startTestService({ bundles: [demoBundle()], config });
-  await replayDemoDay(svc.app.services.scoring, 'moulding-quality', DEMO_DIR, DAY_START);
+  await replayDemoDay(svc.app.scoring, 'moulding-quality', DEMO_DIR, DAY_START);
   return svc;
 }

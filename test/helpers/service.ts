@@ -3,14 +3,13 @@ import { join } from 'node:path';
 import BetterSqlite3, { type Database } from 'better-sqlite3';
 import type { FastifyInstance } from 'fastify';
 import type { Logger } from 'pino';
-import { type ModelRegistry, createModelRegistry } from '../../src/bundle/registry.js';
+import type { ModelRegistry } from '../../src/bundle/registry.js';
 import type { AnyBundleFile, BundleFile } from '../../src/bundle/schema.js';
 import { writeBundle } from '../../src/bundle/write.js';
 import { type Config, configSchema } from '../../src/config/config.js';
 import { buildApp } from '../../src/http/app.js';
-import { modelRecord } from '../../src/http/server.js';
-import { createServices } from '../../src/services.js';
-import { type Store, openStore } from '../../src/store/store.js';
+import { openRuntime } from '../../src/runtime.js';
+import type { Store } from '../../src/store/store.js';
 import { irisBundle } from './bundles.js';
 import { tempDir } from './datasets.js';
 
@@ -42,15 +41,9 @@ export async function startTestService(options: { bundles?: AnyBundleFile[]; con
   for (const b of options.bundles ?? [iris()]) await writeBundle(join(modelsDir, `${b.name}.bundle.json`), b);
   const dbFile = join(tmp.dir, 'audit.db');
   const config = configSchema.parse({ models_dir: modelsDir, db: dbFile, ...options.config });
-  const store = openStore(dbFile, {
-    sync: config.log.sync,
-    flushMs: config.log.flush_ms,
-    flushRows: config.log.flush_rows,
-    queueRows: config.log.queue_rows,
-    rejectedRows: config.log.rejected_rows,
-  });
-  const registry = await createModelRegistry(modelsDir, (e) => store.recordModel(modelRecord(e)));
-  const app = await buildApp(createServices(config, registry, store), options.logger ? { logger: options.logger } : {});
+  const runtime = await openRuntime(config, options.logger ? { log: options.logger } : {});
+  const { store, registry } = runtime;
+  const app = await buildApp(runtime, options.logger ? { logger: options.logger } : {});
   await app.ready();
   const db = new BetterSqlite3(dbFile, { readonly: true });
   return {
@@ -63,9 +56,9 @@ export async function startTestService(options: { bundles?: AnyBundleFile[]; con
     db,
     rows: (sql = 'SELECT * FROM scored_requests ORDER BY seq') => db.prepare(sql).all() as Array<Record<string, unknown>>,
     async close() {
+      // Closing the app closes the runtime it was built over, the store last.
       await app.close();
       db.close();
-      store.close();
       tmp.remove();
     },
   };

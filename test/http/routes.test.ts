@@ -80,7 +80,7 @@ describe('failures inside the service', () => {
   it('answer 500 problem+json with no stack or internals, and log the error', async () => {
     const { logger, lines } = capturedLogger();
     const broken = await startTestService({ logger });
-    broken.app.services.scoring.scoreOne = async () => {
+    broken.app.scoring.scoreOne = async () => {
       throw new TypeError('cannot read properties of undefined (reading "weights") at scorer.ts:42');
     };
     try {

@@ -31,7 +31,7 @@ describe('nightly drift reports', () => {
     // demo day's too, whatever day the test runs on.
     const job = startNightlyReports({
       registry: svc.registry,
-      reports: svc.app.services.reports,
+      reports: svc.app.reports,
       drift: svc.store.drift,
       schedule: '0 2 * * *',
       timezone: 'UTC',
@@ -49,7 +49,7 @@ describe('nightly drift reports', () => {
     // A schedule that last fired at the start of this minute, over a time zone where "yesterday"
     // is a window this database has not reported on yet.
     const before = svc.rows('SELECT id FROM drift_reports').length;
-    const job = startNightlyReports({ registry: svc.registry, reports: svc.app.services.reports, drift: svc.store.drift, schedule: '* * * * *', timezone: 'Pacific/Kiritimati', log: pino({ level: 'silent' }) });
+    const job = startNightlyReports({ registry: svc.registry, reports: svc.app.reports, drift: svc.store.drift, schedule: '* * * * *', timezone: 'Pacific/Kiritimati', log: pino({ level: 'silent' }) });
     await job.stop();
     expect(svc.rows('SELECT id FROM drift_reports').length).toBe(before + 1);
   });

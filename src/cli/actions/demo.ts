@@ -49,7 +49,7 @@ export async function demoAction(ctx: DemoContext, io: CliIo): Promise<DemoResul
     await server.close();
     rmSync(dir, { recursive: true, force: true });
   };
-  const services = server.app.services;
+  const services = server.runtime;
   const today = Math.floor(Date.now() / DAY) * DAY;
   const dayStart = today - DAY;
 

@@ -2,9 +2,9 @@ import { existsSync, rmSync } from 'node:fs';
 import { type FileHandle, open } from 'node:fs/promises';
 import { renderReportHtml } from '../../reports/html.js';
 import type { DriftReport } from '../../contracts/drift-report.js';
-import { REPORT_DEFAULTS } from '../../reports/options.js';
-import { ReportError, createReportService } from '../../reports/service.js';
-import { openStore } from '../../store/store.js';
+import { configSchema } from '../../config/config.js';
+import { ReportError } from '../../reports/service.js';
+import { openRuntime } from '../../runtime.js';
 import { type CliIo, UsageError, fileProblem } from '../io.js';
 
 export interface DriftContext {
@@ -64,17 +64,19 @@ async function discard(outputs: Output[]): Promise<void> {
 export async function driftAction(ctx: DriftContext, io: CliIo): Promise<DriftReport> {
   if (!(ctx.from.getTime() < ctx.to.getTime())) throw new UsageError(`--from ${ctx.from.toISOString()} must be before --to ${ctx.to.toISOString()}`);
   const outputs = await openOutputs(ctx);
-  const store = openStore(ctx.db, { sync: 'normal', flushMs: 0, flushRows: 512, queueRows: 1000, rejectedRows: null });
   let report: DriftReport;
   try {
-    const reports = createReportService(store, { ...REPORT_DEFAULTS, minRows: ctx.minRows, sampleCap: ctx.sampleCap, worker: false });
-    report = await reports.run(ctx.model, { from: ctx.from.getTime(), to: ctx.to.getTime() }, 'cli');
+    // The bundle comes from the audit log, not from a models directory: none is loaded.
+    const runtime = await openRuntime(configSchema.parse({ db: ctx.db, reports: { min_rows: ctx.minRows, sample_cap: ctx.sampleCap } }), { models: false });
+    try {
+      report = await runtime.reports.run(ctx.model, { from: ctx.from.getTime(), to: ctx.to.getTime() }, 'cli');
+    } finally {
+      await runtime.close();
+    }
   } catch (err) {
     await discard(outputs);
     if (err instanceof ReportError) throw new UsageError(`${ctx.db}: ${err.message}`);
     throw err;
-  } finally {
-    store.close();
   }
   for (const o of outputs) {
     try {

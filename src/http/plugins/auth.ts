@@ -75,9 +75,9 @@ async function auth(app: FastifyInstance, options: AuthOptions): Promise<void> {
     const access = route.config?.access;
     if (!route.schema || access === undefined || access === 'public') return;
     const schema = route.schema as { security?: unknown; description?: string };
-    schema.security = [{ apiKey: [] }];
     const note = access === 'admin' ? 'Needs an admin key once keys are in use.' : `Needs a ${access} key or an admin key once keys are in use.`;
-    schema.description = schema.description ? `${schema.description} ${note}` : note;
+    // A copy: a GET route's HEAD twin is declared with the same schema object, and would say it twice.
+    route.schema = { ...schema, security: [{ apiKey: [] }], description: schema.description ? `${schema.description} ${note}` : note };
   });
 
   app.decorateRequest('apiKey', null);

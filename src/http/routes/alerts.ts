@@ -30,7 +30,7 @@ const codec = cursorCodec('a1');
 
 const alerts: FastifyPluginAsyncZod = async (app) => {
   app.get(
-    '/v1/alerts',
+    '/alerts',
     {
       config: { access: 'reader' },
       schema: {
@@ -51,7 +51,7 @@ const alerts: FastifyPluginAsyncZod = async (app) => {
       const q = req.query;
       const { errors, ...window } = queryWindow(q);
       if (errors.length > 0) throw new ProblemError('invalid-request', 'the window is empty', errors);
-      const rows = app.services.store.alerts.listAlerts(
+      const rows = app.store.alerts.listAlerts(
         {
           ...(q.state ? { state: q.state } : {}),
           ...(q.model !== undefined ? { model: q.model } : {}),

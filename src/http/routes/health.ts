@@ -17,8 +17,8 @@ const health: FastifyPluginAsyncZod = async (app) => {
       },
     },
     async (_req, reply) => {
-      const models = app.services.registry.list().length;
-      const writable = app.services.store.isWritable();
+      const models = app.registry.list().length;
+      const writable = app.store.isWritable();
       const ready = models > 0 && writable;
       return reply.code(ready ? 200 : 503).send({ status: ready ? 'ready' : 'not ready', models, database: writable ? 'writable' : 'not writable' });
     },

@@ -2,11 +2,11 @@ import type { FastifyPluginAsyncZod } from 'fastify-type-provider-zod';
 import { z } from 'zod';
 
 const metrics: FastifyPluginAsyncZod = async (app) => {
-  if (!app.services.config.metrics.enabled) return;
+  if (!app.config.metrics.enabled) return;
   app.get(
     '/metrics',
     {
-      config: { access: app.services.config.metrics.public ? 'public' : 'reader' },
+      config: { access: app.config.metrics.public ? 'public' : 'reader' },
       schema: {
         summary: 'Metrics in the Prometheus text exposition format (docs/metrics.md lists them)',
         tags: ['health'],
@@ -14,7 +14,7 @@ const metrics: FastifyPluginAsyncZod = async (app) => {
       },
     },
     async (_req, reply) => {
-      const { registry } = app.services.metrics;
+      const { registry } = app.metrics;
       return reply.type(registry.contentType).send(await registry.metrics());
     },
   );

@@ -53,13 +53,13 @@ function detail(e: ModelEntry) {
 
 const models: FastifyPluginAsyncZod = async (app) => {
   app.get(
-    '/v1/models',
+    '/models',
     { config: { access: 'reader' }, schema: { summary: 'The loaded models', tags: ['models'], response: { 200: jsonResponse('the loaded models', z.object({ items: z.array(modelSummarySchema) })), ...commonErrors } } },
-    async () => ({ items: app.services.registry.list().map(summary) }),
+    async () => ({ items: app.registry.list().map(summary) }),
   );
 
   app.get(
-    '/v1/models/:name',
+    '/models/:name',
     {
       config: { access: 'reader' },
       schema: {
@@ -69,11 +69,11 @@ const models: FastifyPluginAsyncZod = async (app) => {
         response: { 200: jsonResponse('the manifest', modelDetailSchema), 404: problemResponse('no model of that name is loaded'), ...commonErrors },
       },
     },
-    async (req) => detail(requireModel(app.services.registry, req.params.name)),
+    async (req) => detail(requireModel(app.registry, req.params.name)),
   );
 
   app.post(
-    '/v1/models/reload',
+    '/models/reload',
     {
       config: { access: 'admin' },
       schema: {
@@ -85,7 +85,7 @@ const models: FastifyPluginAsyncZod = async (app) => {
     },
     async (req) => {
       try {
-        const entries = await app.services.registry.reload();
+        const entries = await app.registry.reload();
         req.log.info({ models: entries.map((e) => `${e.name}@${e.bundle.file.version}`), by: req.apiKey?.label ?? null }, 'models reloaded');
         return { items: entries.map(summary) };
       } catch (err) {

@@ -25,7 +25,7 @@ const MAX_WINDOW_MS = 366 * 24 * 3_600_000;
 const codec = cursorCodec('d1');
 
 const reports: FastifyPluginAsyncZod = async (app) => {
-  const { store } = app.services;
+  const { store } = app;
   const load = (id: string): DriftReport => {
     const stored = store.drift.getReport(id);
     if (!stored) throw new ProblemError('unknown-report', `no drift report has the id ${JSON.stringify(id)}`);
@@ -33,7 +33,7 @@ const reports: FastifyPluginAsyncZod = async (app) => {
   };
 
   app.get(
-    '/v1/drift-reports',
+    '/drift-reports',
     {
       config: { access: 'reader' },
       schema: {
@@ -64,7 +64,7 @@ const reports: FastifyPluginAsyncZod = async (app) => {
   );
 
   app.get(
-    '/v1/drift-reports/:id',
+    '/drift-reports/:id',
     {
       config: { access: 'reader' },
       schema: {
@@ -78,7 +78,7 @@ const reports: FastifyPluginAsyncZod = async (app) => {
   );
 
   app.get(
-    '/v1/drift-reports/:id.html',
+    '/drift-reports/:id.html',
     {
       config: { access: 'reader' },
       schema: {
@@ -92,7 +92,7 @@ const reports: FastifyPluginAsyncZod = async (app) => {
   );
 
   app.post(
-    '/v1/drift-reports',
+    '/drift-reports',
     {
       config: { access: 'admin' },
       schema: {
@@ -109,7 +109,7 @@ const reports: FastifyPluginAsyncZod = async (app) => {
       if (!(from < to)) throw new ProblemError('invalid-request', 'the window is empty', [{ pointer: '#/to', detail: 'must be later than from' }]);
       if (to - from > MAX_WINDOW_MS) throw new ProblemError('invalid-request', 'the window is too long', [{ pointer: '#/to', detail: 'the window may span at most 366 days' }]);
       try {
-        const report = await app.services.reports.run(req.body.model, { from, to }, 'request');
+        const report = await app.reports.run(req.body.model, { from, to }, 'request');
         return reply.code(201).send(report);
       } catch (err) {
         if (err instanceof ReportError && err.reason === 'unknown-model') throw new ProblemError('unlogged-model', err.message, [{ pointer: '#/model', detail: 'no bundle of this name was ever loaded by a service writing to this audit log' }]);

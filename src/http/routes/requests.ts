@@ -7,7 +7,7 @@ import { commonErrors, jsonResponse, problemResponse, requestPageSchema, request
 
 const requests: FastifyPluginAsyncZod = async (app) => {
   app.get(
-    '/v1/requests',
+    '/requests',
     {
       config: { access: 'reader' },
       schema: {
@@ -38,7 +38,7 @@ const requests: FastifyPluginAsyncZod = async (app) => {
         ...(q.label !== undefined ? { label: q.label } : {}),
         ...(tags.length > 0 ? { tags } : {}),
       };
-      return withCursor(() => app.services.store.queryRequests(filter, q.limit, q.cursor));
+      return withCursor(() => app.store.queryRequests(filter, q.limit, q.cursor));
     },
   );
 };

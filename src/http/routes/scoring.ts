@@ -1,4 +1,5 @@
-import type { FastifyPluginAsyncZod } from 'fastify-type-provider-zod';
+import { type FastifyPluginAsyncZod, serializerCompiler } from 'fastify-type-provider-zod';
+import type { FastifySerializerCompiler } from 'fastify/types/schema.js';
 import type { CallContext } from '../../scoring/service.js';
 import type { FastifyReply, FastifyRequest } from 'fastify';
 import { commonErrors, jsonResponse, modelNameParam, problemResponse, scoreBatchResponseSchema, scoreResponseSchema, scoringSchemas } from '../schemas.js';
@@ -25,13 +26,22 @@ const errors = {
   ...commonErrors,
 };
 
+/**
+ * Scoring answers are built by the scorer to their response schema (test/http/scoring.test.ts
+ * checks them against it); a 200 goes out with JSON.stringify rather than a zod encode of every
+ * answer, the hottest path of the service. Problems are encoded through their schema.
+ */
+const answerSerializer: FastifySerializerCompiler<unknown> = (route) =>
+  String(route.httpStatus) === '200' ? (data: unknown) => JSON.stringify(data) : serializerCompiler(route as Parameters<typeof serializerCompiler>[0]);
+
 const scoring: FastifyPluginAsyncZod = async (app) => {
-  const { item, batch } = scoringSchemas(app.services.config.limits);
+  const { item, batch } = scoringSchemas(app.config.limits);
 
   app.post(
-    '/v1/models/:name/score',
+    '/models/:name/score',
     {
-      config: { access: 'scorer' },
+      config: { access: 'scorer', scoring: true },
+      serializerCompiler: answerSerializer,
       schema: {
         summary: 'Score one feature vector',
         description: 'Answers with class probabilities, the margin and the domain checks, after the request is committed to the audit log.',
@@ -41,13 +51,14 @@ const scoring: FastifyPluginAsyncZod = async (app) => {
         response: { 200: jsonResponse('the answer, committed to the audit log', scoreResponseSchema), ...errors },
       },
     },
-    async (req, reply) => app.services.scoring.scoreOne(req.params.name, req.body, context(req, reply)),
+    async (req, reply) => app.scoring.scoreOne(req.params.name, req.body, context(req, reply)),
   );
 
   app.post(
-    '/v1/models/:name/score-batch',
+    '/models/:name/score-batch',
     {
-      config: { access: 'scorer' },
+      config: { access: 'scorer', scoring: true },
+      serializerCompiler: answerSerializer,
       schema: {
         summary: 'Score many feature vectors in one call',
         description: `At most limits.batch_items items (default 1,000). One bad item refuses the whole batch, naming its index; nothing of a refused batch is scored or logged.`,
@@ -57,7 +68,7 @@ const scoring: FastifyPluginAsyncZod = async (app) => {
         response: { 200: jsonResponse('one answer per item, in order, all committed to the audit log', scoreBatchResponseSchema), ...errors },
       },
     },
-    async (req, reply) => ({ batch_id: req.id, items: await app.services.scoring.scoreBatch(req.params.name, req.body.items, context(req, reply)) }),
+    async (req, reply) => ({ batch_id: req.id, items: await app.scoring.scoreBatch(req.params.name, req.body.items, context(req, reply)) }),
   );
 };
 
