@@ -2,7 +2,8 @@ import { afterEach, beforeEach, describe, expect, it } from 'vitest';
 import { fromFloat64Blob } from '../../src/store/float64-blob.js';
 import { UUID_V7 } from '../../src/ids.js';
 import { DETECTORS } from '../../src/core/domain/detectors.js';
-import { scoreBatchResponseSchema, scoreResponseSchema } from '../../src/http/schemas.js';
+import { scoreResponseSchema } from '../../src/contracts/score.js';
+import { scoreBatchResponseSchema } from '../../src/http/routes/scoring.js';
 import { SETOSA, type TestService, VIRGINICA, iris, startTestService } from '../helpers/service.js';
 
 let svc: TestService;

@@ -5,7 +5,7 @@ import { cursorCodec } from '../../cursor.js';
 import { withCursor } from '../cursor-param.js';
 import { queryWindow } from '../query-window.js';
 import { ProblemError } from '../../errors.js';
-import { commonErrors, jsonResponse, problemResponse } from '../schemas.js';
+import { commonErrors, jsonResponse, problemResponse } from '../shared-schemas.js';
 
 const isoTime = z.iso.datetime({ offset: true });
 

@@ -1,5 +1,13 @@
 import type { FastifyPluginAsyncZod } from 'fastify-type-provider-zod';
-import { healthSchema, jsonResponse, readySchema } from '../schemas.js';
+import { z } from 'zod';
+import { jsonResponse } from '../shared-schemas.js';
+
+export const healthSchema = z.object({ status: z.literal('ok') });
+export const readySchema = z.object({
+  status: z.enum(['ready', 'not ready']),
+  models: z.number().int(),
+  database: z.enum(['writable', 'not writable']),
+});
 
 const health: FastifyPluginAsyncZod = async (app) => {
   app.get('/healthz', { config: { access: 'public' }, schema: { summary: 'Liveness: the process answers', tags: ['health'], response: { 200: jsonResponse('the process is up', healthSchema) } } }, async () => ({

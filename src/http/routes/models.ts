@@ -5,8 +5,61 @@ import { decodeDomain } from '../../bundle/domain-codec.js';
 import { BUNDLE_FORMAT_V1 } from '../../bundle/schema.js';
 import { storedMembers } from '../../bundle/verify.js';
 import { requireModel } from '../../scoring/service.js';
-import { commonErrors, jsonResponse, modelDetailSchema, modelNameParam, modelSummarySchema, problemResponse } from '../schemas.js';
+import { commonErrors, jsonResponse, modelNameParam, problemResponse } from '../shared-schemas.js';
 import { z } from 'zod';
+
+export const featureSchemaOut = z.object({ name: z.string(), unit: z.string(), description: z.string() });
+
+export const modelSummarySchema = z
+  .object({
+    name: z.string(),
+    version: z.string(),
+    sha256: z.string(),
+    features: z.array(featureSchemaOut),
+    classes: z.array(z.string()),
+    loaded_at: z.string(),
+  })
+  .meta({ id: 'ModelSummary' });
+
+export const modelDetailSchema = modelSummarySchema
+  .extend({
+    format: z.string().describe('plumbline-bundle/2, or plumbline-bundle/1 for a bundle written before ensembles'),
+    created_at: z.string(),
+    file: z.string().describe('the bundle file it was loaded from'),
+    members: z
+      .array(z.object({ layers: z.array(z.object({ inputs: z.number(), outputs: z.number(), activation: z.string(), alpha: z.number().optional() })) }))
+      .describe('the networks that answer together (the mean of their calibrated probabilities); one for version 1 and imported networks'),
+    calibration: z.object({ temperature: z.number(), fit: z.string().optional().describe('fitted, separable (left at 1: the held-out rows gave no minimum), flat or not_fitted') }),
+    domain: z.object({
+      review_margin: z.number(),
+      target_in_domain_rate: z.number().describe('share of held-out in-domain rows the flag was asked to pass'),
+      held_out: z
+        .object({
+          source: z.string(),
+          rows: z.number(),
+          level: z.number().optional().describe('the level calibrated to: the target, or n / (n + 1) where the rows cannot support it'),
+          in_domain_rate: z.number(),
+          false_alarm_rate: z.number(),
+          false_alarm_ci: z.object({ low: z.number(), high: z.number(), confidence: z.number() }).optional().describe('Clopper-Pearson interval of the false-alarm rate'),
+        })
+        .describe('the calibration rows and the pass rate measured on them, leave-one-out: the baseline false-alarm rate'),
+      detectors: z.array(z.object({ detector: z.string(), threshold: z.number() })).describe('the detectors that vote; a check passes when value <= threshold'),
+      left_out: z.array(z.object({ detector: z.string(), reason: z.string() })).describe('detectors asked for that do not vote, and why'),
+      evaluation: z.record(z.string(), z.unknown()).describe('pass rates on held-out rows, detection rates and AUROC on generated probes'),
+      envelope: z.object({
+        tolerance: z.number(),
+        features: z.array(z.object({ name: z.string(), unit: z.string(), low: z.number(), high: z.number() })),
+      }),
+    }),
+    training: z.object({
+      rows: z.record(z.string(), z.number()),
+      seed: z.number(),
+      options: z.record(z.string(), z.unknown()),
+      members: z.array(z.record(z.string(), z.unknown())).describe('per network trained here: rows, epochs, losses'),
+      metrics: z.record(z.string(), z.unknown()),
+    }),
+  })
+  .meta({ id: 'ModelDetail' });
 
 function summary(e: ModelEntry) {
   const b = e.bundle.file;

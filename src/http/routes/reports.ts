@@ -7,16 +7,35 @@ import { ProblemError } from '../../errors.js';
 import type { DriftReport } from '../../contracts/drift-report.js';
 import { renderReportHtml } from '../../reports/html.js';
 import { ReportError } from '../../reports/service.js';
-import {
-  commonErrors,
-  driftReportSchema,
-  jsonResponse,
-  problemResponse,
-  reportIdParam,
-  reportListQuerySchema,
-  reportRequestSchema,
-  reportSummarySchema,
-} from '../schemas.js';
+import { driftReportSchema } from '../../contracts/drift-report.js';
+import { modelRefSchema } from '../../contracts/score.js';
+import { commonErrors, isoTime, jsonResponse, problemResponse } from '../shared-schemas.js';
+
+export const reportSummarySchema = z.object({
+  id: z.string(),
+  model: modelRefSchema,
+  window: z.object({ from: z.string(), to: z.string() }),
+  created_at: z.string(),
+  trigger: z.enum(['nightly', 'request', 'cli', 'demo']),
+  verdict: z.string(),
+  counts: z.object({ scored: z.number(), rejected: z.number(), out_of_domain: z.number(), other_versions: z.number() }),
+});
+
+export const reportListQuerySchema = z.strictObject({
+  model: z.string().optional(),
+  from: isoTime.optional().describe('windows starting at or after'),
+  to: isoTime.optional().describe('windows starting before'),
+  limit: z.coerce.number().int().min(1).max(500).default(50),
+  cursor: z.string().optional(),
+});
+
+export const reportRequestSchema = z.strictObject({
+  model: z.string().min(1),
+  from: isoTime.describe('inclusive'),
+  to: isoTime.describe('exclusive'),
+});
+
+export const reportIdParam = z.object({ id: z.string().min(1) });
 
 /** A POSTed window may span at most this long; the nightly job covers longer histories day by day. */
 const MAX_WINDOW_MS = 366 * 24 * 3_600_000;

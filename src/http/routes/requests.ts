@@ -3,7 +3,21 @@ import { type FieldError, ProblemError } from '../../errors.js';
 import type { RequestFilter } from '../../store/request-query.js';
 import { withCursor } from '../cursor-param.js';
 import { queryWindow } from '../query-window.js';
-import { commonErrors, jsonResponse, problemResponse, requestPageSchema, requestsQuerySchema } from '../schemas.js';
+import { z } from 'zod';
+import { requestPageSchema } from '../../contracts/logged-request.js';
+import { commonErrors, isoTime, jsonResponse, problemResponse } from '../shared-schemas.js';
+
+export const requestsQuerySchema = z.strictObject({
+  // No bundle has a longer model name (64) or class name (64): a longer one is a mistake.
+  model: z.string().max(64, 'a model name has at most 64 characters').optional(),
+  from: isoTime.optional().describe('inclusive'),
+  to: isoTime.optional().describe('exclusive'),
+  in_domain: z.enum(['true', 'false']).optional(),
+  label: z.string().max(64, 'a class name has at most 64 characters').optional().describe('predicted class'),
+  tag: z.union([z.string(), z.array(z.string())]).optional().describe('key:value; repeat to require several'),
+  limit: z.coerce.number().int().min(1).max(1000).default(100),
+  cursor: z.string().optional().describe('next_cursor of the previous page'),
+});
 
 const requests: FastifyPluginAsyncZod = async (app) => {
   app.get(

@@ -2,7 +2,56 @@ import { type FastifyPluginAsyncZod, serializerCompiler } from 'fastify-type-pro
 import type { FastifySerializerCompiler } from 'fastify/types/schema.js';
 import type { CallContext } from '../../scoring/service.js';
 import type { FastifyReply, FastifyRequest } from 'fastify';
-import { commonErrors, jsonResponse, modelNameParam, problemResponse, scoreBatchResponseSchema, scoreResponseSchema, scoringSchemas } from '../schemas.js';
+import { z } from 'zod';
+import type { Config } from '../../config/config.js';
+import { scoreResponseSchema } from '../../contracts/score.js';
+import { MAX_FEATURE_MAGNITUDE } from '../../core/network.js';
+import { commonErrors, jsonResponse, modelNameParam, problemResponse } from '../shared-schemas.js';
+
+// A lone UTF-16 surrogate (from a "\ud800" escape) has no UTF-8 form: it could not be stored as sent.
+const LONE_SURROGATE = /[\ud800-\udbff](?![\udc00-\udfff])|(?<![\ud800-\udbff])[\udc00-\udfff]/;
+const wellFormed = (s: string): boolean => !LONE_SURROGATE.test(s);
+const WELL_FORMED = 'must be well-formed Unicode (no lone surrogate escapes such as \\ud800)';
+
+export function scoringSchemas(limits: Config['limits']) {
+  const tags = z
+    .record(
+      z
+        .string()
+        .min(1, 'a tag key must not be empty')
+        .max(limits.tag_key_chars, `a tag key has at most ${limits.tag_key_chars} characters (limits.tag_key_chars)`)
+        .regex(/^[^\u0000-\u001f\u007f]+$/, 'a tag key must not hold control characters')
+        .refine(wellFormed, WELL_FORMED),
+      z.string().max(limits.tag_value_chars, `a tag value has at most ${limits.tag_value_chars} characters (limits.tag_value_chars)`).refine(wellFormed, WELL_FORMED),
+    )
+    .refine((t) => Object.keys(t).length <= limits.tags, `at most ${limits.tags} tags (limits.tags)`)
+    .describe('where the vector came from: line, station, part number ... (stored with the request)');
+  const value = z.number().min(-MAX_FEATURE_MAGNITUDE).max(MAX_FEATURE_MAGNITUDE);
+  const features = z
+    .union([
+      z.record(z.string(), value).describe("by name: exactly the bundle's features"),
+      z.array(value).describe("in the bundle's feature order"),
+    ])
+    .describe('feature values in the units the bundle lists; every value a finite number');
+  // No registry id: these are built per app from its limits, and ids must be unique.
+  const item = z.strictObject({ features, tags: tags.optional() }).describe('one feature vector to score');
+  const batch = z
+    .strictObject({
+      items: z
+        .array(item)
+        .min(1, 'a batch needs at least one item')
+        .max(limits.batch_items, `a batch holds at most ${limits.batch_items} items (limits.batch_items)`),
+    })
+    .describe('feature vectors to score together');
+  return { item, batch };
+}
+
+export const scoreBatchResponseSchema = z
+  .object({
+    batch_id: z.string().describe('id of this call; the audit log stores it with every item (GET /v1/requests shows it as batch_id)'),
+    items: z.array(scoreResponseSchema),
+  })
+  .meta({ id: 'ScoreBatchResponse' });
 
 /** Sent with an answer whose rows could not be logged (log.on_error "serve"). */
 export const UNLOGGED_HEADER = 'plumbline-audit';
