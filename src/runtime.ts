@@ -6,6 +6,7 @@ import type { Config } from './config/config.js';
 import type { DriftReport } from './contracts/drift-report.js';
 import { type NightlyReports, startNightlyReports } from './jobs/nightly-reports.js';
 import { type RetentionJob, startRetention } from './jobs/retention.js';
+import { kernelStatus } from './core/wasm/module.js';
 import { type Metrics, createMetrics } from './metrics.js';
 import { type ReportService, createReportService } from './reports/service.js';
 import { type ScoringService, createScoringService } from './scoring/service.js';
@@ -124,6 +125,11 @@ export async function openRuntime(config: Config, options: RuntimeOptions = {}):
 
     const registry = options.models === false ? emptyRegistry() : await createModelRegistry(config.models_dir, (e) => store.recordModel(modelRecord(e)));
     add('registry', ['store'], registry);
+    if (serve) {
+      const kernel = kernelStatus();
+      if (kernel.kind === 'webassembly-simd') log.info({ kernel: kernel.kind }, 'dense layers and triangular solves run on the WebAssembly SIMD kernel');
+      else log.warn({ kernel: kernel.kind, reason: kernel.reason }, 'dense layers and triangular solves run in JavaScript: the same answers, slower');
+    }
 
     const metrics = createMetrics();
     // The gauges start from what the log already holds.

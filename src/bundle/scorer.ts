@@ -2,7 +2,7 @@ import { type MemberOutput, scoreDomain } from '../core/domain/detectors.js';
 import { ensembleProbabilitiesInto, memberForRow } from '../core/ensemble.js';
 import { decodeDomain } from './domain-codec.js';
 import type { ForwardPass } from '../core/network.js';
-import { createFastForwardPass } from '../core/wasm-dense.js';
+import { createFastForwardPass } from '../core/wasm/forward-pass.js';
 import { topTwo } from '../core/softmax.js';
 import { standardizeInto } from '../core/standardize.js';
 import type { LoadedBundle } from './verify.js';

@@ -1,5 +1,5 @@
 // Small dense linear algebra on row-major Float64Array matrices, for the domain detectors.
-import { WASM_SOLVE_MIN, createWasmSolver } from './wasm-dense.js';
+import { WASM_SOLVE_MIN, createWasmSolver } from './wasm/solver.js';
 
 /**
  * Cholesky factor L (lower triangular, row-major n x n) with A = L L^T, for a symmetric positive
@@ -62,7 +62,7 @@ export function inverseQuadraticForm(l: ArrayLike<number>, n: number, v: ArrayLi
 
 /**
  * Solves L y = v for lower-triangular L (forward substitution) into out. From WASM_SOLVE_MIN
- * rows on, on the WebAssembly kernel (wasm-dense.ts), which goes column by column and so does
+ * rows on, on the WebAssembly kernel (wasm/solver.ts), which goes column by column and so does
  * not wait on one sum at a time, with the same operations in the same order for each y_i.
  */
 export function forwardSubstitute(l: ArrayLike<number>, n: number, v: ArrayLike<number>, out: Float64Array, vOffset = 0): Float64Array {

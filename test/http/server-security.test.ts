@@ -38,6 +38,8 @@ describe('who may reach a service without keys', () => {
     const server = await startServer(config({ host: '127.0.0.1' }), { logger });
     await server.close();
     expect(lines.some((l) => JSON.parse(l).level === 40 && /no API keys exist/.test(JSON.parse(l).msg))).toBe(true);
+    // and which kernel the forward pass runs on
+    expect(lines.map((l) => JSON.parse(l) as { kernel?: string }).find((l) => l.kernel !== undefined)?.kernel).toBe('webassembly-simd');
   });
 
   it('plumbline serve --host 0.0.0.0 exits 2 and says how to go on', () => {

@@ -1,7 +1,8 @@
 import { describe, expect, it } from 'vitest';
 import { ACTIVATIONS, type ActivationName, activateInPlace } from '../../src/core/activations.js';
 import type { Network } from '../../src/core/network.js';
-import { createFastForwardPass, createWasmForwardPass, wasmKernelAvailable } from '../../src/core/wasm-dense.js';
+import { createFastForwardPass, createWasmForwardPass } from '../../src/core/wasm/forward-pass.js';
+import { kernelStatus } from '../../src/core/wasm/module.js';
 
 // The WebAssembly kernel against the plain definition, y = f(b[o] + x[r,0] W[o,0] + x[r,1] W[o,1] + ...)
 // summed in order of i, computed here one value at a time: the same bits are required, not a tolerance.
@@ -53,7 +54,11 @@ const sameBits = (a: Float64Array, b: Float64Array, what: string): void => {
   for (let i = 0; i < a.length; i++) if (!Object.is(a[i], b[i])) expect.fail(`${what}: index ${i} is ${a[i]}, the plain loop gives ${b[i]}`);
 };
 
-describe.skipIf(!wasmKernelAvailable())('the WebAssembly dense kernel', () => {
+describe('the WebAssembly dense kernel', () => {
+  it('builds on this runtime: Node 20 and later have WebAssembly SIMD, so a kernel that does not build is a fault, not a fallback', () => {
+    expect(kernelStatus()).toEqual({ kind: 'webassembly-simd' });
+  });
+
   it('gives the same bits as the plain loop for every shape, remainder of rows and outputs, and activation', () => {
     const shapes = [[1, 1], [3, 5], [2, 3, 2], [10, 64, 64, 5], [7, 13, 6, 3], [32, 256, 10], [5, 9, 17, 4]];
     for (const shape of shapes) {
