@@ -6,6 +6,7 @@ import { GENESIS, rowBytes } from '../../src/store/chain.js';
 import type { ScoredRow } from '../../src/store/request-log.js';
 import { type Store, openStore } from '../../src/store/store.js';
 import { tempDir } from '../helpers/datasets.js';
+import chainReference from '../fixtures/chain-reference.json' with { type: 'json' };
 
 const tmp = tempDir();
 afterAll(() => tmp.remove());
@@ -53,6 +54,43 @@ beforeEach(async () => {
 afterEach(() => store.close());
 
 describe('hash chain of the audit log', () => {
+  it('has the byte layout docs/security.md documents: rows written through the log get the hashes Python computes from that layout (test/fixtures/make-chain-fixture.py, struct and hashlib)', async () => {
+    const fresh = openStore(tmp.file('chain-reference.db'), OPTIONS);
+    const first = chainReference.rows[0]!.row;
+    fresh.recordModel({ sha256: first.model_sha256, name: first.model_name, version: first.model_version, features: first.features.map((_, j) => ({ name: `f${j}`, unit: '' })), classes: first.probabilities.map((_, k) => `c${k}`) });
+    try {
+      for (const { row: r } of chainReference.rows) {
+        await fresh.log.append([
+          {
+            requestId: r.request_id,
+            batchId: r.batch_id,
+            receivedAt: r.received_at,
+            model: { sha256: r.model_sha256, name: r.model_name, version: r.model_version },
+            features: r.features,
+            tags: r.tags === null ? null : (JSON.parse(r.tags) as Record<string, string>),
+            label: r.label,
+            probabilities: r.probabilities,
+            margin: r.margin,
+            inDomain: r.in_domain === 1,
+            review: r.review === 1,
+            domain: JSON.parse(r.domain) as ScoredRow['domain'],
+            latencyUs: r.latency_us,
+            keyLabel: r.key_label,
+          },
+        ]);
+      }
+      const stored = new BetterSqlite3(fresh.file, { readonly: true }).prepare('SELECT * FROM scored_requests ORDER BY seq').all() as Array<Parameters<typeof rowBytes>[0] & { chain_hash: Buffer }>;
+      expect(stored).toHaveLength(chainReference.rows.length);
+      stored.forEach((r, i) => {
+        const want = chainReference.rows[i]!;
+        expect(rowBytes(r).toString('hex')).toBe(want.bytes);
+        expect(r.chain_hash.toString('hex')).toBe(want.chain_hash);
+      });
+    } finally {
+      fresh.close();
+    }
+  });
+
   it('chains every row: hash_i = SHA-256(hash_{i-1} || bytes_i), from 32 zero bytes', () => {
     const rows = new BetterSqlite3(file, { readonly: true }).prepare('SELECT * FROM scored_requests ORDER BY seq').all() as Array<Parameters<typeof rowBytes>[0] & { chain_hash: Buffer }>;
     expect(rows.map((r) => r.seq)).toEqual(Array.from({ length: 20 }, (_, i) => i + 1));
