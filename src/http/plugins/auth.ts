@@ -81,7 +81,7 @@ async function auth(app: FastifyInstance, options: AuthOptions): Promise<void> {
   });
 
   app.decorateRequest('apiKey', null);
-  app.addHook('onRequest', async (req: FastifyRequest) => {
+  const check = (req: FastifyRequest): void => {
     const path = req.url.split('?')[0] ?? '';
     // A route says what it needs; a path no route has is treated as needing a reader key.
     const access: Access = req.routeOptions.config.access ?? (path.startsWith('/v1/') ? 'reader' : 'public');
@@ -112,6 +112,16 @@ async function auth(app: FastifyInstance, options: AuthOptions): Promise<void> {
       touched.set(key.id, t);
       options.keys.touch(key.id, t);
     }
+  };
+  // The callback form: nothing here waits, and an async hook costs a promise on every request.
+  app.addHook('onRequest', (req, _reply, done) => {
+    try {
+      check(req);
+    } catch (err) {
+      done(err as Error);
+      return;
+    }
+    done();
   });
 }
 

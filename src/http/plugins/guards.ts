@@ -9,11 +9,14 @@ export interface GuardOptions {
   requestsPerMinute: number;
   /** Refuse with 503 while the mean event-loop delay is above this many ms; 0 never. */
   eventLoopDelayMs: number;
+  /** Whether the server is shutting down: answers then ask the client to close the connection. */
+  closing?: () => boolean;
 }
 
 const isPublic = (req: FastifyRequest): boolean => req.routeOptions.config.access === 'public';
 
 // Our pages hold inline CSS and no script; nothing else may load or frame them.
+const SECURITY_HEADERS = { 'x-content-type-options': 'nosniff', 'referrer-policy': 'no-referrer', 'x-frame-options': 'DENY' } as const;
 const HTML_POLICY = "default-src 'none'; style-src 'unsafe-inline'; img-src data:; base-uri 'none'; form-action 'none'; frame-ancestors 'none'";
 
 /**
@@ -54,13 +57,13 @@ async function guards(app: FastifyInstance, options: GuardOptions): Promise<void
         }),
     });
   }
-  app.addHook('onSend', async (_req, reply, payload) => {
-    reply.header('x-content-type-options', 'nosniff');
-    reply.header('referrer-policy', 'no-referrer');
-    reply.header('x-frame-options', 'DENY');
+  const closing = options.closing ?? (() => false);
+  app.addHook('onSend', (_req, reply, payload, done) => {
+    reply.headers(SECURITY_HEADERS);
     if (!reply.hasHeader('cache-control')) reply.header('cache-control', 'no-store');
     if (String(reply.getHeader('content-type') ?? '').startsWith('text/html')) reply.header('content-security-policy', HTML_POLICY);
-    return payload;
+    if (closing()) reply.header('connection', 'close');
+    done(null, payload);
   });
 }
 
