@@ -9,7 +9,7 @@ import { join } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import { scoreAction } from '../src/cli/actions/score.js';
 import type { Network } from '../src/core/network.js';
-import { createFastForwardPass } from '../src/core/wasm-dense.js';
+import { createFastForwardPass } from '../src/core/wasm/forward-pass.js';
 import { createRng } from '../src/core/rng.js';
 import { sink } from '../test/helpers/sink.js';
 import { SHAPES, type ShapeName, benchModels, shapeLabel, vector } from './lib/bundles.js';

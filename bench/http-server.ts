@@ -23,6 +23,8 @@ const server = await startServer(config, {
   logger: pino({ level: 'error' }, process.stderr),
   beforeListen: (app) => {
     app.post('/bench/bare', { config: { access: 'scorer' } }, async (_req, reply) => reply.type('application/json; charset=utf-8').send(bare));
+    // The answer's bytes, for the bare fastify app of bench/bare-fastify.ts to send too.
+    app.get('/bench/answer', { config: { access: 'public' } }, async (_req, reply) => reply.type('application/json; charset=utf-8').send(bare));
   },
 });
 // The same bytes the score route sends, taken from a real answer.
