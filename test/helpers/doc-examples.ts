@@ -1,4 +1,4 @@
-import { exec } from 'node:child_process';
+import { spawn } from 'node:child_process';
 import { appendFileSync, readFileSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
 
@@ -80,16 +80,45 @@ export function examplesOf(md: string): Example[] {
 
 export interface RunResult {
   code: number;
-  /** Standard output and standard error as they were interleaved. */
   output: string;
 }
 
-/** Runs a doc's command with sh in the checkout, `npx tsx src/cli/main.ts` as written or not. */
-export function runCommand(command: string, env: Record<string, string> = {}, timeoutMs = 60_000): Promise<RunResult> {
+/**
+ * Runs a doc's command with sh in the checkout, `npx tsx src/cli/main.ts` as written or not;
+ * the output is standard output and standard error as they were interleaved. A
+ * command that serves until stopped is given `until`: it is stopped (SIGTERM) once its output
+ * matches, and the output so far is returned.
+ */
+export function runCommand(command: string, env: Record<string, string> = {}, options: { timeoutMs?: number; until?: RegExp | undefined; stdoutOnly?: boolean } = {}): Promise<RunResult> {
+  const { timeoutMs = 60_000, until, stdoutOnly = false } = options;
   const script = command.replaceAll('npx tsx src/cli/main.ts', `${process.execPath} --import tsx ${CLI_MAIN}`);
   return new Promise((resolve) => {
-    exec(`exec 2>&1\n${script}`, { cwd: REPO, env: { ...process.env, ...env }, timeout: timeoutMs, maxBuffer: 64 << 20, shell: '/bin/sh' }, (err, stdout) => {
-      resolve({ code: err ? ((err as { code?: number }).code ?? 1) : 0, output: stdout });
+    const child = spawn('/bin/sh', ['-c', stdoutOnly ? script : `exec 2>&1\n${script}`], { cwd: REPO, env: { ...process.env, ...env }, stdio: ['ignore', 'pipe', 'ignore'], detached: true });
+    let output = '';
+    const timer = setTimeout(() => stop(), timeoutMs);
+    const stop = (): void => {
+      try {
+        if (child.pid !== undefined) process.kill(-child.pid, 'SIGTERM');
+      } catch {
+        // already gone
+      }
+    };
+    let done = false;
+    child.stdout.on('data', (d: Buffer) => {
+      if (done) return;
+      output += d.toString();
+      const m = until?.exec(output);
+      if (m) {
+        // What it printed up to the end of that line; what stopping it prints is not the example's.
+        const end = output.indexOf('\n', m.index);
+        output = end < 0 ? output : output.slice(0, end + 1);
+        done = true;
+        stop();
+      }
+    });
+    child.on('close', (code) => {
+      clearTimeout(timer);
+      resolve({ code: code ?? 1, output });
     });
   });
 }
@@ -104,13 +133,15 @@ const UUID = /[0-9a-f]{8}-[0-9a-f]{4}-[0-9a-f]{4}-[0-9a-f]{4}-[0-9a-f]{12}/;
 const NUMBER = '-?\\d+(?:\\.\\d+)?(?:[eE][-+]?\\d+)?';
 const JSON_SCALAR = '"(?:[^"\\\\]|\\\\.)*"|null|true|false|-?\\d+(?:\\.\\d+)?(?:[eE][-+]?\\d+)?';
 
-/** Text with "..." as a gap and ids as varying values. */
-function textParts(text: string, parts: Part[]): void {
-  const re = new RegExp(`\\.\\.\\.|${UUID.source}`, 'g');
+/** Text with "..." as a gap, and ids (and whatever else varies) as varying values. */
+function textParts(text: string, parts: Part[], varying: readonly RegExp[] = []): void {
+  const kinds = [UUID, ...varying];
+  const re = new RegExp(`\\.\\.\\.|${kinds.map((k) => `(${k.source})`).join('|')}`, 'g');
   let at = 0;
   for (const m of text.matchAll(re)) {
     if (m.index > at) parts.push({ kind: 'text', text: text.slice(at, m.index) });
-    parts.push(m[0] === '...' ? { kind: 'any' } : { kind: 'vary', doc: m[0], pattern: UUID.source });
+    const kind = kinds[m.slice(1).findIndex((g) => g !== undefined)] ?? UUID;
+    parts.push(m[0] === '...' ? { kind: 'any' } : { kind: 'vary', doc: m[0], pattern: kind.source });
     at = m.index + m[0].length;
   }
   if (at < text.length) parts.push({ kind: 'text', text: text.slice(at) });
@@ -120,7 +151,7 @@ function textParts(text: string, parts: Part[]): void {
  * JSON as a doc writes it: whitespace between tokens dropped, each number a part of its own,
  * the value of a varying key matching any value.
  */
-function jsonParts(text: string, varying: ReadonlySet<string>): Part[] {
+function jsonParts(text: string, varying: ReadonlySet<string>, varyingText: readonly RegExp[] = []): Part[] {
   const parts: Part[] = [];
   let i = 0;
   let pendingKey: string | null = null;
@@ -141,7 +172,7 @@ function jsonParts(text: string, varying: ReadonlySet<string>): Part[] {
       if (!isKey && pendingKey !== null && varying.has(pendingKey)) {
         parts.push({ kind: 'vary', doc: raw.slice(1, -1), pattern: JSON_SCALAR });
       } else {
-        textParts(raw, parts);
+        textParts(raw, parts, varyingText);
       }
       pendingKey = isKey ? raw.slice(1, -1) : null;
       continue;
@@ -207,6 +238,8 @@ export interface QuoteOptions {
   seen?: Map<string, string>;
   /** Header names whose values change from run to run. */
   varyingHeaders?: readonly string[];
+  /** Patterns of text (in plain output, or inside JSON strings) whose values change from run to run. */
+  varyingText?: readonly RegExp[];
 }
 
 export const DEFAULT_VARYING = ['request_id', 'batch_id', 'id', 'received_at', 'loaded_at', 'created_at', 'latency_ms', 'next_cursor', 'raised_at', 'cleared_at'];
@@ -240,9 +273,9 @@ export function quoteProblems(actual: string, quoted: string, options: QuoteOpti
     }
   }
   const json = /^[[{]/.test(docBody.trimStart());
-  const parts = json ? jsonParts(docBody, new Set(options.varying ?? DEFAULT_VARYING)) : (() => {
+  const parts = json ? jsonParts(docBody, new Set(options.varying ?? DEFAULT_VARYING), options.varyingText) : (() => {
     const p: Part[] = [];
-    textParts(docBody.split('\n').map((l) => l.trimEnd()).join('\n'), p);
+    textParts(docBody.split('\n').map((l) => l.trimEnd()).join('\n'), p, options.varyingText);
     return p;
   })();
   const text = json ? compactJson(body) : body.split('\n').map((l) => l.trimEnd()).join('\n').replace(/\n+$/, '');
@@ -285,7 +318,7 @@ export function quoteProblems(actual: string, quoted: string, options: QuoteOpti
         const d = decimals(p.doc);
         const ok = Number(got) === Number(p.doc) || (options.rounded === true && d !== null && Math.abs(Number(got) - Number(p.doc)) <= 0.5 * 10 ** -d * (1 + 1e-9));
         if (!ok) problems.push(`the doc says ${p.doc} where the output has ${got}, in ${JSON.stringify(shown.slice(0, 120))}`);
-      } else if (seen.has(p.doc) && seen.get(p.doc) !== value && p.pattern === UUID.source) {
+      } else if (seen.has(p.doc) && seen.get(p.doc) !== value && p.pattern !== JSON_SCALAR) {
         problems.push(`the doc shows the id ${p.doc} twice, but the output has ${seen.get(p.doc)} and then ${value}`);
       } else {
         seen.set(p.doc, value);
