@@ -11,7 +11,7 @@ import { replayDemoDay } from '../../src/demo/replay.js';
 import { startServer } from '../../src/http/server.js';
 import { tempDir } from '../helpers/datasets.js';
 import { DAY_START, DEMO_DIR, demoBundle } from '../helpers/demo.js';
-import { type Example, dumpOutput, examplesOf, fencedBlocks, quoteProblems, readDoc, runCommand } from '../helpers/doc-examples.js';
+import { type Example, asOfDocDay, dumpOutput, examplesOf, fencedBlocks, quoteProblems, readDoc, runCommand } from '../helpers/doc-examples.js';
 import { sink } from '../helpers/sink.js';
 
 // The examples of docs/cli.md, run as written (through `node --import tsx src/cli/main.ts`) on
@@ -53,12 +53,7 @@ function fixPorts(command: string): string {
   return command.replace('--port 18401', '--port 0');
 }
 function docDates(output: string): string {
-  const today = Math.floor(Date.now() / DAY) * DAY;
-  return output
-    .replaceAll(new Date(today - DAY).toISOString().slice(0, 10), '2026-11-30')
-    .replaceAll(new Date(today).toISOString().slice(0, 10), '2026-12-01')
-    .replace(/http:\/\/127\.0\.0\.1:\d+/g, (m) => (output.includes('plumbline demo:') ? 'http://127.0.0.1:18401' : 'http://127.0.0.1:8080'))
-    .replace(/\/tmp\/plumbline-demo-\w+\//g, '/tmp/plumbline-demo-5aJVeG/');
+  return asOfDocDay(output, output.includes('plumbline demo:') ? 'http://127.0.0.1:18401' : 'http://127.0.0.1:8080');
 }
 
 const isAudit = (e: Example) => e.section.startsWith('plumbline audit verify');

@@ -357,3 +357,17 @@ export function dumpOutput(doc: string, e: Example, output: string): void {
   const file = process.env.DOCS_DUMP;
   if (file) appendFileSync(file, `==== ${doc} line ${e.line} (${e.section})\n$ ${e.command}\n${output}\n`);
 }
+
+/**
+ * Output of a run made today, written as the docs write it: "yesterday" is 2026-11-30 and today
+ * 2026-12-01, the server's address is the doc's, and a demo's temporary folder is the doc's.
+ */
+export function asOfDocDay(output: string, docUrl: string): string {
+  const DAY = 86_400_000;
+  const today = Math.floor(Date.now() / DAY) * DAY;
+  return output
+    .replaceAll(new Date(today - DAY).toISOString().slice(0, 10), '2026-11-30')
+    .replaceAll(new Date(today).toISOString().slice(0, 10), '2026-12-01')
+    .replace(/http:\/\/127\.0\.0\.1:\d+/g, docUrl)
+    .replace(/\/tmp\/plumbline-demo-\w+\//g, '/tmp/plumbline-demo-5aJVeG/');
+}
