@@ -89,11 +89,11 @@ export interface RunResult {
  * command that serves until stopped is given `until`: it is stopped (SIGTERM) once its output
  * matches, and the output so far is returned.
  */
-export function runCommand(command: string, env: Record<string, string> = {}, options: { timeoutMs?: number; until?: RegExp | undefined; stdoutOnly?: boolean } = {}): Promise<RunResult> {
-  const { timeoutMs = 60_000, until, stdoutOnly = false } = options;
+export function runCommand(command: string, env: Record<string, string> = {}, options: { timeoutMs?: number; until?: RegExp | undefined; stdoutOnly?: boolean; stderrOnly?: boolean } = {}): Promise<RunResult> {
+  const { timeoutMs = 60_000, until, stdoutOnly = false, stderrOnly = false } = options;
   const script = command.replaceAll('npx tsx src/cli/main.ts', `${process.execPath} --import tsx ${CLI_MAIN}`);
   return new Promise((resolve) => {
-    const child = spawn('/bin/sh', ['-c', stdoutOnly ? script : `exec 2>&1\n${script}`], { cwd: REPO, env: { ...process.env, ...env }, stdio: ['ignore', 'pipe', 'ignore'], detached: true });
+    const child = spawn('/bin/sh', ['-c', stdoutOnly ? script : stderrOnly ? `exec 2>&1 >/dev/null\n${script}` : `exec 2>&1\n${script}`], { cwd: REPO, env: { ...process.env, ...env }, stdio: ['ignore', 'pipe', 'ignore'], detached: true });
     let output = '';
     const timer = setTimeout(() => stop(), timeoutMs);
     const stop = (): void => {
