@@ -1,4 +1,4 @@
-import { afterAll, describe, expect, it } from 'vitest';
+import { afterAll, describe, it } from 'vitest';
 import { tempDir } from '../helpers/datasets.js';
 import { dumpOutput, examplesOf, fencedBlocks, quoteProblems, readDoc, runCommand } from '../helpers/doc-examples.js';
 
@@ -18,21 +18,24 @@ const DBS: Array<[string, string]> = [
 const toReal = (s: string): string => [...FILES.map((f) => [f, tmp.file(f)] as [string, string]), ...DBS].reduce((t, [doc, real]) => t.replace(new RegExp(`(?<![\\w/.-])${doc.replace(/\./g, '\\.')}`, 'g'), real), s);
 const toDoc = (s: string): string => [...FILES.map((f) => [f, tmp.file(f)] as [string, string]), ...DBS].reduce((t, [doc, real]) => t.replaceAll(real, doc), s);
 
-// The example file, as the doc shows it.
+// The example file, as the doc shows it, and each file the doc shows with cat, with what cat shows.
 tmp.file('plumbline.json', fencedBlocks(DOC).find((b) => b.lang === 'json' && b.body.includes('"models_dir"'))?.body ?? '');
+for (const e of examplesOf(DOC)) {
+  const cat = /^cat (\S+)$/.exec(e.command);
+  if (cat) tmp.file(cat[1] as string, `${e.output}\n`);
+}
 
-describe('docs/configuration.md', () => {
+// Each example starts its own process on its own files: they run side by side.
+describe.concurrent('docs/configuration.md', () => {
   for (const e of examplesOf(DOC)) {
-    it(`line ${e.line}: ${e.command.split('\n')[0]?.slice(0, 100)}`, async () => {
-      // A file the doc shows with cat is made with what cat shows.
+    it(`line ${e.line}: ${e.command.split('\n')[0]?.slice(0, 100)}`, async ({ expect }) => {
       const cat = /^cat (\S+)$/.exec(e.command);
-      if (cat) tmp.file(cat[1] as string, `${e.output}\n`);
       const serving = e.output.includes('"msg":"serving"');
       const command = toReal(e.command).replace('PLUMBLINE_PORT=18128', 'PLUMBLINE_PORT=0');
       // A refusal is written to standard error, and the doc shows that; the database of a command
       // that names none is a temporary one, not var/plumbline.db in the checkout.
       const refusal = /^(plumbline|error):/.test(e.output);
-      const run = await runCommand(command, { PLUMBLINE_DB: tmp.file('default.db') }, { until: serving ? /"msg":"serving"/ : undefined, stderrOnly: refusal });
+      const run = await runCommand(command, { PLUMBLINE_DB: tmp.file(`default-${e.line}.db`) }, { until: serving ? /"msg":"serving"/ : undefined, stderrOnly: refusal });
       const output = toDoc(run.output).replace(/http:\/\/127\.0\.0\.1:\d+/g, 'http://127.0.0.1:18128');
       dumpOutput('configuration.md', e, output);
       const problems = quoteProblems(output, e.output);
@@ -41,7 +44,7 @@ describe('docs/configuration.md', () => {
     });
   }
 
-  it('shows how a configuration file that cannot be used at all is refused', async () => {
+  it('shows how a configuration file that cannot be used at all is refused', async ({ expect }) => {
     tmp.file('bad2.json', '{"port": 8080, port: 1}');
     tmp.file('bad3.json', '[1, 2]');
     const block = fencedBlocks(DOC).find((b) => b.body.includes('config file missing.json cannot be read'));
