@@ -141,4 +141,77 @@ describe('docs/api.md', () => {
     expect(counters.length).toBeGreaterThan(5);
     for (const line of counters) expect(lines, line).toContain(line);
   });
+  it('gives, in its table of refused scores, the status and errors the service answers', async () => {
+    // Each row of the table, with the body it abbreviates.
+    const shot = [232.1, 53.8, 923, 478, 3.48, 14.18, 102, 5.4, 23.7, 47.93];
+    const byName = Object.fromEntries(['melt_temp_c', 'mould_temp_c', 'injection_pressure_bar', 'hold_pressure_bar', 'hold_time_s', 'cooling_time_s', 'screw_speed_rpm', 'cushion_mm', 'cycle_time_s', 'shot_weight_g'].map((f, i) => [f, shot[i]]));
+    const rows: Array<[string, string, string?]> = [
+      ['`{"features": [1,2,3]}`', '{"features": [1,2,3]}'],
+      ['`{"features": {"melt_temp_c": "hot", ...}}`', JSON.stringify({ features: { ...byName, melt_temp_c: 'hot' } })],
+      ['`{"features": [..., 2e15]}` (10th value)', JSON.stringify({ features: [...shot.slice(0, 9), 2e15] })],
+      ['`{"features": [...], "tag": {}}`', JSON.stringify({ features: shot, tag: {} })],
+      ['`{"features": [...], "tags": {"line": 3}}`', JSON.stringify({ features: shot, tags: { line: 3 } })],
+      ['`{"features": [...], "tags": {"a/b~c": "<257 characters>"}}`', JSON.stringify({ features: shot, tags: { 'a/b~c': 'x'.repeat(257) } })],
+      ['17 tags', JSON.stringify({ features: shot, tags: Object.fromEntries(Array.from({ length: 17 }, (_, i) => [`t${i}`, 'v'])) })],
+      ['`{}`', '{}'],
+      ['`[]`', '[]'],
+      ['`{"features": [1,2`', '{"features": [1,2'],
+      ['a 2 MB body', JSON.stringify({ features: shot, pad: 'x'.repeat(2_000_000) })],
+      ['`content-type: text/plain`', JSON.stringify({ features: shot }), 'text/plain'],
+    ];
+    const table = DOC.split('\n').filter((l) => l.startsWith('| `{') || l.startsWith('| `[]') || l.startsWith('| 17 tags') || l.startsWith('| a 2 MB') || l.startsWith('| `content-type'));
+    expect(table).toHaveLength(rows.length);
+    for (const [cell, body, type] of rows) {
+      const line = table.find((l) => l.startsWith(`| ${cell} |`));
+      expect(line, cell).toBeDefined();
+      const res = await fetch(`${servers.open.server.url}/v1/models/moulding-quality/score`, { method: 'POST', headers: { 'content-type': type ?? 'application/json' }, body });
+      const problem = (await res.json()) as { type: string; errors?: Array<Record<string, string>> };
+      const code = problem.type.replace('urn:plumbline:problem:', '');
+      const [, status, errors] = (line as string).split(' | ');
+      expect(status, cell).toBe(code === 'invalid-request' || code === 'unsupported-media-type' ? String(res.status) : `${res.status} \`${code}\``);
+      const e = problem.errors?.[0];
+      const shown = e === undefined ? 'none' : e.pointer !== undefined ? `\`${e.pointer}\`: "${e.detail}"` : `\`header\` \`${e.header}\`: "${e.detail}"`;
+      expect(errors?.replace(/ \|$/, ''), cell).toBe(shown);
+    }
+  });
+
+  it('gives, in its table of refused audit-log queries, the errors the service answers', async () => {
+    const table = DOC.split('\n').filter((l) => /^\| `(from|tag|limit|in_domain|cursor|modle)=/.test(l));
+    expect(table.length).toBe(7);
+    for (const line of table) {
+      const [queries, errors] = line.replace(/^\| /, '').split(' | ');
+      const details: string[] = [];
+      for (const q of [...(queries ?? '').matchAll(/`([^`]+)`/g)].map((m) => m[1] as string)) {
+        const res = await fetch(`${servers.open.server.url}/v1/requests?${q}`);
+        expect(res.status, q).toBe(400);
+        const e = ((await res.json()) as { errors: Array<{ parameter: string; detail: string }> }).errors[0];
+        details.push(`\`${e?.parameter}\`: ${JSON.stringify(e?.detail).replaceAll('|', '\\|')}`);
+      }
+      // One parameter per row; several queries of a row give one detail each (listed once when the same).
+      const unique = [...new Set(details)];
+      const param = unique[0]?.split(':')[0];
+      const expected = `${param}: ${unique.map((d) => d.slice(d.indexOf(': ') + 2)).join(', ')} |`;
+      expect(errors, line).toBe(expected);
+    }
+  });
+  it('gives, in its sentences on other refusals, the errors the service answers', async () => {
+    const section = (heading: string) => DOC.slice(DOC.indexOf(`## ${heading}\n`), DOC.indexOf('\n## ', DOC.indexOf(`## ${heading}\n`) + 4));
+    let checked = 0;
+    for (const [heading, path] of [['GET /v1/drift-reports', '/v1/drift-reports'], ['GET /v1/alerts', '/v1/alerts']] as const) {
+      const text = section(heading).slice(section(heading).indexOf('Other refusals:')).replace(/\s+/g, ' ');
+      for (const m of text.matchAll(/`([a-z_]+=[^`]+)` \(?[^`]*?\)? ?gives `(\w+)`: "((?:[^"\\]|\\.)*)"/g)) {
+        const res = await fetch(`${servers.open.server.url}${path}?${m[1]}`);
+        expect(res.status, m[1]).toBe(400);
+        const e = ((await res.json()) as { errors: Array<{ parameter: string; detail: string }> }).errors[0];
+        expect(`${e?.parameter}: ${e?.detail}`, `${path}?${m[1]}`).toBe(`${m[2]}: ${(m[3] as string).replaceAll('\\"', '"')}`);
+        checked++;
+      }
+    }
+    expect(checked).toBeGreaterThanOrEqual(8);
+    // An empty batch, and one item too many.
+    const batch = (items: unknown[]) => fetch(`${servers.open.server.url}/v1/models/moulding-quality/score-batch`, { method: 'POST', headers: { 'content-type': 'application/json' }, body: JSON.stringify({ items }) }).then((r) => r.json() as Promise<{ errors: Array<{ pointer: string; detail: string }> }>);
+    const empty = (await batch([])).errors[0];
+    const over = (await batch(Array.from({ length: 1001 }, () => ({ features: [1, 2, 3, 4, 5, 6, 7, 8, 9, 10] })))).errors[0];
+    expect(DOC.replace(/\s+/g, ' ')).toContain(`An empty batch gives \`${empty?.pointer}\`: "${empty?.detail}", and 1,001 items give \`${over?.pointer}\`: "${over?.detail}".`);
+  });
 });
