@@ -3,7 +3,7 @@ import type { ModelRegistry } from '../bundle/registry.js';
 import type { Config } from '../config/config.js';
 import type { Metrics } from '../metrics.js';
 import type { Store } from '../store/store.js';
-import { type Evaluator, createEvaluator } from './evaluator.js';
+import { type AlertPhase, type Evaluator, createEvaluator } from './evaluator.js';
 import { type Deliverer, createDeliverer, resolveWebhooks } from './outbox.js';
 
 export interface Alerting {
@@ -14,7 +14,8 @@ export interface Alerting {
   stop(): Promise<void>;
 }
 
-const PHASE = { quiet: 0, holding: 1, raised: 2 } as const;
+/** The phases of an alert rule, with the value plumbline_alert_state reports for each. */
+export const ALERT_PHASES = { quiet: 0, holding: 1, raised: 2 } as const satisfies Record<AlertPhase, number>;
 
 /**
  * Alerts in the server: rules evaluated every alerts.check_every, deliveries attempted every
@@ -29,7 +30,7 @@ export function startAlerting(deps: { config: Config; registry: ModelRegistry; s
     store: store.alerts,
     log,
     onChange: (s) => {
-      metrics.alertState.set({ rule: s.rule, model: s.model }, PHASE[s.phase]);
+      metrics.alertState.set({ rule: s.rule, model: s.model }, ALERT_PHASES[s.phase]);
       metrics.alertSignal.set({ rule: s.rule, model: s.model }, s.value ?? Number.NaN);
     },
   });

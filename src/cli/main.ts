@@ -1,5 +1,5 @@
 #!/usr/bin/env node
-import { Command, CommanderError } from 'commander';
+import { CommanderError } from 'commander';
 import { ExposureError } from '../auth/exposure.js';
 import { OnnxError } from '../io/onnx/index.js';
 import { RegistryError } from '../bundle/registry.js';
@@ -9,32 +9,8 @@ import { MigrationError } from '../store/migrate.js';
 import { StoreIntegrityError } from '../store/store.js';
 import { DataFileError } from '../io/csv.js';
 import { DataFileErrors } from '../io/feature-table.js';
-import { registerAudit } from './commands/audit.js';
-import { registerImport } from './commands/import.js';
-import { registerDemo } from './commands/demo.js';
-import { registerKeys } from './commands/keys.js';
-import { registerDrift } from './commands/drift.js';
-import { registerScore } from './commands/score.js';
-import { registerServe } from './commands/serve.js';
-import { registerTrain } from './commands/train.js';
 import { UsageError } from './io.js';
-
-export function buildProgram(): Command {
-  const program = new Command('plumbline')
-    .description('scoring and audit service for feed-forward classifiers on the plant floor')
-    .showHelpAfterError('(run with --help for usage)')
-    // Before the commands are added, so that they inherit it and errors reach report().
-    .exitOverride();
-  registerServe(program);
-  registerTrain(program);
-  registerImport(program);
-  registerScore(program);
-  registerDrift(program);
-  registerDemo(program);
-  registerKeys(program);
-  registerAudit(program);
-  return program;
-}
+import { buildProgram } from './program.js';
 
 /** Errors a user can act on are printed as one message; anything else is a bug and keeps its stack. */
 function report(err: unknown): number {
