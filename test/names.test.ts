@@ -5,7 +5,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { ALERT_PHASES } from '../src/alerts/runtime.js';
 import { BUNDLE_FORMATS } from '../src/bundle/schema.js';
 import { buildProgram } from '../src/cli/program.js';
-import { configSchema } from '../src/config.js';
+import { configSchema } from '../src/config/config.js';
 import { DETECTORS } from '../src/core/domain/detectors.js';
 import { PROBLEMS } from '../src/errors.js';
 import { createMetrics } from '../src/metrics.js';

@@ -1,6 +1,6 @@
 import { describe, expect, it } from 'vitest';
 import { type AlertFacts, EVENT_SOURCE, alertEvent, describeAlert } from '../../src/alerts/cloudevents.js';
-import { configSchema } from '../../src/config.js';
+import { configSchema } from '../../src/config/config.js';
 import { fencedBlocks, quoteProblems, readDoc } from '../helpers/doc-examples.js';
 
 // docs/alerts.md: its configuration is one the service takes, and the event it shows (from a live

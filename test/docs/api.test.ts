@@ -8,7 +8,7 @@ import { DEFAULT_VARYING, type Example, carry, dumpOutput, examplesOf, fencedBlo
 import { type DocServer, startDocServer } from '../helpers/doc-servers.js';
 import { DAY_START, DEMO_DIR } from '../helpers/demo.js';
 import { sink } from '../helpers/sink.js';
-import { configSchema } from '../../src/config.js';
+import { configSchema } from '../../src/config/config.js';
 
 // Every curl example of docs/api.md, run as written with real curl against real servers on the
 // committed demo bundle, in the order the doc gives them, and held to the output the doc quotes.
@@ -63,7 +63,7 @@ beforeAll(async () => {
   servers.limited = await startDocServer({ keys: true, config: { limits: { requests_per_minute: 3 } } });
   servers.unlogged = await startDocServer({ keys: true, config: { log: { on_error: 'serve' } } });
   // "whose database refused every insert into scored_requests (a trigger made it fail with "disk full")"
-  const raw = new BetterSqlite3(servers.unlogged.server.app.services.config.db);
+  const raw = new BetterSqlite3(servers.unlogged.server.app.config.db);
   raw.exec("CREATE TRIGGER disk_full BEFORE INSERT ON scored_requests BEGIN SELECT RAISE(ABORT, 'disk full'); END");
   raw.close();
   servers.empty = await startDocServer({ models: 'empty' });
@@ -73,8 +73,8 @@ beforeAll(async () => {
   // command line (the day, the day again with --min-rows 5000, and 05:00 to 07:00).
   servers.drift = await startDocServer();
   const app = servers.drift.server.app;
-  await replayDemoDay(app.services.scoring, 'moulding-quality', DEMO_DIR, DAY_START);
-  const db = app.services.config.db;
+  await replayDemoDay(app.scoring, 'moulding-quality', DEMO_DIR, DAY_START);
+  const db = app.config.db;
   const io = { stdout: sink(), stderr: sink(), interactive: false };
   const day = await driftAction({ db, model: 'moulding-quality', from: new Date(DAY_START), to: new Date(DAY_START + DAY), minRows: 30, sampleCap: 10_000 }, io);
   await driftAction({ db, model: 'moulding-quality', from: new Date(DAY_START), to: new Date(DAY_START + DAY), minRows: 5000, sampleCap: 10_000 }, io);

@@ -6,7 +6,7 @@ import { formatMetrics } from '../../src/cli/actions/metrics-table.js';
 import { domainWarnings } from '../../src/cli/actions/bundle-common.js';
 import { createKeyAction } from '../../src/cli/actions/keys.js';
 import { driftAction } from '../../src/cli/actions/drift.js';
-import { configSchema } from '../../src/config.js';
+import { configSchema } from '../../src/config/config.js';
 import { replayDemoDay } from '../../src/demo/replay.js';
 import { startServer } from '../../src/http/server.js';
 import { tempDir } from '../helpers/datasets.js';
@@ -61,8 +61,8 @@ const isKeys = (e: Example) => e.section.startsWith('plumbline keys');
 
 beforeAll(async () => {
   // The demo's audit log, for the drift example: the invented day replayed into a fresh database.
-  const demo = await startServer(configSchema.parse({ port: 0, models_dir: join(DEMO_DIR, 'models'), db: tmp.file('demo.db'), logger: { level: 'silent' }, reports: { schedule: 'off' } }), { logger: pino({ level: 'silent' }), alertTimers: false });
-  await replayDemoDay(demo.app.services.scoring, 'moulding-quality', DEMO_DIR, DAY_START);
+  const demo = await startServer(configSchema.parse({ port: 0, models_dir: join(DEMO_DIR, 'models'), db: tmp.file('demo.db'), logger: { level: 'silent' }, reports: { schedule: 'off' } }), { logger: pino({ level: 'silent' }), timers: false });
+  await replayDemoDay(demo.app.scoring, 'moulding-quality', DEMO_DIR, DAY_START);
   await demo.close();
   // The keys examples: an admin key first, then the doc's scorer key (its own example).
   createKeyAction({ db: tmp.file('plumbline.db'), role: 'admin', label: 'ops' }, quiet());
@@ -80,7 +80,7 @@ async function before(e: Example): Promise<void> {
     // "After the scorer key above had been used once, and the reader key revoked"
     const db = tmp.file('plumbline.db');
     const scorer = seen.get('plk_mBwRXJvIBDs2-njCmrP9R-QRY1JkWiZQC1ssDiPE_QA') as string;
-    const server = await startServer(configSchema.parse({ port: 0, models_dir: join(DEMO_DIR, 'models'), db, logger: { level: 'silent' }, reports: { schedule: 'off' } }), { logger: pino({ level: 'silent' }), alertTimers: false });
+    const server = await startServer(configSchema.parse({ port: 0, models_dir: join(DEMO_DIR, 'models'), db, logger: { level: 'silent' }, reports: { schedule: 'off' } }), { logger: pino({ level: 'silent' }), timers: false });
     const res = await fetch(`${server.url}/v1/models/moulding-quality/score`, { method: 'POST', headers: { 'content-type': 'application/json', authorization: `Bearer ${scorer}` }, body: JSON.stringify({ features: [232.1, 53.8, 923, 478, 3.48, 14.18, 102, 5.4, 23.7, 47.93] }) });
     expect(res.status).toBe(200);
     await server.close();
@@ -88,7 +88,7 @@ async function before(e: Example): Promise<void> {
   if (e.command.includes('audit verify --db var/plumbline.db') && !e.command.includes('--json') && !seen.has('audit-rows')) {
     // "intact: 7 rows": seven answers in the log of the keys examples (one was scored above).
     const db = tmp.file('plumbline.db');
-    const server = await startServer(configSchema.parse({ port: 0, models_dir: join(DEMO_DIR, 'models'), db, auth: 'off', logger: { level: 'silent' }, reports: { schedule: 'off' } }), { logger: pino({ level: 'silent' }), alertTimers: false });
+    const server = await startServer(configSchema.parse({ port: 0, models_dir: join(DEMO_DIR, 'models'), db, auth: 'off', logger: { level: 'silent' }, reports: { schedule: 'off' } }), { logger: pino({ level: 'silent' }), timers: false });
     const rows = readFileSync(join(DEMO_DIR, 'traffic-normal.csv'), 'utf8').trim().split('\n').slice(1, 7);
     for (const r of rows) {
       const res = await fetch(`${server.url}/v1/models/moulding-quality/score`, { method: 'POST', headers: { 'content-type': 'application/json' }, body: JSON.stringify({ features: r.split(',').slice(1, 11).map(Number) }) });

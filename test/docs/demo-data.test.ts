@@ -2,7 +2,7 @@ import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { scoreAction } from '../../src/cli/actions/score.js';
-import type { ScoreResponse } from '../../src/bundle/scorer.js';
+import type { ScoreResponse } from '../../src/contracts/score.js';
 import { tempDir } from '../helpers/datasets.js';
 import { DEMO_DIR, demoBundle } from '../helpers/demo.js';
 import { readDoc } from '../helpers/doc-examples.js';

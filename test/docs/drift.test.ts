@@ -1,7 +1,7 @@
 import BetterSqlite3 from 'better-sqlite3';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { replayDemoDay, type ReplaySummary } from '../../src/demo/replay.js';
-import type { DriftReport } from '../../src/reports/report-types.js';
+import type { DriftReport } from '../../src/contracts/drift-report.js';
 import { DAY_START, DEMO_DIR, demoBundle } from '../helpers/demo.js';
 import { asOfDocDay, dumpOutput, examplesOf, fencedBlocks, quoteProblems, readDoc, runCommand } from '../helpers/doc-examples.js';
 import { type DocServer, startDocServer } from '../helpers/doc-servers.js';
@@ -25,9 +25,9 @@ const pct = (x: number, digits = 1) => `${(100 * x).toFixed(digits)} %`;
 
 beforeAll(async () => {
   svc = await startDocServer();
-  replay = await replayDemoDay(svc.server.app.services.scoring, 'moulding-quality', DEMO_DIR, DAY_START);
-  day = await svc.server.app.services.reports.run('moulding-quality', { from: DAY_START, to: DAY_START + DAY }, 'demo');
-  stuck = await svc.server.app.services.reports.run('moulding-quality', { from: DAY_START + 18 * HOUR, to: DAY_START + 19 * HOUR }, 'request');
+  replay = await replayDemoDay(svc.server.app.scoring, 'moulding-quality', DEMO_DIR, DAY_START);
+  day = await svc.server.app.reports.run('moulding-quality', { from: DAY_START, to: DAY_START + DAY }, 'demo');
+  stuck = await svc.server.app.reports.run('moulding-quality', { from: DAY_START + 18 * HOUR, to: DAY_START + 19 * HOUR }, 'request');
 }, 120_000);
 afterAll(async () => {
   await svc.close();
@@ -95,7 +95,7 @@ describe('docs/drift.md', () => {
 
   it('gives the margins of the day, per stretch of it', () => {
     const m = day.margin;
-    const db = new BetterSqlite3(svc.server.app.services.config.db, { readonly: true });
+    const db = new BetterSqlite3(svc.server.app.config.db, { readonly: true });
     const mean = (fromHour: number, toHour: number) =>
       (db.prepare('SELECT avg(margin) AS m FROM scored_requests WHERE received_at >= ? AND received_at < ?').get(DAY_START + fromHour * HOUR, DAY_START + toHour * HOUR) as { m: number }).m;
     const hot = (db.prepare('SELECT avg(margin) AS m FROM scored_requests WHERE received_at >= ? AND received_at < ? AND NOT (received_at >= ? AND received_at < ?)').get(DAY_START + 12 * HOUR, DAY_START + DAY, DAY_START + 18 * HOUR, DAY_START + 19 * HOUR) as { m: number }).m;

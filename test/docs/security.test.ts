@@ -2,7 +2,7 @@ import { copyFileSync, readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { pino } from 'pino';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { configSchema } from '../../src/config.js';
+import { configSchema } from '../../src/config/config.js';
 import { startServer } from '../../src/http/server.js';
 import { tempDir } from '../helpers/datasets.js';
 import { DEMO_DIR } from '../helpers/demo.js';
@@ -23,7 +23,7 @@ const toDoc = (s: string) => s.replaceAll(DB, 'var/plumbline.db').replaceAll(BAC
 
 beforeAll(async () => {
   // Seven answers in the log, scored on a server without keys (the key is made by the first example).
-  const server = await startServer(configSchema.parse({ port: 0, models_dir: join(DEMO_DIR, 'models'), db: DB, logger: { level: 'silent' }, reports: { schedule: 'off' } }), { logger: pino({ level: 'silent' }), alertTimers: false });
+  const server = await startServer(configSchema.parse({ port: 0, models_dir: join(DEMO_DIR, 'models'), db: DB, logger: { level: 'silent' }, reports: { schedule: 'off' } }), { logger: pino({ level: 'silent' }), timers: false });
   for (const r of readFileSync(join(DEMO_DIR, 'traffic-normal.csv'), 'utf8').trim().split('\n').slice(1, 8)) {
     const res = await fetch(`${server.url}/v1/models/moulding-quality/score`, { method: 'POST', headers: { 'content-type': 'application/json' }, body: JSON.stringify({ features: r.split(',').slice(1, 11).map(Number) }) });
     expect(res.status).toBe(200);

@@ -2,7 +2,7 @@ import { copyFileSync, mkdirSync } from 'node:fs';
 import { join } from 'node:path';
 import { pino } from 'pino';
 import { createKeyAction, revokeKeyAction } from '../../src/cli/actions/keys.js';
-import { configSchema } from '../../src/config.js';
+import { configSchema } from '../../src/config/config.js';
 import { type RunningServer, startServer } from '../../src/http/server.js';
 import { tempDir } from './datasets.js';
 import { sink } from './sink.js';
@@ -45,7 +45,7 @@ export async function startDocServer(options: { config?: Record<string, unknown>
     if (options.models === 'copy') copyFileSync(new URL('../../demo-data/models/moulding-quality.bundle.json', import.meta.url), join(models, 'moulding-quality.bundle.json'));
   }
   const config = configSchema.parse({ port: 0, models_dir: models, db, logger: { level: 'silent' }, reports: { schedule: 'off' }, ...options.config });
-  const server = await startServer(config, { logger: pino({ level: 'silent' }), alertTimers: false });
+  const server = await startServer(config, { logger: pino({ level: 'silent' }), timers: false });
   return {
     server,
     env,
