@@ -45,7 +45,7 @@ function column(values: Float64Array, rows: number, width: number, j: number): F
  * Builds a drift report for one bundle over [from, to) by streaming its logged rows once: memory
  * stays bounded by the reservoir whatever the window. Each feature is compared with the bundle's
  * training reference (PSI on its decile bins, KS and Wasserstein-1 against its reference sample,
- * Benjamini-Hochberg across features); predictions with the validation split's; the
+ * Benjamini-Hochberg across features); predictions with the held-out answers'; the
  * out-of-domain rate with the false-alarm rate measured when the flag was calibrated.
  */
 export function buildDriftReport(

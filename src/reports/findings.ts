@@ -106,7 +106,7 @@ export function writeFindings(r: DriftReport, options: ReportOptions): { verdict
     raise(shifted ? 'shifted' : 'watch');
     found.push({
       severity: shifted ? 60 : 30,
-      text: `Predicted classes differ from the validation split: ${moved}; chi-square p ${formatP(pr.chi_square.p_value)}, Jensen-Shannon distance ${(pr.js_distance ?? 0).toFixed(3)}.`,
+      text: `Predicted classes differ from the held-out answers at training: ${moved}; chi-square p ${formatP(pr.chi_square.p_value)}, Jensen-Shannon distance ${(pr.js_distance ?? 0).toFixed(3)}.`,
     });
   }
 
@@ -115,7 +115,7 @@ export function writeFindings(r: DriftReport, options: ReportOptions): { verdict
     raise('watch');
     found.push({
       severity: 25,
-      text: `Margins (top-1 minus top-2 probability) are ${m.mean < m.reference_mean ? 'lower' : 'higher'} than on the validation split: mean ${m.mean.toFixed(3)} against ${m.reference_mean.toFixed(3)}; KS p ${formatP(m.ks.p_value)}; ${pct(m.review_rate ?? 0)} of answers were marked for review.`,
+      text: `Margins (top-1 minus top-2 probability) are ${m.mean < m.reference_mean ? 'lower' : 'higher'} than on the held-out answers at training: mean ${m.mean.toFixed(3)} against ${m.reference_mean.toFixed(3)}; KS p ${formatP(m.ks.p_value)}; ${pct(m.review_rate ?? 0)} of answers were marked for review.`,
     });
   }
 

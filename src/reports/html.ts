@@ -85,7 +85,7 @@ function histogram(f: FeatureDrift): string {
   return svg(`histogram-${f.name}`, `${f.name}: training and window shares per training decile bin`, w, h, bars + axis);
 }
 
-/** Predicted-class shares, validation split beside window. */
+/** Predicted-class shares, the held-out answers at training beside the window. */
 function classChart(r: DriftReport): string {
   const classes = Object.keys(r.predictions.fractions);
   const w = 760;
@@ -102,7 +102,7 @@ function classChart(r: DriftReport): string {
       return `<rect x="${x0.toFixed(1)}" y="${y(a).toFixed(1)}" width="${bw.toFixed(1)}" height="${(h - 30 - y(a)).toFixed(1)}" fill="${COLOURS.reference}"/><rect x="${(x0 + bw + 2).toFixed(1)}" y="${y(b).toFixed(1)}" width="${bw.toFixed(1)}" height="${(h - 30 - y(b)).toFixed(1)}" fill="${COLOURS.window}"/><text x="${(x0 + bw).toFixed(1)}" y="${h - 14}" font-size="11" text-anchor="middle">${esc(c)}</text><text x="${(x0 + bw + 2 + bw / 2).toFixed(1)}" y="${(y(b) - 3).toFixed(1)}" font-size="9" text-anchor="middle">${pct(b)}</text>`;
     })
     .join('');
-  return svg('classes', 'predicted-class shares on the validation split and in the window', w, h, `<line x1="6" y1="${h - 30}" x2="${w - 6}" y2="${h - 30}" stroke="${COLOURS.ink}"/>${bars}`);
+  return svg('classes', 'predicted-class shares of the held-out answers at training and in the window', w, h, `<line x1="6" y1="${h - 30}" x2="${w - 6}" y2="${h - 30}" stroke="${COLOURS.ink}"/>${bars}`);
 }
 
 export function renderReportHtml(r: DriftReport): string {
@@ -152,10 +152,10 @@ ${psiChart(r.features)}
 <div class="grid">${histograms}</div>
 <table><thead><tr><th>feature</th><th>unit</th><th class="n">mean</th><th class="n">training mean</th><th class="n">PSI</th><th class="n">KS D</th><th class="n">adjusted p</th><th class="n">W1 (SD)</th><th class="n">outside</th></tr></thead><tbody>${featureRows}</tbody></table>
 <h2>Predicted classes</h2>
-<p class="key"><span style="background:${COLOURS.reference}"></span>validation split <span style="background:${COLOURS.window}"></span>window · chi-square p ${pValue(r.predictions.chi_square.p_value)} · Jensen-Shannon distance ${fixed(r.predictions.js_distance)}</p>
+<p class="key"><span style="background:${COLOURS.reference}"></span>held-out answers at training <span style="background:${COLOURS.window}"></span>window · chi-square p ${pValue(r.predictions.chi_square.p_value)} · Jensen-Shannon distance ${fixed(r.predictions.js_distance)}</p>
 ${classChart(r)}
 <h2>Margin</h2>
-<p>Mean margin (top-1 minus top-2 probability) ${fixed(r.margin.mean)} against ${fixed(r.margin.reference_mean)} on the validation split; KS D ${fixed(r.margin.ks.d)}, p ${pValue(r.margin.ks.p_value)}.</p>
+<p>Mean margin (top-1 minus top-2 probability) ${fixed(r.margin.mean)} against ${fixed(r.margin.reference_mean)} on the held-out answers at training; KS D ${fixed(r.margin.ks.d)}, p ${pValue(r.margin.ks.p_value)}.</p>
 <footer>PSI: population stability index on the training decile bins (bands, common practice: below 0.1 stable, 0.1–0.25 watch, 0.25 and above shifted). KS: two-sample Kolmogorov-Smirnov against the bundle's reference sample, p-values adjusted across features by Benjamini-Hochberg. W1: Wasserstein-1 distance in training standard deviations. Out-of-domain rate with its Wilson interval, tested (exact one-sided binomial) against the upper end of the 95% Clopper-Pearson interval of the false-alarm rate measured when the flag was calibrated.${r.sample.reservoir ? ` KS and W1 use a seeded uniform sample of ${r.sample.cap} rows.` : ''} This report is decision support, not a safety function.</footer>
 </body></html>
 `;

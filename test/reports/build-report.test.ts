@@ -55,7 +55,7 @@ describe('drift report over the invented demo day (normal morning, resin-lot cha
     expect(report.verdict).toBe('shifted');
   });
 
-  it('compares predicted classes with the validation split: more flash after the hotter barrel', () => {
+  it('compares predicted classes with the held-out answers at training: more flash after the hotter barrel', () => {
     expect(report.predictions.fractions.flash!).toBeGreaterThan(2 * report.predictions.reference_fractions.flash!);
     expect(report.predictions.chi_square.p_value).toBeLessThan(1e-10);
     expect(report.predictions.js_distance!).toBeGreaterThan(0.05);
