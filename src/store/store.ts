@@ -10,7 +10,7 @@ import { type Checkpointer, startCheckpointer } from './checkpointer.js';
 import { type DriftStore, createDriftStore } from './drift-store.js';
 import { type ModelRecord, recordModel } from './models-table.js';
 import { type RequestLog, type WriterOptions, createRequestLog } from './request-log.js';
-import { type RequestFilter, type RequestPage, createRequestQuery } from './request-query.js';
+import { type LoggedRequest, type RequestFilter, type RequestPage, createRequestLookup, createRequestQuery } from './request-query.js';
 
 /** Everything the rest of the service may ask of the database; SQL stays behind this. */
 export interface Store {
@@ -28,6 +28,8 @@ export interface Store {
   verifyChain(anchor?: ChainAnchor): ChainVerdict;
   recordModel(m: ModelRecord): void;
   queryRequests(filter: RequestFilter, limit: number, cursor?: string): RequestPage;
+  /** One logged request by its request id, or null. */
+  getRequest(requestId: string): LoggedRequest | null;
   /** Whether a write transaction can be opened now (readiness). */
   isWritable(): boolean;
   /** The background checkpointer's record, when there is one. */
@@ -75,6 +77,7 @@ export function openStore(file: string, options: StoreOptions): Store {
     verifyChain: (anchor) => verifyChain(db, anchor),
     recordModel: (m) => recordModel(db, m),
     queryRequests: query,
+    getRequest: createRequestLookup(db),
     isWritable() {
       if (closed) return false;
       try {
