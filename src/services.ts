@@ -6,6 +6,7 @@ import { createMetrics } from './metrics.js';
 import type { DriftReport } from './reports/report-types.js';
 import { createReportService } from './reports/service.js';
 import { createScoringService } from './scoring/service.js';
+import { createExplanationService } from './scoring/explain.js';
 import type { Store } from './store/store.js';
 
 /** The services the routes call, built once from the configuration, the registry and the store. */
@@ -32,6 +33,7 @@ export function createServices(config: Config, registry: ModelRegistry, store: S
         log?.error({ model, answers, err: err.message }, 'answers served without their audit rows (log.on_error is "serve")');
       },
     }, { onLogError: config.log.on_error }),
+    explanations: createExplanationService(registry, { getRequest: (id) => store.getRequest(id), bundleText: (name, sha256) => store.drift.bundleText(name, sha256) }),
     reports: createReportService(
       store,
       { minRows: config.reports.min_rows, sampleCap: config.reports.sample_cap, seed: 1, worker: options.reportWorker ?? true },

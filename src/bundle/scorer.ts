@@ -6,6 +6,7 @@ import { createFastForwardPass } from '../core/wasm-dense.js';
 import { topTwo } from '../core/softmax.js';
 import { standardizeInto } from '../core/standardize.js';
 import type { LoadedBundle } from './verify.js';
+import type { Explanation } from './explainer.js';
 
 export interface DomainCheck {
   detector: string;
@@ -30,6 +31,8 @@ export interface ScoreResponse {
   margin: number;
   review: boolean;
   domain: { in_domain: boolean; checks: DomainCheck[]; outside: OutsideFeature[] };
+  /** Only when the request asked for it (src/bundle/explainer.ts). */
+  explanation?: Explanation;
 }
 
 /** The network or a detector gave a non-finite value for a row: its values are too extreme to score. */
@@ -41,7 +44,7 @@ export class ScoreOverflowError extends Error {
 }
 
 /** What one scored row comes to, before it is given a request id. */
-export type ScoreOutcome = Omit<ScoreResponse, 'request_id' | 'model'>;
+export type ScoreOutcome = Omit<ScoreResponse, 'request_id' | 'model' | 'explanation'>;
 
 export interface Scorer {
   readonly bundle: LoadedBundle;

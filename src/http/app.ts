@@ -16,6 +16,7 @@ import models from './routes/models.js';
 import alerts from './routes/alerts.js';
 import metrics from './routes/metrics.js';
 import reports from './routes/reports.js';
+import explanations from './routes/explanations.js';
 import requests from './routes/requests.js';
 import scoring from './routes/scoring.js';
 
@@ -173,6 +174,7 @@ export async function buildApp(svc: Services, options: AppOptions = {}): Promise
   await app.register(models);
   await app.register(scoring);
   await app.register(requests);
+  await app.register(explanations);
   await app.register(reports);
   await app.register(alerts);
   await app.register(metrics);

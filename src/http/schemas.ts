@@ -1,6 +1,7 @@
 import { z } from 'zod';
 import type { Config } from '../config.js';
 import { MAX_FEATURE_MAGNITUDE } from '../core/network.js';
+import { explanationSchema } from './explain-schemas.js';
 
 // Request and response schemas, declared once: routes validate with them and the OpenAPI
 // document is generated from them.
@@ -70,7 +71,8 @@ export function scoringSchemas(limits: Config['limits']) {
     ])
     .describe('feature values in the units the bundle lists; every value a finite number');
   // No registry id: these are built per app from its limits, and ids must be unique.
-  const item = z.strictObject({ features, tags: tags.optional() }).describe('one feature vector to score');
+  const explain = z.boolean().optional().describe('true: the answer also carries `explanation` (why this label, and the nearest change per feature that would change it)');
+  const item = z.strictObject({ features, tags: tags.optional(), explain }).describe('one feature vector to score');
   const batch = z
     .strictObject({
       items: z
@@ -112,6 +114,7 @@ export const scoreResponseSchema = z
       checks: z.array(domainCheck),
       outside: z.array(outsideFeature).describe('features outside the training envelope, in their units'),
     }),
+    explanation: explanationSchema.optional().describe('present when the item asked for it with `"explain": true`'),
   })
   .meta({ id: 'ScoreResponse' });
 
@@ -205,6 +208,7 @@ export const loggedRequestSchema = z
     domain: z.object({ checks: z.array(domainCheck), outside: z.array(outsideFeature) }),
     latency_ms: z.number().describe('from receipt to the answer being ready, before the commit'),
     key_label: z.string().nullable().describe('label of the API key the request came with; null when keys were not in use'),
+    explained: z.boolean().nullable().describe('whether the answer carried an explanation (GET /v1/requests/{id}/explanation recomputes it); null for answers logged before explanations existed'),
   })
   .meta({ id: 'LoggedRequest' });
 

@@ -1,5 +1,6 @@
 import type { ModelEntry, ModelRegistry } from '../bundle/registry.js';
 import { type ScoreOutcome, type ScoreResponse, ScoreOverflowError, modelRef } from '../bundle/scorer.js';
+import { explainOutcome } from './explain.js';
 import { type FieldError, ProblemError, pointer } from '../errors.js';
 import { uuidv7 } from '../ids.js';
 import { LogBackpressureError, LogClosedError, LogWriteError, type RequestLog, type ScoredRow } from '../store/request-log.js';
@@ -7,6 +8,8 @@ import { LogBackpressureError, LogClosedError, LogWriteError, type RequestLog, t
 export interface ScoreItem {
   features: Record<string, number> | number[];
   tags?: Record<string, string> | undefined;
+  /** Answer with an explanation too (issue 18); computed for this item only. */
+  explain?: boolean | undefined;
 }
 
 export interface CallContext {
@@ -128,7 +131,9 @@ export function createScoringService(registry: ModelRegistry, log: RequestLog, o
     const responses: ScoreResponse[] = [];
     const rows: ScoredRow[] = outcomes.map((o, i) => {
       const requestId = batch ? uuidv7() : ctx.requestId;
-      responses.push({ request_id: requestId, model, ...o });
+      const explained = items[i]?.explain === true;
+      // Only on request: an answer without it costs what it cost before.
+      responses.push(explained ? { request_id: requestId, model, ...o, explanation: explainOutcome(entry.bundle, x.subarray(i * d, i * d + d), o) } : { request_id: requestId, model, ...o });
       const tags = items[i]?.tags;
       return {
         requestId,
@@ -145,6 +150,7 @@ export function createScoringService(registry: ModelRegistry, log: RequestLog, o
         domain: { checks: o.domain.checks, outside: o.domain.outside },
         latencyUs,
         keyLabel: ctx.keyLabel ?? null,
+        explained,
       };
     });
     try {

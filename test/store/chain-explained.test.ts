@@ -82,7 +82,7 @@ describe('the explained flag in the hash chain (migration 006)', () => {
     old.prepare("INSERT INTO models (sha256, name, version, features, classes, first_loaded_at) VALUES (?, ?, ?, '[{\"name\":\"a\",\"unit\":\"mm\"},{\"name\":\"b\",\"unit\":\"mm\"}]', '[\"ok\",\"bad\"]', 0)").run(MODEL.sha256, MODEL.name, MODEL.version);
     const insert = old.prepare(`INSERT INTO scored_requests (seq, request_id, batch_id, received_at, model_sha256, model_name, model_version, features, tags, label, probabilities, margin, in_domain, review, domain, latency_us, key_label, chain_hash)
       VALUES (@seq, @request_id, @batch_id, @received_at, @model_sha256, @model_name, @model_version, @features, @tags, @label, @probabilities, @margin, @in_domain, @review, @domain, @latency_us, @key_label, @chain_hash)`);
-    let prev = Buffer.alloc(32);
+    let prev: Buffer = Buffer.alloc(32);
     for (let seq = 1; seq <= 3; seq++) {
       const row = {
         seq,

@@ -5,6 +5,7 @@ import type { Config } from '../../config.js';
 import type { Metrics } from '../../metrics.js';
 import type { ReportService } from '../../reports/service.js';
 import type { ScoringService } from '../../scoring/service.js';
+import type { ExplanationService } from '../../scoring/explain.js';
 import type { Store } from '../../store/store.js';
 
 export interface Services {
@@ -12,6 +13,8 @@ export interface Services {
   registry: ModelRegistry;
   store: Store;
   scoring: ScoringService;
+  /** Recomputes a logged answer's explanation (GET /v1/requests/{id}/explanation). */
+  explanations: ExplanationService;
   reports: ReportService;
   metrics: Metrics;
 }

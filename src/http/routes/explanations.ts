@@ -1,0 +1,23 @@
+import type { FastifyPluginAsyncZod } from 'fastify-type-provider-zod';
+import { recomputedExplanationSchema, requestIdParam } from '../explain-schemas.js';
+import { commonErrors, jsonResponse, problemResponse } from '../schemas.js';
+
+const explanations: FastifyPluginAsyncZod = async (app) => {
+  app.get(
+    '/v1/requests/:id/explanation',
+    {
+      config: { access: 'reader' },
+      schema: {
+        summary: 'Recompute the explanation of a logged answer',
+        description:
+          'Integrated gradients of the answered label and the nearest label change per feature, recomputed from the logged vector and the bundle that answered (loaded, or the copy the audit log keeps). `explained` says whether the answer carried it.',
+        tags: ['audit'],
+        params: requestIdParam,
+        response: { 200: jsonResponse('the explanation, as the answer carried or would have carried it', recomputedExplanationSchema), 404: problemResponse('no scored request has that id, or its bundle is neither loaded nor stored'), ...commonErrors },
+      },
+    },
+    async (req) => app.services.explanations.recompute(req.params.id),
+  );
+};
+
+export default explanations;
