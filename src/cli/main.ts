@@ -15,6 +15,7 @@ import { registerDemo } from './commands/demo.js';
 import { registerKeys } from './commands/keys.js';
 import { registerDrift } from './commands/drift.js';
 import { registerScore } from './commands/score.js';
+import { registerExplain } from './commands/explain.js';
 import { registerServe } from './commands/serve.js';
 import { registerTrain } from './commands/train.js';
 import { UsageError } from './io.js';
@@ -29,6 +30,7 @@ export function buildProgram(): Command {
   registerTrain(program);
   registerImport(program);
   registerScore(program);
+  registerExplain(program);
   registerDrift(program);
   registerDemo(program);
   registerKeys(program);
