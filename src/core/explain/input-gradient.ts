@@ -62,19 +62,3 @@ export function inputGradients(net: Network, trace: LayerTrace, cotangent: Float
   }
   return g;
 }
-
-/**
- * The same products where each row's activation slopes are given instead of traced: for a
- * network of piecewise-linear activations, slope[l][r, o] is the slope of layer l's unit o on the
- * r-th linear piece (1 or 0 for relu, 1 or alpha for leaky_relu, 1 for identity).
- */
-export function inputGradientsWithSlopes(net: Network, slopes: Float64Array[], rows: number, cotangent: Float64Array): Float64Array {
-  let g: Float64Array = cotangent.slice(0, rows * (net.layers[net.layers.length - 1] as DenseLayer).outputs);
-  for (let l = net.layers.length - 1; l >= 0; l--) {
-    const layer = net.layers[l] as DenseLayer;
-    const s = slopes[l] as Float64Array;
-    for (let i = 0; i < g.length; i++) g[i] = (g[i] as number) * (s[i] as number);
-    g = transposeTimes(layer, g, rows);
-  }
-  return g;
-}

@@ -1,7 +1,7 @@
 import type { ActivationName } from '../activations.js';
 import type { DenseLayer, Network } from '../network.js';
 import { gaussLegendre } from './gauss-legendre.js';
-import { type LayerTrace, inputGradients, inputGradientsWithSlopes, traceForward, traceOutput } from './input-gradient.js';
+import { type LayerTrace, inputGradients, traceForward, traceOutput } from './input-gradient.js';
 import type { PathTarget } from './targets.js';
 
 // Integrated gradients (Sundararajan, Taly & Yan 2017, "Axiomatic Attribution for Deep
@@ -309,33 +309,56 @@ function integratePiecewiseLinear(members: readonly Network[], u0: Float64Array,
     integrate(lo, hi, fLo, fHi, 0);
     fLo = fHi;
   }
-  // One backward pass per member over its pieces, with each piece's slopes from the midpoint of
-  // its units' inputs (affine on the piece, so the mean of its two ends).
+  // One backward pass per member and piece, with the piece's slopes from the midpoint of its
+  // units' inputs (affine on the piece, so the mean of its two ends).
   const gradient = new Float64Array(d);
-  members.forEach((net, m) => {
-    const p = paths[m] as MemberPath;
-    const pieces = p.alphas.length - 1;
-    const slopes = net.layers.map((layer, l) => {
-      const w = layer.outputs;
-      const v = p.pre[l] as Float64Array;
-      const s = new Float64Array(pieces * w);
-      for (let i = 0; i < pieces * w; i++) s[i] = slopeOf(layer, ((v[i] as number) + (v[i + w] as number)) / 2);
-      return s;
-    });
-    const g = inputGradientsWithSlopes(net, slopes, pieces, sums[m] as Float64Array);
-    for (let i = 0; i < pieces; i++) for (let j = 0; j < d; j++) gradient[j] = (gradient[j] as number) + (g[i * d + j] as number);
-  });
+  members.forEach((net, m) => accumulatePieceGradients(net, paths[m] as MemberPath, sums[m] as Float64Array, gradient));
   return { gradient, f0, f1, breakpoints: union.length - 2, nodes };
 }
 
-function slopeOf(layer: DenseLayer, v: number): number {
-  switch (layer.activation) {
-    case 'relu':
-      return v > 0 ? 1 : 0;
-    case 'leaky_relu':
-      return v < 0 ? layer.alpha : 1;
-    default:
-      return 1;
+/**
+ * gradient += sum over the member's pieces i of J_i^T v_i, J_i the Jacobian on piece i and v_i its
+ * row of cotangents: the backward pass with each unit's slope read off the piece's midpoint.
+ */
+function accumulatePieceGradients(net: Network, path: MemberPath, cotangents: Float64Array, gradient: Float64Array): void {
+  const L = net.layers.length;
+  const widest = Math.max(...net.layers.map((l) => Math.max(l.inputs, l.outputs)));
+  let g = new Float64Array(widest);
+  let next = new Float64Array(widest);
+  const pieces = path.alphas.length - 1;
+  for (let i = 0; i < pieces; i++) {
+    const last = net.layers[L - 1] as DenseLayer;
+    g.set(cotangents.subarray(i * last.outputs, (i + 1) * last.outputs));
+    for (let l = L - 1; l >= 0; l--) {
+      const layer = net.layers[l] as DenseLayer;
+      const { inputs: n, outputs: w, weights } = layer;
+      const pre = path.pre[l] as Float64Array;
+      const a = i * w;
+      const b = a + w;
+      if (layer.activation === 'relu') {
+        for (let o = 0; o < w; o++) if (!((pre[a + o] as number) + (pre[b + o] as number) > 0)) g[o] = 0;
+      } else if (layer.activation === 'leaky_relu') {
+        for (let o = 0; o < w; o++) if ((pre[a + o] as number) + (pre[b + o] as number) < 0) g[o] = (g[o] as number) * layer.alpha;
+      }
+      if (l === 0) {
+        for (let o = 0; o < w; o++) {
+          const v = g[o] as number;
+          if (v === 0) continue;
+          for (let j = 0; j < n; j++) gradient[j] = (gradient[j] as number) + v * (weights[o * n + j] as number);
+        }
+        break;
+      }
+      next.fill(0, 0, n);
+      for (let o = 0; o < w; o++) {
+        const v = g[o] as number;
+        if (v === 0) continue;
+        const off = o * n;
+        for (let j = 0; j < n; j++) next[j] = (next[j] as number) + v * (weights[off + j] as number);
+      }
+      const t = g;
+      g = next;
+      next = t;
+    }
   }
 }
 
