@@ -1,7 +1,7 @@
 import type { ActivationName } from '../activations.js';
 import type { DenseLayer, Network } from '../network.js';
 import { gaussLegendre } from './gauss-legendre.js';
-import { type LayerTrace, inputGradients, traceForward, traceOutput } from './input-gradient.js';
+import { type LayerTrace, backThroughLayer, inputGradients, traceForward, traceOutput } from './input-gradient.js';
 import type { PathTarget } from './targets.js';
 
 // Integrated gradients (Sundararajan, Taly & Yan 2017, "Axiomatic Attribution for Deep
@@ -318,46 +318,33 @@ function integratePiecewiseLinear(members: readonly Network[], u0: Float64Array,
 
 /**
  * gradient += sum over the member's pieces i of J_i^T v_i, J_i the Jacobian on piece i and v_i its
- * row of cotangents: the backward pass with each unit's slope read off the piece's midpoint.
+ * row of cotangents: the backward pass over every piece at once, each unit's slope read off the
+ * piece's midpoint. The first layer, the same for every piece, multiplies their sum once.
  */
 function accumulatePieceGradients(net: Network, path: MemberPath, cotangents: Float64Array, gradient: Float64Array): void {
-  const L = net.layers.length;
-  const widest = Math.max(...net.layers.map((l) => Math.max(l.inputs, l.outputs)));
-  let g = new Float64Array(widest);
-  let next = new Float64Array(widest);
   const pieces = path.alphas.length - 1;
-  for (let i = 0; i < pieces; i++) {
-    const last = net.layers[L - 1] as DenseLayer;
-    g.set(cotangents.subarray(i * last.outputs, (i + 1) * last.outputs));
-    for (let l = L - 1; l >= 0; l--) {
-      const layer = net.layers[l] as DenseLayer;
-      const { inputs: n, outputs: w, weights } = layer;
-      const pre = path.pre[l] as Float64Array;
-      const a = i * w;
-      const b = a + w;
-      if (layer.activation === 'relu') {
-        for (let o = 0; o < w; o++) if (!((pre[a + o] as number) + (pre[b + o] as number) > 0)) g[o] = 0;
-      } else if (layer.activation === 'leaky_relu') {
-        for (let o = 0; o < w; o++) if ((pre[a + o] as number) + (pre[b + o] as number) < 0) g[o] = (g[o] as number) * layer.alpha;
-      }
-      if (l === 0) {
-        for (let o = 0; o < w; o++) {
-          const v = g[o] as number;
-          if (v === 0) continue;
-          for (let j = 0; j < n; j++) gradient[j] = (gradient[j] as number) + v * (weights[o * n + j] as number);
-        }
-        break;
-      }
-      next.fill(0, 0, n);
-      for (let o = 0; o < w; o++) {
-        const v = g[o] as number;
-        if (v === 0) continue;
-        const off = o * n;
-        for (let j = 0; j < n; j++) next[j] = (next[j] as number) + v * (weights[off + j] as number);
-      }
-      const t = g;
-      g = next;
-      next = t;
+  let g = cotangents;
+  for (let l = net.layers.length - 1; l >= 0; l--) {
+    const layer = net.layers[l] as DenseLayer;
+    const w = layer.outputs;
+    const pre = path.pre[l] as Float64Array;
+    // pre holds the pieces' ends: piece i runs from row i to row i + 1.
+    if (layer.activation === 'relu') {
+      for (let i = 0; i < pieces * w; i++) if (!((pre[i] as number) + (pre[i + w] as number) > 0)) g[i] = 0;
+    } else if (layer.activation === 'leaky_relu') {
+      for (let i = 0; i < pieces * w; i++) if ((pre[i] as number) + (pre[i + w] as number) < 0) g[i] = (g[i] as number) * layer.alpha;
+    }
+    if (l > 0) {
+      g = backThroughLayer(layer, g, pieces);
+      continue;
+    }
+    const sum = new Float64Array(w);
+    for (let i = 0; i < pieces; i++) for (let o = 0; o < w; o++) sum[o] = (sum[o] as number) + (g[i * w + o] as number);
+    const { inputs: n, weights } = layer;
+    for (let o = 0; o < w; o++) {
+      const v = sum[o] as number;
+      if (v === 0) continue;
+      for (let j = 0; j < n; j++) gradient[j] = (gradient[j] as number) + v * (weights[o * n + j] as number);
     }
   }
 }

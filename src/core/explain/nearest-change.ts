@@ -28,70 +28,97 @@ interface Bracket {
   label: number;
 }
 
+/** Scanned values per direction and feature in each batch of the scan. */
+const WAVE = 4;
+
+interface Side {
+  feature: number;
+  /** The grid values beyond x on this side, nearest first. */
+  values: number[];
+  /** How many of them are scanned. */
+  next: number;
+  /** The last scanned value with the old label (x itself at first). */
+  inner: number;
+  done: boolean;
+  found: Bracket | null;
+}
+
 /**
  * For each feature alone, the smallest change of x within [low_j, high_j] at which `labelOf`
- * gives another label than it gives x. Each feature's range is scanned at cells + 1 evenly spaced
- * values, every feature in one batch; in each direction the first scanned value with another
- * label brackets the change with the value before it (or x itself), and the bracket is bisected,
- * all features together, until it is narrower than tolerance x (high - low). A label region
- * narrower than a scan cell that lies between two scanned values of the old label is not seen.
- * A change that falls outside [low, high] (x itself outside, and the label changing before the
- * range is reached) is not reported: the feature's nearest change inside the range is then not
- * a boundary of the old label. Features without a change are left out; the rest are returned in
- * feature order.
+ * gives another label than it gives x. Each feature's range holds a grid of cells + 1 evenly
+ * spaced values; from x outwards, in each direction, the first grid value with another label
+ * brackets the change with the value before it (or x itself), and the bracket is bisected until
+ * it is narrower than tolerance x (high - low). The grid is scanned outwards in batches of a few
+ * values per direction, every feature together, and a direction stops at its first change (or,
+ * the other direction having found a nearer one, where it can no longer be nearer): the same
+ * brackets as scanning the whole grid, with fewer vectors. A label region narrower than a cell,
+ * between two grid values of the old label, is not seen. A change that falls outside
+ * [low, high] (x itself outside, and the label changing before the range is reached) is not
+ * reported: the nearest change inside the range is then not a boundary of the old label.
+ * Features without a change are left out; the rest are returned in feature order.
  */
 export function nearestChanges(x: ArrayLike<number>, low: ArrayLike<number>, high: ArrayLike<number>, labelOf: LabelFunction, options: NearestChangeOptions = DEFAULT_NEAREST_CHANGE): NearestChange[] {
   const d = x.length;
   const base = Float64Array.from(x);
   const old = labelOf(base, 1)[0] as number;
-  // The scan: every feature's grid, ascending, one batch; feature j's values at [first[j], first[j + 1]).
-  const features: number[] = [];
-  const values: number[] = [];
-  const first = new Int32Array(d + 1);
+  const sides: Side[] = [];
   for (let j = 0; j < d; j++) {
-    first[j] = values.length;
     const lo = low[j] as number;
     const hi = high[j] as number;
     if (!(hi > lo)) continue;
-    for (let i = 0; i <= options.cells; i++) {
-      const v = i === options.cells ? hi : lo + ((hi - lo) * i) / options.cells;
-      if (v === base[j]) continue;
-      features.push(j);
-      values.push(v);
-    }
-  }
-  first[d] = values.length;
-  const labels = labelRows(base, features, values, labelOf);
-  const brackets: Bracket[] = [];
-  const found: Bracket[] = [];
-  for (let j = 0; j < d; j++) {
     const xj = base[j] as number;
-    const lo = low[j] as number;
-    const hi = high[j] as number;
-    found.length = 0;
-    // Up from x, then down from x.
-    for (const dir of [1, -1]) {
-      let inner = xj;
-      const end = first[j + 1] as number;
-      const start = first[j] as number;
-      for (let i = dir > 0 ? start : end - 1; i >= start && i < end; i += dir) {
-        const v = values[i] as number;
-        if (dir > 0 ? v <= xj : v >= xj) continue;
-        if (labels[i] !== old) {
-          // Entirely outside the range: the label changed before the range was reached.
-          if (!((inner < lo && v <= lo) || (inner > hi && v >= hi))) found.push({ feature: j, inner, outer: v, label: labels[i] as number });
-          break;
-        }
-        inner = v;
+    const grid: number[] = [];
+    for (let i = 0; i <= options.cells; i++) grid.push(i === options.cells ? hi : lo + ((hi - lo) * i) / options.cells);
+    sides.push({ feature: j, values: grid.filter((v) => v > xj), next: 0, inner: xj, done: false, found: null });
+    sides.push({ feature: j, values: grid.filter((v) => v < xj).reverse(), next: 0, inner: xj, done: false, found: null });
+  }
+  const other = (i: number): Side => sides[i ^ 1] as Side;
+  for (;;) {
+    // A side stops once the other side of its feature found a change nearer than anything left here.
+    sides.forEach((side, i) => {
+      const o = other(i).found;
+      if (!side.done && (side.next >= side.values.length || (o && Math.abs(side.inner - (base[side.feature] as number)) >= Math.abs(o.outer - (base[side.feature] as number))))) side.done = true;
+    });
+    const open = sides.filter((side) => !side.done);
+    if (open.length === 0) break;
+    const features: number[] = [];
+    const values: number[] = [];
+    for (const side of open) {
+      for (let k = side.next; k < Math.min(side.next + WAVE, side.values.length); k++) {
+        features.push(side.feature);
+        values.push(side.values[k] as number);
       }
     }
+    const labels = labelRows(base, features, values, labelOf);
+    let at = 0;
+    for (const side of open) {
+      const j = side.feature;
+      const lo = low[j] as number;
+      const hi = high[j] as number;
+      const end = Math.min(side.next + WAVE, side.values.length);
+      for (let k = side.next; k < end; k++, at++) {
+        if (side.done) continue;
+        const v = side.values[k] as number;
+        if (labels[at] !== old) {
+          // Entirely outside the range: the label changed before the range was reached.
+          if (!((side.inner < lo && v <= lo) || (side.inner > hi && v >= hi))) side.found = { feature: j, inner: side.inner, outer: v, label: labels[at] as number };
+          side.done = true;
+        } else side.inner = v;
+      }
+      side.next = end;
+    }
+  }
+  const brackets: Bracket[] = [];
+  for (let i = 0; i < sides.length; i += 2) {
+    const xj = base[(sides[i] as Side).feature] as number;
+    const found = [sides[i]?.found, sides[i + 1]?.found].filter((b): b is Bracket => b !== null && b !== undefined);
     // Only a bracket that may hold the nearer change is bisected.
     found.sort((a, b) => Math.abs(a.inner - xj) - Math.abs(b.inner - xj));
     const near = found[0];
     if (!near) continue;
     brackets.push(near);
-    const other = found[1];
-    if (other && Math.abs(other.inner - xj) < Math.abs(near.outer - xj)) brackets.push(other);
+    const far = found[1];
+    if (far && Math.abs(far.inner - xj) < Math.abs(near.outer - xj)) brackets.push(far);
   }
   // Bisection, every open bracket in one batch per step.
   let open = brackets.filter((b) => Math.abs(b.outer - b.inner) > options.tolerance * ((high[b.feature] as number) - (low[b.feature] as number)));

@@ -53,13 +53,51 @@ export function servedLogProbability(classIndex: number, classes: number, temper
   return {
     classes,
     value(outputs, row) {
-      return memberLogs(outputs, row) - Math.log(outputs.length);
+      // In probabilities where p_c is not vanishingly small (one log instead of one per member).
+      const M = outputs.length;
+      const off = row * classes;
+      let total = 0;
+      for (let m = 0; m < M; m++) {
+        const z = outputs[m] as Float64Array;
+        let zmax = -Infinity;
+        for (let k = 0; k < classes; k++) if ((z[off + k] as number) > zmax) zmax = z[off + k] as number;
+        let sum = 0;
+        for (let k = 0; k < classes; k++) sum += Math.exp(((z[off + k] as number) - zmax) * invT);
+        total += Math.exp(((z[off + classIndex] as number) - zmax) * invT) / sum;
+      }
+      if (total > 1e-280) return Math.log(total / M);
+      return memberLogs(outputs, row) - Math.log(M);
     },
     cotangent(outputs, row, cotangent, outRow) {
-      const lse = memberLogs(outputs, row);
+      const M = outputs.length;
       const out = outRow * classes;
-      for (let m = 0; m < outputs.length; m++) {
-        const w = Math.exp((logP[m] as number) - lse) * invT;
+      const off = row * classes;
+      if (probs.length < M * classes) {
+        logP = new Float64Array(M);
+        probs = new Float64Array(M * classes);
+      }
+      // The weights w_m = p_mc / sum_m' p_m'c straight from the probabilities, without logs; only
+      // where every member's p_c underflows (beyond e^-650) are they taken in logs instead.
+      let total = 0;
+      for (let m = 0; m < M; m++) {
+        const z = outputs[m] as Float64Array;
+        let zmax = -Infinity;
+        for (let k = 0; k < classes; k++) if ((z[off + k] as number) > zmax) zmax = z[off + k] as number;
+        zmax *= invT;
+        let sum = 0;
+        for (let k = 0; k < classes; k++) {
+          const e = Math.exp((z[off + k] as number) * invT - zmax);
+          probs[m * classes + k] = e;
+          sum += e;
+        }
+        const inv = 1 / sum;
+        for (let k = 0; k < classes; k++) probs[m * classes + k] = (probs[m * classes + k] as number) * inv;
+        total += probs[m * classes + classIndex] as number;
+      }
+      const logs = total < 1e-280;
+      const lse = logs ? memberLogs(outputs, row) : 0;
+      for (let m = 0; m < M; m++) {
+        const w = (logs ? Math.exp((logP[m] as number) - lse) : (probs[m * classes + classIndex] as number) / total) * invT;
         const c = cotangent[m] as Float64Array;
         for (let k = 0; k < classes; k++) c[out + k] = w * ((k === classIndex ? 1 : 0) - (probs[m * classes + k] as number));
       }
