@@ -10,6 +10,31 @@ export function explainOutcome(bundle: LoadedBundle, x: ArrayLike<number>, outco
   return explainerFor(bundle).explain(x, outcome.label, outcome.domain.in_domain);
 }
 
+/** Milliseconds of explaining between two turns of the event loop. */
+const EXPLAIN_SLICE_MS = 10;
+
+/**
+ * The explanations the items asked for (undefined for the others), or null when none asked: the
+ * answers without one take no other step. An explanation costs milliseconds, far more than a score,
+ * so a batch that asks for many yields the event loop every EXPLAIN_SLICE_MS, and the other
+ * requests (and the load-shedding probe) are not held up while it runs.
+ */
+export async function explainRequested(bundle: LoadedBundle, items: ReadonlyArray<{ explain?: boolean | undefined }>, x: Float64Array, outcomes: readonly ScoreOutcome[]): Promise<Array<Explanation | undefined> | null> {
+  if (!items.some((item) => item.explain === true)) return null;
+  const d = bundle.file.features.length;
+  const out: Array<Explanation | undefined> = new Array(items.length);
+  let since = performance.now();
+  for (let i = 0; i < items.length; i++) {
+    if (items[i]?.explain !== true) continue;
+    if (performance.now() - since > EXPLAIN_SLICE_MS) {
+      await new Promise((resolve) => setImmediate(resolve));
+      since = performance.now();
+    }
+    out[i] = explainOutcome(bundle, x.subarray(i * d, i * d + d), outcomes[i] as ScoreOutcome);
+  }
+  return out;
+}
+
 export interface RecomputedExplanation {
   request_id: string;
   model: LoggedRequest['model'];

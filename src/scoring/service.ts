@@ -1,6 +1,6 @@
 import type { ModelEntry, ModelRegistry } from '../bundle/registry.js';
 import { type ScoreOutcome, type ScoreResponse, ScoreOverflowError, modelRef } from '../bundle/scorer.js';
-import { explainOutcome } from './explain.js';
+import { explainRequested } from './explain.js';
 import { type FieldError, ProblemError, pointer } from '../errors.js';
 import { uuidv7 } from '../ids.js';
 import { LogBackpressureError, LogClosedError, LogWriteError, type RequestLog, type ScoredRow } from '../store/request-log.js';
@@ -125,15 +125,17 @@ export function createScoringService(registry: ModelRegistry, log: RequestLog, o
         throw new ProblemError('invalid-request', 'these values overflow the network; nothing was scored', [{ pointer: at, detail: 'the network gives a non-finite logit for these values' }]);
       }
     }
+    const explanations = await explainRequested(entry.bundle, items, x, outcomes);
     const model = modelRef(entry.bundle);
     const latencyUs = ctx.elapsedMs() * 1000;
     const classes = entry.bundle.file.classes;
     const responses: ScoreResponse[] = [];
     const rows: ScoredRow[] = outcomes.map((o, i) => {
       const requestId = batch ? uuidv7() : ctx.requestId;
-      const explained = items[i]?.explain === true;
       // Only on request: an answer without it costs what it cost before.
-      responses.push(explained ? { request_id: requestId, model, ...o, explanation: explainOutcome(entry.bundle, x.subarray(i * d, i * d + d), o) } : { request_id: requestId, model, ...o });
+      const explanation = explanations?.[i];
+      const explained = explanation !== undefined;
+      responses.push(explained ? { request_id: requestId, model, ...o, explanation } : { request_id: requestId, model, ...o });
       const tags = items[i]?.tags;
       return {
         requestId,

@@ -101,6 +101,17 @@ describe('explanations of answers', () => {
     expect(items.map((i) => rows.find((r) => r.request_id === i.request_id)?.explained)).toEqual([1, 0, 0]);
   });
 
+  it('stay finite and bounded for a vector at the largest accepted magnitude', async () => {
+    for (const v of [1e15, -1e15, 1e6]) {
+      const a = await score(Array.from({ length: 10 }, () => v), true);
+      const e = a.explanation!;
+      expect(e.extrapolated).toBe(true);
+      expect(JSON.stringify(e)).not.toContain('null');
+      expect(Number.isFinite(e.total)).toBe(true);
+      expect(Math.abs(e.completeness_error)).toBeLessThanOrEqual(1e-3 * Math.max(1, Math.abs(e.total)));
+    }
+  });
+
   it('refuse an explain that is not a boolean, naming the field', async () => {
     const res = await svc.app.inject({ method: 'POST', url: '/v1/models/moulding-quality/score', payload: { features: IN_DOMAIN, explain: 'yes' } });
     expect(res.statusCode).toBe(400);

@@ -200,6 +200,13 @@ const MAX_DEPTH = 20;
 const PIECE_TOLERANCE = 1e-5;
 /** Nodes on one piece before it is halved instead. */
 const MAX_NODES = 32;
+/**
+ * Nodes on a whole path past which no piece is refined further: the work per explanation stays
+ * bounded (a vector at 1e15 in every feature gives logits near 1e15, where float64 cannot meet the
+ * tolerance, and would otherwise be halved down to MAX_DEPTH everywhere); completeness_error then
+ * reports what was reached.
+ */
+const MAX_REFINED_NODES = 4_000;
 
 function integratePiecewiseLinear(members: readonly Network[], u0: Float64Array, u1: Float64Array, target: PathTarget, steps: number): PathSum {
   const M = members.length;
@@ -258,7 +265,7 @@ function integratePiecewiseLinear(members: readonly Network[], u0: Float64Array,
         }
       }
       nodes += rule.nodes.length;
-      if (Math.abs(derivative - (fHi - fLo)) <= tolerance * h || depth >= MAX_DEPTH) break;
+      if (Math.abs(derivative - (fHi - fLo)) <= tolerance * h || depth >= MAX_DEPTH || nodes >= MAX_REFINED_NODES) break;
       if (n >= MAX_NODES) {
         const mid = lo + h / 2;
         const fMid = valueAt(mid);
