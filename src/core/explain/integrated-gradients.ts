@@ -79,7 +79,9 @@ export function integratedGradients(members: readonly Network[], baseline: Array
     u0[j] = ((baseline[j] as number) - c) / s;
     u1[j] = ((input[j] as number) - c) / s;
   }
-  const allLinear = members.every((net) => net.layers.every((l) => PIECEWISE_LINEAR.has(l.activation)));
+  // The piecewise-linear path reads the outputs off the last layer's inputs to its activation,
+  // so it also needs that activation to be the identity (as every bundle's is).
+  const allLinear = members.every((net) => net.layers.every((l) => PIECEWISE_LINEAR.has(l.activation)) && net.layers[net.layers.length - 1]?.activation === 'identity');
   const sum = allLinear ? integratePiecewiseLinear(members, u0, u1, target, options.steps) : integrateGeneral(members, u0, u1, target, options.steps);
 
   const contributions = new Float64Array(d);
