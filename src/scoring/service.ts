@@ -125,7 +125,8 @@ export function createScoringService(registry: ModelRegistry, log: RequestLog, o
         throw new ProblemError('invalid-request', 'these values overflow the network; nothing was scored', [{ pointer: at, detail: 'the network gives a non-finite logit for these values' }]);
       }
     }
-    const explanations = await explainRequested(entry.bundle, items, x, outcomes);
+    // Checked here, not awaited: an answer without explanations pays no extra turn of the event loop.
+    const explanations = items.some((item) => item.explain === true) ? await explainRequested(entry.bundle, items, x, outcomes) : null;
     const model = modelRef(entry.bundle);
     const latencyUs = ctx.elapsedMs() * 1000;
     const classes = entry.bundle.file.classes;
