@@ -9,6 +9,7 @@ import { type RetentionJob, startRetention } from './jobs/retention.js';
 import { kernelStatus } from './core/wasm/module.js';
 import { type Metrics, createMetrics } from './metrics.js';
 import { type ReportService, createReportService } from './reports/service.js';
+import { type ExplanationService, createExplanationService } from './scoring/explain.js';
 import { type ScoringService, createScoringService } from './scoring/service.js';
 import type { ModelRecord } from './store/models-table.js';
 import { type Store, type StoreOptions, openStore } from './store/store.js';
@@ -20,6 +21,8 @@ export interface Services {
   registry: ModelRegistry;
   metrics: Metrics;
   scoring: ScoringService;
+  /** Recomputes a logged answer's explanation (GET /v1/requests/{id}/explanation). */
+  explanations: ExplanationService;
   reports: ReportService;
   alerting: Alerting;
 }
@@ -102,8 +105,8 @@ const once = (close: () => void | Promise<void>): (() => Promise<void>) => {
 };
 
 /**
- * Opens the service's parts in dependency order (store, registry, metrics, scoring, reports,
- * alerting, jobs) and hands them back with a close that undoes them in reverse. The server, the
+ * Opens the service's parts in dependency order (store, registry, metrics, scoring,
+ * explanations, reports, alerting, jobs) and hands them back with a close that undoes them in reverse. The server, the
  * tests, the OpenAPI generator and the CLI all start the service here. If a part fails to open,
  * those already open are closed before the error is thrown.
  */
@@ -156,6 +159,9 @@ export async function openRuntime(config: Config, options: RuntimeOptions = {}):
     );
     add('scoring', ['registry', 'store', 'metrics'], scoring);
 
+    const explanations = createExplanationService(registry, { getRequest: (id) => store.getRequest(id), bundleText: (name, sha256) => store.drift.bundleText(name, sha256) });
+    add('explanations', ['registry', 'store'], explanations);
+
     const reports = createReportService(store, { minRows: config.reports.min_rows, sampleCap: config.reports.sample_cap, seed: 1, worker: serve }, (report) => {
       const psi = maxPsi(report);
       if (psi !== null) metrics.driftMaxPsi.set({ model: report.model.name }, psi);
@@ -187,7 +193,7 @@ export async function openRuntime(config: Config, options: RuntimeOptions = {}):
       await retention?.stop();
     });
 
-    return { config, log, store, registry, metrics, scoring, reports, alerting, components, close: closeAll };
+    return { config, log, store, registry, metrics, scoring, explanations, reports, alerting, components, close: closeAll };
   } catch (err) {
     await closeAll();
     throw err;

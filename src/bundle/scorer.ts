@@ -6,7 +6,8 @@ import { createFastForwardPass } from '../core/wasm/forward-pass.js';
 import { topTwo } from '../core/softmax.js';
 import { standardizeInto } from '../core/standardize.js';
 import type { LoadedBundle } from './verify.js';
-import type { DomainCheck, ModelRef, ScoreOutcome } from '../contracts/score.js';
+import type { ModelRef } from '../contracts/model-ref.js';
+import type { DomainCheck, ScoreOutcome } from '../contracts/score.js';
 
 /** The network or a detector gave a non-finite value for a row: its values are too extreme to score. */
 export class ScoreOverflowError extends Error {

@@ -5,6 +5,7 @@ import { registerDrift } from './commands/drift.js';
 import { registerImport } from './commands/import.js';
 import { registerKeys } from './commands/keys.js';
 import { registerScore } from './commands/score.js';
+import { registerExplain } from './commands/explain.js';
 import { registerServe } from './commands/serve.js';
 import { registerTrain } from './commands/train.js';
 
@@ -19,6 +20,7 @@ export function buildProgram(): Command {
   registerTrain(program);
   registerImport(program);
   registerScore(program);
+  registerExplain(program);
   registerDrift(program);
   registerDemo(program);
   registerKeys(program);

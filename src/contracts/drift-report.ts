@@ -1,5 +1,5 @@
 import { z } from 'zod';
-import { modelRefSchema } from './score.js';
+import { modelRefSchema } from './model-ref.js';
 
 // The drift report (docs/drift.md), declared once: the builder makes it, the routes send it, the
 // page draws it. Reports stored before a field existed lack it, hence the optional ones.

@@ -1,5 +1,6 @@
 import { z } from 'zod';
-import { domainCheckSchema, modelRefSchema, outsideFeatureSchema } from './score.js';
+import { modelRefSchema } from './model-ref.js';
+import { domainCheckSchema, outsideFeatureSchema } from './score.js';
 
 // One row of the audit log as GET /v1/requests returns it.
 
@@ -19,6 +20,7 @@ export const loggedRequestSchema = z
     domain: z.object({ checks: z.array(domainCheckSchema), outside: z.array(outsideFeatureSchema) }),
     latency_ms: z.number().describe('from receipt to the answer being ready, before the commit'),
     key_label: z.string().nullable().describe('label of the API key the request came with; null when keys were not in use'),
+    explained: z.boolean().nullable().describe('whether the answer carried an explanation (GET /v1/requests/{id}/explanation recomputes it); null for answers logged before explanations existed'),
   })
   .meta({ id: 'LoggedRequest' });
 

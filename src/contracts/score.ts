@@ -1,9 +1,9 @@
 import { z } from 'zod';
+import { explanationSchema } from './explanation.js';
+import { modelRefSchema } from './model-ref.js';
 
 // The answer to one scored vector, declared once: the scorer builds it, the routes send it, the
 // OpenAPI document describes it, and the audit log reads its parts back. Types are derived.
-
-export const modelRefSchema = z.object({ name: z.string(), version: z.string(), sha256: z.string() });
 
 export const domainCheckSchema = z.object({
   detector: z.string(),
@@ -35,12 +35,12 @@ export const scoreResponseSchema = z
     margin: z.number().describe('largest minus second-largest probability'),
     review: z.boolean().describe('out of domain, or margin below the bundle review margin'),
     domain: scoreDomainSchema,
+    explanation: explanationSchema.optional().describe('present when the item asked for it with `"explain": true`'),
   })
   .meta({ id: 'ScoreResponse' });
 
-export type ModelRef = z.infer<typeof modelRefSchema>;
 export type DomainCheck = z.infer<typeof domainCheckSchema>;
 export type OutsideFeature = z.infer<typeof outsideFeatureSchema>;
 export type ScoreResponse = z.infer<typeof scoreResponseSchema>;
 /** What one scored row comes to, before it is given a request id. */
-export type ScoreOutcome = Omit<ScoreResponse, 'request_id' | 'model'>;
+export type ScoreOutcome = Omit<ScoreResponse, 'request_id' | 'model' | 'explanation'>;

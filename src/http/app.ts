@@ -17,6 +17,7 @@ import models from './routes/models.js';
 import alerts from './routes/alerts.js';
 import metrics from './routes/metrics.js';
 import reports from './routes/reports.js';
+import explanations from './routes/explanations.js';
 import requests from './routes/requests.js';
 import scoring from './routes/scoring.js';
 
@@ -176,6 +177,7 @@ export async function buildApp(runtime: Runtime, options: AppOptions = {}): Prom
       await v1.register(models);
       await v1.register(scoring);
       await v1.register(requests);
+      await v1.register(explanations);
       await v1.register(reports);
       await v1.register(alerts);
     },

@@ -1,6 +1,7 @@
 import type { ModelEntry, ModelRegistry } from '../bundle/registry.js';
 import { ScoreOverflowError, modelRef } from '../bundle/scorer.js';
 import type { ScoreOutcome, ScoreResponse } from '../contracts/score.js';
+import { explainRequested } from './explain.js';
 import { type FieldError, ProblemError, pointer } from '../errors.js';
 import { uuidv7 } from '../ids.js';
 import { LogBackpressureError, LogClosedError, LogWriteError, type RequestLog, type ScoredRow } from '../store/request-log.js';
@@ -8,6 +9,8 @@ import { LogBackpressureError, LogClosedError, LogWriteError, type RequestLog, t
 export interface ScoreItem {
   features: Record<string, number> | number[];
   tags?: Record<string, string> | undefined;
+  /** Answer with an explanation too (issue 18); computed for this item only. */
+  explain?: boolean | undefined;
 }
 
 export interface CallContext {
@@ -124,13 +127,18 @@ export function createScoringService(registry: ModelRegistry, log: RequestLog, o
         throw new ProblemError('invalid-request', 'these values overflow the network; nothing was scored', [{ pointer: at, detail: 'the network gives a non-finite logit for these values' }]);
       }
     }
+    // Checked here, not awaited: an answer without explanations pays no extra turn of the event loop.
+    const explanations = items.some((item) => item.explain === true) ? await explainRequested(entry.bundle, items, x, outcomes) : null;
     const model = modelRef(entry.bundle);
     const latencyUs = ctx.elapsedMs() * 1000;
     const classes = entry.bundle.file.classes;
     const responses: ScoreResponse[] = [];
     const rows: ScoredRow[] = outcomes.map((o, i) => {
       const requestId = batch ? uuidv7() : ctx.requestId;
-      responses.push({ request_id: requestId, model, ...o });
+      // Only on request: an answer without it costs what it cost before.
+      const explanation = explanations?.[i];
+      const explained = explanation !== undefined;
+      responses.push(explained ? { request_id: requestId, model, ...o, explanation } : { request_id: requestId, model, ...o });
       const tags = items[i]?.tags;
       return {
         requestId,
@@ -147,6 +155,7 @@ export function createScoringService(registry: ModelRegistry, log: RequestLog, o
         domain: { checks: o.domain.checks, outside: o.domain.outside },
         latencyUs,
         keyLabel: ctx.keyLabel ?? null,
+        explained,
       };
     });
     try {

@@ -22,6 +22,8 @@ export interface ChainedRow {
   domain: string;
   latency_us: number;
   key_label: string | null;
+  /** Whether the answer carried an explanation: 0 or 1 from migration 006 on, null before. */
+  explained: number | null;
 }
 
 const FIELDS: ReadonlyArray<readonly [keyof ChainedRow, 'num' | 'text' | 'bytes']> = [
@@ -48,6 +50,12 @@ const FIELDS: ReadonlyArray<readonly [keyof ChainedRow, 'num' | 'text' | 'bytes'
  * The bytes a row contributes: its stored columns in a fixed order, numbers as float64 (exact for
  * the integers stored here), text and blobs each after its length as an int32 (-1 for null), so
  * that no two different rows give the same bytes. Written into one buffer sized up front.
+ *
+ * `explained` (migration 006) follows as one more float64 when it is not null, and adds nothing
+ * when it is: rows written before it keep the bytes, and so the hashes, they were sealed with,
+ * and rows written since seal it. Setting or clearing it on any row changes that row's bytes
+ * (the fields before it are length-prefixed, so a row with it never has the bytes of one
+ * without it), and verification names the row.
  */
 export function rowBytes(r: ChainedRow): Buffer {
   return writeRow(r, 0);
@@ -55,7 +63,8 @@ export function rowBytes(r: ChainedRow): Buffer {
 
 /** rowBytes(r) after `front` bytes left for the caller to fill. */
 function writeRow(r: ChainedRow, front: number): Buffer {
-  let size = front;
+  const explained = r.explained ?? null;
+  let size = front + (explained === null ? 0 : 8);
   for (const [key, kind] of FIELDS) {
     const v = r[key];
     size += kind === 'num' ? 8 : 4 + (v === null ? 0 : kind === 'text' ? Buffer.byteLength(v as string, 'utf8') : (v as Buffer).length);
@@ -78,6 +87,7 @@ function writeRow(r: ChainedRow, front: number): Buffer {
       at += b.copy(out, at);
     }
   }
+  if (explained !== null) out.writeDoubleLE(explained, at);
   return out;
 }
 

@@ -22,6 +22,8 @@ export interface ScoredRow {
   latencyUs: number;
   /** Label of the API key the request came with; null when keys are not in use. */
   keyLabel?: string | null;
+  /** Whether the answer carried an explanation. */
+  explained?: boolean;
 }
 
 export interface RejectedRow {
@@ -60,6 +62,7 @@ export function encodeRow(r: ScoredRow): EncodedRow {
     domain: JSON.stringify(r.domain),
     latency_us: Math.round(r.latencyUs),
     key_label: r.keyLabel ?? null,
+    explained: r.explained ? 1 : 0,
   };
 }
 
@@ -79,8 +82,8 @@ export interface Committer {
 export function createCommitter(db: Database, options: { flushRows: number; rejectedRows: number | null }): Committer {
   const insertScored: Statement = db.prepare(`INSERT INTO scored_requests
     (seq, request_id, batch_id, received_at, model_sha256, model_name, model_version, features, tags, label,
-     probabilities, margin, in_domain, review, domain, latency_us, key_label, chain_hash)
-    VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`);
+     probabilities, margin, in_domain, review, domain, latency_us, key_label, explained, chain_hash)
+    VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`);
   // Every row is sealed with the hash of the one before (src/store/chain.ts).
   const readHead = createChainHeadReader(db);
   const insertRejected: Statement = db.prepare(`INSERT INTO rejected_requests
@@ -123,6 +126,7 @@ export function createCommitter(db: Database, options: { flushRows: number; reje
       row.domain,
       row.latency_us,
       row.key_label,
+      row.explained,
       hash,
     );
     return { seq: row.seq, hash };

@@ -87,6 +87,17 @@ function toItem(r: Row, m: ReturnType<ReturnType<typeof createModelCache>>): Log
     domain: JSON.parse(r.domain) as LoggedRequest['domain'],
     latency_ms: r.latency_us / 1000,
     key_label: r.key_label ?? null,
+    explained: r.explained === null || r.explained === undefined ? null : r.explained === 1,
+  };
+}
+
+/** One logged request by its request id, or null. */
+export function createRequestLookup(db: Database): (requestId: string) => LoggedRequest | null {
+  const model = createModelCache(db);
+  const byId = db.prepare('SELECT * FROM scored_requests WHERE request_id = ?');
+  return (requestId) => {
+    const r = byId.get(requestId) as Row | undefined;
+    return r ? toItem(r, model(r.model_sha256)) : null;
   };
 }
 

@@ -10,8 +10,8 @@ import { type Checkpointer, startCheckpointer } from './checkpointer.js';
 import { type DriftStore, createDriftStore } from './drift-store.js';
 import { type ModelRecord, recordModel } from './models-table.js';
 import { type RequestLog, type WriterOptions, createRequestLog } from './request-log.js';
-import type { RequestPage } from '../contracts/logged-request.js';
-import { type RequestFilter, createRequestQuery } from './request-query.js';
+import type { LoggedRequest, RequestPage } from '../contracts/logged-request.js';
+import { type RequestFilter, createRequestLookup, createRequestQuery } from './request-query.js';
 
 /** Everything the rest of the service may ask of the database; SQL stays behind this. */
 export interface Store {
@@ -29,6 +29,8 @@ export interface Store {
   verifyChain(anchor?: ChainAnchor): ChainVerdict;
   recordModel(m: ModelRecord): void;
   queryRequests(filter: RequestFilter, limit: number, cursor?: string): RequestPage;
+  /** One logged request by its request id, or null. */
+  getRequest(requestId: string): LoggedRequest | null;
   /** Whether a write transaction can be opened now (readiness). */
   isWritable(): boolean;
   /** The background checkpointer's record, when there is one. */
@@ -76,6 +78,7 @@ export function openStore(file: string, options: StoreOptions): Store {
     verifyChain: (anchor) => verifyChain(db, anchor),
     recordModel: (m) => recordModel(db, m),
     queryRequests: query,
+    getRequest: createRequestLookup(db),
     isWritable() {
       if (closed) return false;
       try {

@@ -34,6 +34,7 @@ describe('openapi/openapi.json', () => {
       '/v1/models/{name}/score',
       '/v1/models/{name}/score-batch',
       '/v1/requests',
+      '/v1/requests/{id}/explanation',
     ]);
     const score = doc.paths['/v1/models/{name}/score']!.post!;
     expect(score.requestBody).toBeDefined();

@@ -76,6 +76,7 @@ describe('hash chain of the audit log', () => {
             domain: JSON.parse(r.domain) as ScoredRow['domain'],
             latencyUs: r.latency_us,
             keyLabel: r.key_label,
+            explained: r.explained === 1,
           },
         ]);
       }
@@ -135,7 +136,7 @@ describe('hash chain of the audit log', () => {
     tamper((db) => {
       db.prepare('UPDATE scored_requests SET seq = -seq WHERE seq >= 5').run();
       db.prepare('UPDATE scored_requests SET seq = 1 - seq WHERE seq < 0').run();
-      db.prepare("INSERT INTO scored_requests SELECT 5, 'forged', batch_id, received_at, model_sha256, model_name, model_version, features, tags, 'bad', probabilities, margin, in_domain, review, domain, latency_us, key_label, chain_hash FROM scored_requests WHERE seq = 4").run();
+      db.prepare("INSERT INTO scored_requests SELECT 5, 'forged', batch_id, received_at, model_sha256, model_name, model_version, features, tags, 'bad', probabilities, margin, in_domain, review, domain, latency_us, key_label, chain_hash, explained FROM scored_requests WHERE seq = 4").run();
     });
     expect(store.verifyChain().problem).toMatchObject({ kind: 'inserted', seq: 5, request_id: 'forged' });
   });
@@ -226,7 +227,7 @@ describe('retention', () => {
   it('refuses to verify a row put back before the checkpoint', async () => {
     await pruneBefore(store.retention, T0 + 5 * DAY);
     tamper((db) =>
-      db.prepare("INSERT INTO scored_requests SELECT 3, 'forged', batch_id, received_at, model_sha256, model_name, model_version, features, tags, label, probabilities, margin, in_domain, review, domain, latency_us, key_label, chain_hash FROM scored_requests WHERE seq = 6").run(),
+      db.prepare("INSERT INTO scored_requests SELECT 3, 'forged', batch_id, received_at, model_sha256, model_name, model_version, features, tags, label, probabilities, margin, in_domain, review, domain, latency_us, key_label, chain_hash, explained FROM scored_requests WHERE seq = 6").run(),
     );
     expect(store.verifyChain().problem).toMatchObject({ kind: 'inserted', seq: 3 });
   });

@@ -4,6 +4,7 @@ import type { Writable } from 'node:stream';
 import { ScoreOverflowError, createScorer, modelRef } from '../../bundle/scorer.js';
 import type { ScoreOutcome } from '../../contracts/score.js';
 import { readBundle } from '../../bundle/verify.js';
+import { explainerFor } from '../../bundle/explainer.js';
 import { uuidv7 } from '../../ids.js';
 import { DataFileError, openCsv } from '../../io/csv.js';
 import { parseFeatures, planColumns } from '../../io/feature-table.js';
@@ -15,6 +16,8 @@ export interface ScoreContext {
   /** JSON lines go here; standard output when omitted. */
   out?: string;
   batchSize: number;
+  /** Add each answer's explanation (plumbline explain). */
+  explain?: boolean;
 }
 
 export interface ScoreSummary {
@@ -58,23 +61,25 @@ export async function scoreAction(ctx: ScoreContext, io: CliIo): Promise<ScoreSu
     summary.rejected++;
     io.stderr.write(`${err.message}\n`);
   };
-  const render = (o: ScoreOutcome, line: number): string => {
+  const explainer = ctx.explain ? explainerFor(bundle) : null;
+  const render = (o: ScoreOutcome, line: number, row: Float64Array): string => {
     if (!o.domain.in_domain) summary.outOfDomain++;
     summary.scored++;
-    return `${JSON.stringify({ request_id: uuidv7(), model, ...o, line })}\n`;
+    const answer = explainer ? { request_id: uuidv7(), model, ...o, explanation: explainer.explain(row, o.label, o.domain.in_domain), line } : { request_id: uuidv7(), model, ...o, line };
+    return `${JSON.stringify(answer)}\n`;
   };
   const flush = async (): Promise<void> => {
     if (rows === 0) return;
     let text = '';
     try {
-      scorer.scoreRows(x, rows).forEach((o, r) => (text += render(o, lines[r] as number)));
+      scorer.scoreRows(x, rows).forEach((o, r) => (text += render(o, lines[r] as number, x.subarray(r * d, r * d + d))));
     } catch (err) {
       if (!(err instanceof ScoreOverflowError)) throw err;
       // Rare: find the rows that overflow by scoring one at a time.
       text = '';
       for (let r = 0; r < rows; r++) {
         try {
-          text += render(scorer.scoreRows(x.subarray(r * d, r * d + d), 1)[0] as ScoreOutcome, lines[r] as number);
+          text += render(scorer.scoreRows(x.subarray(r * d, r * d + d), 1)[0] as ScoreOutcome, lines[r] as number, x.subarray(r * d, r * d + d));
         } catch (e) {
           if (!(e instanceof ScoreOverflowError)) throw e;
           reject(new DataFileError(ctx.data, lines[r] as number, null, 'the network overflows on these values (a logit is not finite)'));

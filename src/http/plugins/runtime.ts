@@ -10,14 +10,15 @@ declare module 'fastify' {
     registry: Services['registry'];
     metrics: Services['metrics'];
     scoring: Services['scoring'];
+    explanations: Services['explanations'];
     reports: Services['reports'];
     alerting: Services['alerting'];
   }
 }
 
 /**
- * One fastify plugin per part of the runtime (store, registry, metrics, scoring, reports,
- * alerting, jobs), each named, declaring the parts it needs, decorating the app with its part
+ * One fastify plugin per part of the runtime (store, registry, metrics, scoring, explanations,
+ * reports, alerting, jobs), each named, declaring the parts it needs, decorating the app with its part
  * and closing it in an onClose hook. Fastify runs onClose hooks in the reverse order of
  * registration, after the server has stopped taking requests and the in-flight ones have
  * finished: the jobs stop first and the store closes last.

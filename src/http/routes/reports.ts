@@ -8,7 +8,7 @@ import type { DriftReport } from '../../contracts/drift-report.js';
 import { renderReportHtml } from '../../reports/html.js';
 import { ReportError } from '../../reports/service.js';
 import { driftReportSchema } from '../../contracts/drift-report.js';
-import { modelRefSchema } from '../../contracts/score.js';
+import { modelRefSchema } from '../../contracts/model-ref.js';
 import { commonErrors, isoTime, jsonResponse, problemResponse } from '../shared-schemas.js';
 
 export const reportSummarySchema = z.object({

@@ -34,7 +34,8 @@ export function scoringSchemas(limits: Config['limits']) {
     ])
     .describe('feature values in the units the bundle lists; every value a finite number');
   // No registry id: these are built per app from its limits, and ids must be unique.
-  const item = z.strictObject({ features, tags: tags.optional() }).describe('one feature vector to score');
+  const explain = z.boolean().optional().describe('true: the answer also carries `explanation` (why this label, and the nearest change per feature that would change it)');
+  const item = z.strictObject({ features, tags: tags.optional(), explain }).describe('one feature vector to score');
   const batch = z
     .strictObject({
       items: z
