@@ -1,8 +1,8 @@
 import type { FastifyInstance, FastifyReply, FastifyRequest } from 'fastify';
 import fp from 'fastify-plugin';
-import rateLimit from '@fastify/rate-limit';
 import underPressure from '@fastify/under-pressure';
 import { ProblemError } from '../../errors.js';
+import { createRateWindow } from '../rate-window.js';
 
 export interface GuardOptions {
   /** Requests per minute per API key (per client address without keys); 0 for no limit. */
@@ -21,7 +21,7 @@ const HTML_POLICY = "default-src 'none'; style-src 'unsafe-inline'; img-src data
 
 /**
  * What keeps the service up and its answers where they belong: shedding load while the event
- * loop lags (@fastify/under-pressure), a rate limit per key (@fastify/rate-limit), and security
+ * loop lags (@fastify/under-pressure), a rate limit per key (rate-window.ts), and security
  * headers on every answer. Liveness and readiness are never shed or limited.
  */
 async function guards(app: FastifyInstance, options: GuardOptions): Promise<void> {
@@ -45,16 +45,25 @@ async function guards(app: FastifyInstance, options: GuardOptions): Promise<void
     });
   }
   if (options.requestsPerMinute > 0) {
-    await app.register(rateLimit, {
-      max: options.requestsPerMinute,
-      timeWindow: 60_000,
-      // Per key when keys are in use (auth runs first, on onRequest), else per client address.
-      keyGenerator: (req) => (req.apiKey ? `key:${req.apiKey.id}` : `ip:${req.ip}`),
-      allowList: (req) => isPublic(req),
-      errorResponseBuilder: (req, ctx) =>
-        new ProblemError('rate-limited', `more than ${ctx.max} requests a minute came from this ${req.apiKey ? 'key' : 'address'} (limits.requests_per_minute); retry in ${ctx.after}`, undefined, {
-          'retry-after': String(Math.max(1, Math.ceil(ctx.ttl / 1000))),
+    // Per key when keys are in use (auth runs first, on onRequest), else per client address.
+    const window = createRateWindow(options.requestsPerMinute, 60_000);
+    app.addHook('onRequest', (req, reply, done) => {
+      if (isPublic(req)) {
+        done();
+        return;
+      }
+      const v = window.take(req.apiKey ? `key:${req.apiKey.id}` : `ip:${req.ip}`, Date.now());
+      const reset = Math.max(1, Math.ceil(v.resetMs / 1000));
+      reply.headers({ 'x-ratelimit-limit': v.limit, 'x-ratelimit-remaining': v.remaining, 'x-ratelimit-reset': reset });
+      if (v.allowed) {
+        done();
+        return;
+      }
+      done(
+        new ProblemError('rate-limited', `more than ${v.limit} requests a minute came from this ${req.apiKey ? 'key' : 'address'} (limits.requests_per_minute); retry in ${reset} s`, undefined, {
+          'retry-after': String(reset),
         }),
+      );
     });
   }
   const closing = options.closing ?? (() => false);
