@@ -84,6 +84,8 @@ export const configSchema = z
       on_error: z.enum(['fail', 'serve']).default('fail'),
       /** Where commits run: on the event loop, or on a thread of their own (pays where a core is free). */
       writer: z.enum(['event-loop', 'thread']).default('event-loop'),
+      /** The write-ahead log file is kept under this many bytes under load (src/store/wal-bound.ts). */
+      wal_max_bytes: int(2 ** 20, 2 ** 40).default(64 * 2 ** 20),
     })
     .prefault({}),
   /** The nightly drift report. */

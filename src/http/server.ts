@@ -74,6 +74,7 @@ export async function startServer(
     flushRows: config.log.flush_rows,
     queueRows: config.log.queue_rows,
     rejectedRows: config.log.rejected_rows,
+    walMaxBytes: config.log.wal_max_bytes,
     backgroundCheckpoints: true,
     writerThread: config.log.writer === "thread",
   });

@@ -6,10 +6,11 @@ import { type KeysStore, createKeysStore } from './keys-store.js';
 import { type Retention, createRetention } from './retention.js';
 import { createChainHeadReader } from './chain-head.js';
 import { sealPreChainRows } from './seal.js';
-import { type Checkpointer, startCheckpointer } from './checkpointer.js';
+import { type CheckpointerStats, startCheckpointer } from './checkpointer.js';
 import { type DriftStore, createDriftStore } from './drift-store.js';
 import { type ModelRecord, recordModel } from './models-table.js';
 import { type RequestLog, type WriterOptions, createRequestLog } from './request-log.js';
+import { DEFAULT_WAL_MAX_BYTES, createWalGate } from './wal-bound.js';
 import { type RequestFilter, type RequestPage, createRequestQuery } from './request-query.js';
 
 /** Everything the rest of the service may ask of the database; SQL stays behind this. */
@@ -31,7 +32,7 @@ export interface Store {
   /** Whether a write transaction can be opened now (readiness). */
   isWritable(): boolean;
   /** The background checkpointer's record, when there is one. */
-  checkpoints(): ReturnType<Checkpointer['stats']> | null;
+  checkpoints(): CheckpointerStats | null;
   close(): void;
 }
 
@@ -55,9 +56,10 @@ export function openStore(file: string, options: StoreOptions): Store {
   // When the checkpoint thread stops, the writer thread's connection checkpoints again too (the
   // log does not exist yet if that happens at once; it then starts with checkpoints on).
   let started: RequestLog | null = null;
-  const checkpointer = options.backgroundCheckpoints ? startCheckpointer(db, file, 1000, () => started?.autocheckpoint(true)) : null;
+  const checkpointer = options.backgroundCheckpoints ? startCheckpointer(db, { file, intervalMs: 1000, onInline: () => started?.autocheckpoint(true) }) : null;
   const thread = options.writerThread && file !== ':memory:' ? { file, sync: options.sync, autocheckpoint: checkpointer === null || checkpointer.stats().inline } : undefined;
-  const log = createRequestLog(db, options, thread);
+  // Past half of log.wal_max_bytes, the log holds its next commit for a full checkpoint (wal-bound.ts).
+  const log = createRequestLog(db, options, thread, checkpointer ? { walGate: createWalGate(options.walMaxBytes ?? DEFAULT_WAL_MAX_BYTES, () => checkpointer.finish()) } : {});
   started = log;
   const query = createRequestQuery(db);
   const drift = createDriftStore(db);

@@ -48,6 +48,7 @@ export async function startTestService(options: { bundles?: AnyBundleFile[]; con
     flushRows: config.log.flush_rows,
     queueRows: config.log.queue_rows,
     rejectedRows: config.log.rejected_rows,
+    walMaxBytes: config.log.wal_max_bytes,
   });
   const registry = await createModelRegistry(modelsDir, (e) => store.recordModel(modelRecord(e)));
   const app = await buildApp(createServices(config, registry, store), options.logger ? { logger: options.logger } : {});
