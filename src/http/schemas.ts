@@ -215,6 +215,7 @@ export const readySchema = z.object({
   status: z.enum(['ready', 'not ready']),
   models: z.number().int(),
   database: z.enum(['writable', 'not writable']),
+  reason: z.string().optional().describe('why the audit log cannot be written, when it cannot: the last commit\'s or test write\'s error'),
 });
 
 const nullableNumber = z.number().nullable();

@@ -11,6 +11,7 @@ import { type DriftStore, createDriftStore } from './drift-store.js';
 import { type ModelRecord, recordModel } from './models-table.js';
 import { type RequestLog, type WriterOptions, createRequestLog } from './request-log.js';
 import { DEFAULT_WAL_MAX_BYTES, createWalGate } from './wal-bound.js';
+import { type WriteState, createWriteHealth } from './write-health.js';
 import { type RequestFilter, type RequestPage, createRequestQuery } from './request-query.js';
 
 /** Everything the rest of the service may ask of the database; SQL stays behind this. */
@@ -29,7 +30,12 @@ export interface Store {
   verifyChain(anchor?: ChainAnchor): ChainVerdict;
   recordModel(m: ModelRecord): void;
   queryRequests(filter: RequestFilter, limit: number, cursor?: string): RequestPage;
-  /** Whether a write transaction can be opened now (readiness). */
+  /**
+   * Whether the audit log can be written now (readiness): the last commits succeeded, or a test
+   * write does (write-health.ts), and the write lock can be taken.
+   */
+  writeState(): WriteState;
+  /** writeState().writable. */
   isWritable(): boolean;
   /** The background checkpointer's record, when there is one. */
   checkpoints(): CheckpointerStats | null;
@@ -58,15 +64,38 @@ export function openStore(file: string, options: StoreOptions): Store {
   let started: RequestLog | null = null;
   const checkpointer = options.backgroundCheckpoints ? startCheckpointer(db, { file, intervalMs: 1000, onInline: () => started?.autocheckpoint(true) }) : null;
   const thread = options.writerThread && file !== ':memory:' ? { file, sync: options.sync, autocheckpoint: checkpointer === null || checkpointer.stats().inline } : undefined;
-  // Past half of log.wal_max_bytes, the log holds its next commit for a full checkpoint (wal-bound.ts).
-  const log = createRequestLog(db, options, thread, checkpointer ? { walGate: createWalGate(options.walMaxBytes ?? DEFAULT_WAL_MAX_BYTES, () => checkpointer.finish()) } : {});
+  let closed = false;
+  const probe = db.prepare('INSERT INTO write_probe (id, at) VALUES (1, ?) ON CONFLICT (id) DO UPDATE SET at = excluded.at');
+  const health = createWriteHealth(() => {
+    if (closed) throw new Error('the store is closed');
+    probe.run(Date.now());
+  });
+  const log = createRequestLog(db, options, thread, {
+    onStorage: (error) => health.record(error),
+    // Past half of log.wal_max_bytes, the log holds its next commit for a full checkpoint (wal-bound.ts).
+    ...(checkpointer ? { walGate: createWalGate(options.walMaxBytes ?? DEFAULT_WAL_MAX_BYTES, () => checkpointer.finish()) } : {}),
+  });
   started = log;
   const query = createRequestQuery(db);
   const drift = createDriftStore(db);
   const alerts = createAlertsStore(db);
   const keys = createKeysStore(db);
-  const probe = db.prepare('SELECT 1');
-  let closed = false;
+  const lockProbe = db.prepare('SELECT 1');
+  const writeState = (): WriteState => {
+    if (closed) return { writable: false, reason: 'the store is closed' };
+    const state = health.state();
+    if (!state.writable) return state;
+    try {
+      // BEGIN IMMEDIATE takes the write lock: it fails while another process holds it.
+      db.exec('BEGIN IMMEDIATE');
+      lockProbe.get();
+      db.exec('ROLLBACK');
+      return state;
+    } catch (err) {
+      if (db.inTransaction) db.exec('ROLLBACK');
+      return { writable: false, reason: `the write lock cannot be taken: ${(err as Error).message}` };
+    }
+  };
   return {
     file,
     log,
@@ -77,19 +106,8 @@ export function openStore(file: string, options: StoreOptions): Store {
     verifyChain: (anchor) => verifyChain(db, anchor),
     recordModel: (m) => recordModel(db, m),
     queryRequests: query,
-    isWritable() {
-      if (closed) return false;
-      try {
-        // BEGIN IMMEDIATE takes the write lock: it fails on a read-only or locked database.
-        db.exec('BEGIN IMMEDIATE');
-        probe.get();
-        db.exec('ROLLBACK');
-        return true;
-      } catch {
-        if (db.inTransaction) db.exec('ROLLBACK');
-        return false;
-      }
-    },
+    writeState,
+    isWritable: () => writeState().writable,
     checkpoints: () => checkpointer?.stats() ?? null,
     close() {
       if (closed) return;
