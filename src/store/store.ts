@@ -1,7 +1,10 @@
+import { mkdirSync } from 'node:fs';
+import { dirname } from 'node:path';
 import type { Database } from 'better-sqlite3';
 import { type AlertsStore, createAlertsStore } from './alerts-store.js';
 import { type ChainAnchor, type ChainVerdict, verifyChain } from './audit-verify.js';
-import { type OpenOptions, openDatabase } from './database.js';
+import { DatabaseUnwritableError, type OpenOptions, isUnwritable, openDatabase } from './database.js';
+import { type ServeLock, acquireServeLock } from './serve-lock.js';
 import { type KeysStore, createKeysStore } from './keys-store.js';
 import { type Retention, createRetention } from './retention.js';
 import { createChainHeadReader } from './chain-head.js';
@@ -47,16 +50,42 @@ export interface StoreOptions extends OpenOptions, WriterOptions {
   backgroundCheckpoints?: boolean;
   /** Commit scored rows on a worker thread of their own, off the event loop (the serving process). */
   writerThread?: boolean;
+  /**
+   * The serving process: hold the lock file beside the database (serve-lock.ts; a second server
+   * is refused) and check at once that the database can be written.
+   */
+  serve?: { version: string };
 }
 
 export function openStore(file: string, options: StoreOptions): Store {
-  const db: Database = openDatabase(file, options);
-  sealPreChainRows(db);
+  const serving = options.serve !== undefined && file !== ':memory:';
+  let lock: ServeLock | null = null;
+  if (serving) {
+    try {
+      mkdirSync(dirname(file), { recursive: true });
+      lock = acquireServeLock(file);
+    } catch (err) {
+      throw isUnwritable(err) ? new DatabaseUnwritableError(file, err) : err;
+    }
+  }
+  let db: Database;
   try {
+    db = openDatabase(file, options);
+  } catch (err) {
+    lock?.release();
+    throw err;
+  }
+  try {
+    // A database opened read-only (an immutable file) migrates without a write when it is up to
+    // date: this first write says so at start, not at the first answer.
+    if (lock && options.serve) lock.announce(db, options.serve.version);
+    sealPreChainRows(db);
     // The newest row must be sealed for the next to chain on; if not, the log was tampered with.
     createChainHeadReader(db)();
   } catch (err) {
     db.close();
+    lock?.release();
+    if (isUnwritable(err)) throw new DatabaseUnwritableError(file, err);
     throw new StoreIntegrityError(`${file}: ${(err as Error).message}; run plumbline audit verify --db ${file}`);
   }
   // When the checkpoint thread stops, the writer thread's connection checkpoints again too (the
@@ -115,6 +144,7 @@ export function openStore(file: string, options: StoreOptions): Store {
       closed = true;
       checkpointer?.stop();
       db.close();
+      lock?.release();
     },
   };
 }
