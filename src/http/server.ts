@@ -77,7 +77,7 @@ export async function startServer(
     walMaxBytes: config.log.wal_max_bytes,
     backgroundCheckpoints: true,
     writerThread: config.log.writer === "thread",
-    serve: { version: VERSION },
+    serve: { version: VERSION, onFenced: (reason) => log.error({ db: config.db }, reason) },
   });
   let app: FastifyInstance | null = null;
   let alerting: Alerting | null = null;

@@ -34,6 +34,8 @@ export interface Checkpointer {
 export interface CheckpointerOptions {
   file: string;
   intervalMs?: number;
+  /** Where to keep the chain head after each checkpoint (head-file.ts). */
+  headFile?: string | null;
   /** The worker stopped: the connections checkpoint on their own again. */
   onInline?: () => void;
 }
@@ -68,7 +70,7 @@ export function startCheckpointer(db: Database, options: CheckpointerOptions): C
     }
     options.onInline?.();
   };
-  const data: CheckpointerData = { file: options.file, intervalMs: options.intervalMs ?? 1000 };
+  const data: CheckpointerData = { file: options.file, intervalMs: options.intervalMs ?? 1000, headFile: options.headFile ?? null };
   let worker: Worker;
   try {
     worker = startModuleWorker(import.meta.url, 'checkpoint-worker', { workerData: data });

@@ -2,8 +2,10 @@ import { mkdirSync } from 'node:fs';
 import { dirname } from 'node:path';
 import type { Database } from 'better-sqlite3';
 import { type AlertsStore, createAlertsStore } from './alerts-store.js';
-import { type ChainAnchor, type ChainVerdict, verifyChain } from './audit-verify.js';
+import { type ChainAnchor, type ChainVerdict, checkAnchor, verifyChain } from './audit-verify.js';
 import { DatabaseUnwritableError, type OpenOptions, isUnwritable, openDatabase } from './database.js';
+import { changedIdentity, recordIdentity } from './file-identity.js';
+import { headFilePath, readHeadFile, writeHeadFile } from './head-file.js';
 import { type ServeLock, acquireServeLock } from './serve-lock.js';
 import { type KeysStore, createKeysStore } from './keys-store.js';
 import { type Retention, createRetention } from './retention.js';
@@ -42,6 +44,8 @@ export interface Store {
   isWritable(): boolean;
   /** The background checkpointer's record, when there is one. */
   checkpoints(): CheckpointerStats | null;
+  /** The file beside the database where the chain head is kept (the serving process only). */
+  readonly headFile: string | null;
   close(): void;
 }
 
@@ -52,9 +56,12 @@ export interface StoreOptions extends OpenOptions, WriterOptions {
   writerThread?: boolean;
   /**
    * The serving process: hold the lock file beside the database (serve-lock.ts; a second server
-   * is refused) and check at once that the database can be written.
+   * is refused), check at once that the database can be written, check the chain head kept
+   * beside it (head-file.ts) and keep it at each checkpoint, and, with background checkpoints,
+   * watch that the database's files stay the ones opened (file-identity.ts); `onFenced` hears
+   * when they did not, and the log stops acknowledging.
    */
-  serve?: { version: string };
+  serve?: { version: string; onFenced?: (reason: string) => void };
 }
 
 export function openStore(file: string, options: StoreOptions): Store {
@@ -75,6 +82,7 @@ export function openStore(file: string, options: StoreOptions): Store {
     lock?.release();
     throw err;
   }
+  const headFile = serving ? headFilePath(file) : null;
   try {
     // A database opened read-only (an immutable file) migrates without a write when it is up to
     // date: this first write says so at start, not at the first answer.
@@ -82,23 +90,59 @@ export function openStore(file: string, options: StoreOptions): Store {
     sealPreChainRows(db);
     // The newest row must be sealed for the next to chain on; if not, the log was tampered with.
     createChainHeadReader(db)();
+    if (headFile) checkHeadFile(db, file, headFile);
   } catch (err) {
     db.close();
     lock?.release();
+    if (err instanceof StoreIntegrityError) throw err;
     if (isUnwritable(err)) throw new DatabaseUnwritableError(file, err);
     throw new StoreIntegrityError(`${file}: ${(err as Error).message}; run plumbline audit verify --db ${file}`);
   }
-  // When the checkpoint thread stops, the writer thread's connection checkpoints again too (the
-  // log does not exist yet if that happens at once; it then starts with checkpoints on).
-  let started: RequestLog | null = null;
-  const checkpointer = options.backgroundCheckpoints ? startCheckpointer(db, { file, intervalMs: 1000, onInline: () => started?.autocheckpoint(true) }) : null;
-  const thread = options.writerThread && file !== ':memory:' ? { file, sync: options.sync, autocheckpoint: checkpointer === null || checkpointer.stats().inline } : undefined;
   let closed = false;
   const probe = db.prepare('INSERT INTO write_probe (id, at) VALUES (1, ?) ON CONFLICT (id) DO UPDATE SET at = excluded.at');
   const health = createWriteHealth(() => {
     if (closed) throw new Error('the store is closed');
     probe.run(Date.now());
   });
+  // When the checkpoint thread stops, the writer thread's connection checkpoints again too (the
+  // log does not exist yet if that happens at once; it then starts with checkpoints on).
+  let started: RequestLog | null = null;
+  const fence = (reason: string): void => {
+    if (health.fenced() !== null) return;
+    const message = `${reason}; nothing more is acknowledged until plumbline is restarted, and plumbline audit verify --db ${file} says whether rows were lost`;
+    health.fence(message);
+    started?.fence(message);
+    // What the connections still hold in the WAL they opened goes into the database file they
+    // opened, so that rows already answered are not left only in a removed file.
+    try {
+      db.pragma('wal_checkpoint(FULL)');
+    } catch {
+      // nothing more can be done from here
+    }
+    options.serve?.onFenced?.(message);
+  };
+  const checkpointer = options.backgroundCheckpoints
+    ? startCheckpointer(db, {
+        file,
+        intervalMs: 1000,
+        ...(headFile ? { headFile } : {}),
+        onInline: () => started?.autocheckpoint(true),
+      })
+    : null;
+  // Every second, beside the checkpoints: the files the connections hold must still be the ones
+  // at these paths (file-identity.ts). A stat of two files; off the event loop it would be no cheaper.
+  const identity = serving ? recordIdentity([file, `${file}-wal`]) : [];
+  const watch = serving
+    ? setInterval(() => {
+        const reason = changedIdentity(identity);
+        if (reason !== null) {
+          fence(reason);
+          clearInterval(watch as NodeJS.Timeout);
+        }
+      }, 1000)
+    : null;
+  watch?.unref();
+  const thread = options.writerThread && file !== ':memory:' ? { file, sync: options.sync, autocheckpoint: checkpointer === null || checkpointer.stats().inline } : undefined;
   const log = createRequestLog(db, options, thread, {
     onStorage: (error) => health.record(error),
     // Past half of log.wal_max_bytes, the log holds its next commit for a full checkpoint (wal-bound.ts).
@@ -131,6 +175,7 @@ export function openStore(file: string, options: StoreOptions): Store {
     drift,
     alerts,
     keys,
+    headFile,
     retention: createRetention(db),
     verifyChain: (anchor) => verifyChain(db, anchor),
     recordModel: (m) => recordModel(db, m),
@@ -142,11 +187,41 @@ export function openStore(file: string, options: StoreOptions): Store {
       if (closed) return;
       log.close();
       closed = true;
+      if (watch) clearInterval(watch);
       checkpointer?.stop();
+      if (headFile) keepHeadAtClose(db, headFile);
       db.close();
       lock?.release();
     },
   };
+}
+
+/**
+ * At start: the head kept beside the database must still be in the log. If rows were cut from
+ * its end (a WAL removed under a running server, then a crash; a restore of an older copy), the
+ * server does not chain new rows over the gap, which would leave the cut for only an audit to find.
+ */
+function checkHeadFile(db: Database, file: string, headFile: string): void {
+  const head = readHeadFile(headFile);
+  if (head === null) return;
+  const check = head instanceof Error ? null : checkAnchor(db, head);
+  if (check && (check.outcome === 'held' || check.outcome === 'pruned')) return;
+  const problem = head instanceof Error ? head.message : (check as { detail: string }).detail;
+  throw new StoreIntegrityError(
+    `${file}: the chain head kept in ${headFile} is not in the log: ${problem}. plumbline audit verify --db ${file} names what is missing; ` +
+      `to serve on with the log as it is, move ${headFile} aside (and keep it: it records what was lost)`,
+  );
+}
+
+/** At a clean close, the head of everything committed, after a checkpoint has synced it. */
+function keepHeadAtClose(db: Database, headFile: string): void {
+  try {
+    const head = createChainHeadReader(db)();
+    const [r] = db.pragma('wal_checkpoint(PASSIVE)') as Array<{ busy: number }>;
+    if (r?.busy === 0 && head.seq > 0) writeHeadFile(headFile, { seq: head.seq, hash: head.hash.toString('hex') });
+  } catch {
+    // The head of the last checkpoint stays; it is older, not wrong.
+  }
 }
 
 /** The audit log cannot be written on: its hash chain is broken at its head. */
