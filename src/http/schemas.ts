@@ -1,6 +1,7 @@
 import { z } from 'zod';
 import type { Config } from '../config.js';
 import { MAX_FEATURE_MAGNITUDE } from '../core/network.js';
+import { NOT_WELL_FORMED } from './json-scan.js';
 
 // Request and response schemas, declared once: routes validate with them and the OpenAPI
 // document is generated from them.
@@ -36,10 +37,11 @@ export function jsonResponse<T extends z.ZodType>(description: string, schema: T
 }
 
 /** Every route can also answer with these, as problem+json. */
-// A lone UTF-16 surrogate (from a "\ud800" escape) has no UTF-8 form: it could not be stored as sent.
+// A lone UTF-16 surrogate (from a "\ud800" escape) has no UTF-8 form: it could not be stored as
+// sent. The JSON parser refuses it first (json-body.ts); this keeps the schema saying so too.
 const LONE_SURROGATE = /[\ud800-\udbff](?![\udc00-\udfff])|(?<![\ud800-\udbff])[\udc00-\udfff]/;
 const wellFormed = (s: string): boolean => !LONE_SURROGATE.test(s);
-const WELL_FORMED = 'must be well-formed Unicode (no lone surrogate escapes such as \\ud800)';
+const WELL_FORMED = NOT_WELL_FORMED;
 
 export const commonErrors = {
   default: problemResponse(
