@@ -11,6 +11,23 @@ const oneProblem = (req: FastifyRequest, at: Array<string | number>, detail: str
   new ProblemError('invalid-request', `the body has 1 problem${scores(req) ? '; nothing was scored' : ''}`, [{ pointer: pointer(at), detail }]);
 
 /**
+ * Transfer codings other than chunked are not undone here (nor by Node), so a body sent with one
+ * would be read as if it had none. RFC 9112, section 6.1, says a server SHOULD answer 501 to a
+ * coding it does not understand; this one answers 400, as the HTTP parser does for other unknown
+ * codings (rot13 before chunked), so that a client's mistake does not count as a server fault.
+ */
+export function checkTransferCoding(req: FastifyRequest): ProblemError | null {
+  const te = req.headers['transfer-encoding'];
+  if (te === undefined) return null;
+  const codings = te.split(',').map((c) => c.trim().toLowerCase());
+  const unknown = codings.filter((c) => c !== 'chunked');
+  if (unknown.length === 0) return null;
+  return new ProblemError('invalid-request', `the body must be sent as it is, or chunked; transfer-encoding ${unknown.join(', ').slice(0, 64)} is not undone here (RFC 9112, section 6.1)`, [
+    { header: 'transfer-encoding', detail: 'must be absent or chunked' },
+  ]);
+}
+
+/**
  * JSON bodies (RFC 8259), read from the bytes: refused when they are not UTF-8 (section 8.1), when
  * they hold __proto__ or constructor.prototype keys (prototype poisoning, as fastify refuses
  * them), when a name is given twice in one object, or when a string is not well-formed Unicode;
@@ -27,6 +44,11 @@ export function parseJsonBody(req: FastifyRequest, body: string | Buffer, done: 
   const coding = req.headers['content-encoding'];
   if (coding !== undefined && coding.trim().toLowerCase() !== 'identity') {
     done(new ProblemError('unsupported-media-type', `the body must not be encoded (content-encoding: ${coding.slice(0, 64)}); send plain JSON`, [{ header: 'content-encoding', detail: 'must be absent or identity' }]));
+    return;
+  }
+  const transfer = checkTransferCoding(req);
+  if (transfer) {
+    done(transfer);
     return;
   }
   const bytes = typeof body === 'string' ? Buffer.from(body, 'utf8') : body;
