@@ -125,6 +125,8 @@ export const configSchema = z
       requests_per_minute: int(0, 10_000_000).default(60_000),
       /** Answer 503 overloaded while the event loop lags more than this; 0 to never. */
       event_loop_delay_ms: int(0, 60_000).default(1000),
+      /** The largest bundle file read from the models directory (src/bundle/directory-file.ts). */
+      bundle_bytes: int(1024, 512 * 2 ** 20).default(64 * 2 ** 20),
     })
     .prefault({}),
   })

@@ -87,7 +87,7 @@ export async function startServer(
     const exposure = checkExposure({ host: config.host, auth: config.auth, keys: keys.length, liveKeys: keys.filter((k) => k.revoked_at === null).length });
     if (exposure) log.warn(exposure);
     const https = config.tls.cert !== undefined && config.tls.key !== undefined ? readTls(config.tls.cert, config.tls.key) : undefined;
-    const registry = await createModelRegistry(config.models_dir, (e) => store.recordModel(modelRecord(e)));
+    const registry = await createModelRegistry(config.models_dir, (e) => store.recordModel(modelRecord(e)), { maxBytes: config.limits.bundle_bytes });
     if (registry.list().length === 0) log.warn({ dir: config.models_dir }, 'no *.bundle.json in the models directory; scoring answers 404 until one is added and SIGHUP sent');
     const services = createServices(config, registry, store, { log });
     // Webhook secrets are resolved before listening, so that a missing one stops the start.

@@ -50,7 +50,7 @@ export async function startTestService(options: { bundles?: AnyBundleFile[]; con
     rejectedRows: config.log.rejected_rows,
     walMaxBytes: config.log.wal_max_bytes,
   });
-  const registry = await createModelRegistry(modelsDir, (e) => store.recordModel(modelRecord(e)));
+  const registry = await createModelRegistry(modelsDir, (e) => store.recordModel(modelRecord(e)), { maxBytes: config.limits.bundle_bytes });
   const app = await buildApp(createServices(config, registry, store), options.logger ? { logger: options.logger } : {});
   await app.ready();
   const db = new BetterSqlite3(dbFile, { readonly: true });
