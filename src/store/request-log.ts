@@ -299,7 +299,8 @@ export function createRequestLog(db: Database, options: WriterOptions, thread?: 
         if (hold !== null) {
           held = hold;
           void hold.finally(() => {
-            held = null;
+            // flush() may have let go of this hold, and a later commit taken another.
+            if (held === hold) held = null;
             if (queue.length > 0 || rejected.length > 0) schedule();
           });
         }
