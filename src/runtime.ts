@@ -13,6 +13,7 @@ import { type ExplanationService, createExplanationService } from './scoring/exp
 import { type ScoringService, createScoringService } from './scoring/service.js';
 import type { ModelRecord } from './store/models-table.js';
 import { type Store, type StoreOptions, openStore } from './store/store.js';
+import { VERSION } from './version.js';
 
 /** What the routes, the CLI and the jobs are given: every part of a running service. */
 export interface Services {
@@ -73,6 +74,7 @@ export function storeOptions(config: Config, serve: boolean): StoreOptions {
     flushRows: config.log.flush_rows,
     queueRows: config.log.queue_rows,
     rejectedRows: config.log.rejected_rows,
+    walMaxBytes: config.log.wal_max_bytes,
     backgroundCheckpoints: serve,
     writerThread: serve && config.log.writer === 'thread',
   };
@@ -123,10 +125,14 @@ export async function openRuntime(config: Config, options: RuntimeOptions = {}):
   });
 
   try {
-    const store = openStore(config.db, storeOptions(config, serve));
+    // The serving process holds the database (one server per file) and keeps the chain head beside it.
+    const store = openStore(config.db, {
+      ...storeOptions(config, serve),
+      ...(serve ? { serve: { version: VERSION, onFenced: (reason: string) => log.error({ db: config.db }, reason) } } : {}),
+    });
     add('store', [], store, () => store.close());
 
-    const registry = options.models === false ? emptyRegistry() : await createModelRegistry(config.models_dir, (e) => store.recordModel(modelRecord(e)));
+    const registry = options.models === false ? emptyRegistry() : await createModelRegistry(config.models_dir, (e) => store.recordModel(modelRecord(e)), { maxBytes: config.limits.bundle_bytes });
     add('registry', ['store'], registry);
     if (serve) {
       const kernel = kernelStatus();

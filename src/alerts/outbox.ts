@@ -17,8 +17,17 @@ export interface DeliveryPolicy {
 }
 
 export interface Deliverer {
-  /** Sends every delivery that is due now; resolves when each has been answered or failed. */
+  /**
+   * Starts a delivery pass for each webhook with deliveries due now and none under way; resolves
+   * when the passes it started are done. A webhook whose pass is still under way (a receiver
+   * that does not answer) is left to it: no receiver waits on another.
+   */
   tick(now?: number): Promise<void>;
+  /**
+   * Abandons the attempts under way (they stay pending, to be sent again after a restart: at
+   * least once) and resolves once every pass has ended, so that the store can be closed.
+   */
+  stop(): Promise<void>;
 }
 
 /**
@@ -53,7 +62,9 @@ export function resolveWebhooks(
 export function createDeliverer(deps: { store: AlertsStore; webhooks: Record<string, WebhookTarget>; policy: DeliveryPolicy; log: Logger; fetch?: typeof fetch }): Deliverer {
   const { store, webhooks, policy, log } = deps;
   const send = deps.fetch ?? fetch;
-  let busy: Promise<void> | null = null;
+  /** The pass under way for each webhook. */
+  const busy = new Map<string, Promise<void>>();
+  const stopping = new AbortController();
 
   const attempt = async (d: OutboxRow, now: number): Promise<void> => {
     const target = webhooks[d.webhook];
@@ -69,15 +80,18 @@ export function createDeliverer(deps: { store: AlertsStore; webhooks: Record<str
         method: 'POST',
         headers: { 'content-type': 'application/cloudevents+json; charset=utf-8', ...signDelivery(target.key, d.event_id, Math.floor(Date.now() / 1000), d.body) },
         body: d.body,
-        signal: AbortSignal.timeout(target.timeoutMs),
+        signal: AbortSignal.any([AbortSignal.timeout(target.timeoutMs), stopping.signal]),
       });
       await res.arrayBuffer().catch(() => undefined);
+      if (stopping.signal.aborted) return;
       if (res.status >= 200 && res.status < 300) {
         store.markDelivered(d.seq, Date.now());
         return;
       }
       error = `answered ${res.status}`;
     } catch (err) {
+      // Shutting down: not an attempt that failed; it stays pending as it was.
+      if (stopping.signal.aborted) return;
       error = (err as Error).name === 'TimeoutError' ? `no answer within ${target.timeoutMs} ms` : (err as Error).message;
     }
     if (now - d.created_at >= policy.giveUpAfter) {
@@ -89,24 +103,33 @@ export function createDeliverer(deps: { store: AlertsStore; webhooks: Record<str
     log.warn({ webhook: d.webhook, event: d.event_id, attempts, error }, 'alert delivery will be retried');
   };
 
+  /** Delivers what is due for one webhook until nothing more is due now. */
+  const pass = async (webhook: string, now: number): Promise<void> => {
+    while (!stopping.signal.aborted) {
+      const due = store.dueDeliveries(now, 100, webhook);
+      if (due.length === 0) return;
+      // A delivered row frees the next of its key for the next round; a retried one is due
+      // again only later, so the loop ends.
+      await Promise.all(due.map((d) => attempt(d, now)));
+    }
+  };
+
   return {
     tick(now = Date.now()) {
-      // One pass at a time: a slow receiver must not get a second copy of a delivery in flight.
-      if (busy) return busy;
-      const pass = async (): Promise<void> => {
-        for (;;) {
-          const due = store.dueDeliveries(now, 100);
-          if (due.length === 0) return;
-          // A delivered row frees the next of its key for the next round; a retried one is due
-          // again only later, so the loop ends.
-          await Promise.all(due.map((d) => attempt(d, now)));
-        }
-      };
-      // .finally runs after the assignment even when the pass finds nothing to do.
-      busy = pass().finally(() => {
-        busy = null;
-      });
-      return busy;
+      if (stopping.signal.aborted) return Promise.resolve();
+      const started: Array<Promise<void>> = [];
+      for (const webhook of new Set(store.dueDeliveries(now, 100).map((d) => d.webhook))) {
+        // One pass per webhook at a time: a slow receiver must not get a second copy of a delivery in flight.
+        if (busy.has(webhook)) continue;
+        const run = pass(webhook, now).finally(() => busy.delete(webhook));
+        busy.set(webhook, run);
+        started.push(run);
+      }
+      return Promise.all(started).then(() => undefined);
+    },
+    async stop() {
+      stopping.abort();
+      await Promise.allSettled([...busy.values()]);
     },
   };
 }

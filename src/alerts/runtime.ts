@@ -37,11 +37,15 @@ export function startAlerting(deps: { config: Config; registry: ModelRegistry; s
   const d = config.alerts.delivery;
   const deliverer = createDeliverer({ store: store.alerts, webhooks: resolveWebhooks(config.alerts.webhooks, deps.env), policy: { retryBase: d.retry_base, retryCap: d.retry_cap, giveUpAfter: d.give_up_after }, log });
   let stopped = false;
-  let delivering: Promise<void> = Promise.resolve();
+  // The gauge is set on every call, before the passes: a pass may hang on a receiver for its
+  // whole timeout, and the depth must not wait for it.
+  const countPending = (): void => metrics.outboxDepth.set(store.alerts.pendingDeliveries());
   const deliver = (now?: number): Promise<void> => {
-    if (stopped) return delivering;
-    delivering = deliverer.tick(now).then(() => metrics.outboxDepth.set(store.alerts.pendingDeliveries()));
-    return delivering;
+    if (stopped) return Promise.resolve();
+    countPending();
+    return deliverer.tick(now).then(() => {
+      if (!stopped) countPending();
+    });
   };
   const tick = async (now?: number): Promise<void> => {
     evaluator.tick(now);
@@ -53,7 +57,7 @@ export function startAlerting(deps: { config: Config; registry: ModelRegistry; s
     timers.push(setInterval(() => void deliver().catch((err: unknown) => log.error({ err }, 'alert delivery failed')), 1000));
     for (const t of timers) t.unref();
   }
-  metrics.outboxDepth.set(store.alerts.pendingDeliveries());
+  countPending();
   return {
     evaluator,
     deliverer,
@@ -61,7 +65,8 @@ export function startAlerting(deps: { config: Config; registry: ModelRegistry; s
     async stop() {
       stopped = true;
       for (const t of timers) clearInterval(t);
-      await delivering;
+      // Attempts under way are abandoned, not failed, so that the store can close now.
+      await deliverer.stop();
     },
   };
 }

@@ -1,7 +1,8 @@
 import { readdir } from 'node:fs/promises';
 import { join } from 'node:path';
+import { DirectoryFileError, readDirectoryFile } from './directory-file.js';
 import { type Scorer, createScorer } from './scorer.js';
-import { BundleError, type LoadedBundle, readBundle } from './verify.js';
+import { BundleError, type LoadedBundle, parseBundle } from './verify.js';
 
 export interface ModelEntry {
   name: string;
@@ -24,11 +25,23 @@ export class RegistryError extends Error {
 
 export const BUNDLE_SUFFIX = '.bundle.json';
 
+/** limits.bundle_bytes by default: the largest bundle file read. */
+export const DEFAULT_BUNDLE_BYTES = 64 * 2 ** 20;
+
+export interface DirectoryOptions {
+  now?: () => Date;
+  /** limits.bundle_bytes. */
+  maxBytes?: number;
+}
+
 /**
- * Reads and verifies every *.bundle.json in dir. All-or-nothing: any bad bundle, or two bundles
- * with one name, fails the whole set with every problem listed.
+ * Reads and verifies every *.bundle.json in dir: regular files only, or links to regular files
+ * inside dir, of at most maxBytes (directory-file.ts). All-or-nothing: any bad bundle, or two
+ * bundles with one name, fails the whole set with every problem listed.
  */
-export async function loadModelDirectory(dir: string, now: () => Date = () => new Date()): Promise<Map<string, ModelEntry>> {
+export async function loadModelDirectory(dir: string, options: DirectoryOptions = {}): Promise<Map<string, ModelEntry>> {
+  const now = options.now ?? (() => new Date());
+  const maxBytes = options.maxBytes ?? DEFAULT_BUNDLE_BYTES;
   let files: string[];
   try {
     files = (await readdir(dir)).filter((f) => f.endsWith(BUNDLE_SUFFIX)).sort();
@@ -40,7 +53,14 @@ export async function loadModelDirectory(dir: string, now: () => Date = () => ne
   for (const file of files) {
     const path = join(dir, file);
     try {
-      const bundle = await readBundle(path);
+      let text: string;
+      try {
+        text = await readDirectoryFile(dir, file, maxBytes);
+      } catch (err) {
+        if (err instanceof DirectoryFileError) throw new BundleError(path, [{ path: '', message: err.message }]);
+        throw new BundleError(path, [{ path: '', message: `cannot be read (${(err as NodeJS.ErrnoException).code ?? (err as Error).message})` }]);
+      }
+      const bundle = parseBundle(text, path);
       const name = bundle.file.name;
       const twin = entries.get(name);
       if (twin) {
@@ -68,15 +88,15 @@ export interface ModelRegistry {
   reload(): Promise<ModelEntry[]>;
 }
 
-export async function createModelRegistry(dir: string, onLoaded: (e: ModelEntry) => void = () => undefined): Promise<ModelRegistry> {
-  let current = await loadModelDirectory(dir);
+export async function createModelRegistry(dir: string, onLoaded: (e: ModelEntry) => void = () => undefined, options: DirectoryOptions = {}): Promise<ModelRegistry> {
+  let current = await loadModelDirectory(dir, options);
   for (const e of current.values()) onLoaded(e);
   return {
     dir,
     get: (name) => current.get(name),
     list: () => [...current.values()],
     async reload() {
-      const next = await loadModelDirectory(dir);
+      const next = await loadModelDirectory(dir, options);
       // Keep the first load time of a bundle that did not change.
       for (const [name, e] of next) {
         const old = current.get(name);

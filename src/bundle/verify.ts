@@ -56,11 +56,16 @@ export function parseBundle(text: string, source: string): LoadedBundle {
   try {
     json = JSON.parse(text);
   } catch (err) {
-    throw new BundleError(source, [{ path: '', message: `is not JSON (${(err as Error).message})` }]);
+    // The parser's message quotes the text it stopped at: a file that is not a bundle (a link to
+    // /etc/passwd) would have its first line put into a message and a log. Its position only.
+    const at = /at position (\d+)/.exec((err as Error).message)?.[1];
+    throw new BundleError(source, [{ path: '', message: `is not JSON${at !== undefined ? ` (the parser stopped at character ${at})` : ''}` }]);
   }
   const format = typeof json === 'object' && json !== null && 'format' in json ? (json as { format: unknown }).format : undefined;
   if (format !== undefined && !(BUNDLE_FORMATS as readonly unknown[]).includes(format)) {
-    throw new BundleError(source, [{ path: 'format', message: `is ${JSON.stringify(format)}, this reader takes ${BUNDLE_FORMATS.map((f) => JSON.stringify(f)).join(' or ')}` }]);
+    // Quoted only when it looks like a format name, not whatever a file put there.
+    const shown = typeof format === 'string' && /^plumbline-bundle\/[A-Za-z0-9.-]{1,16}$/.test(format) ? `is ${JSON.stringify(format)}` : 'is not a bundle format this reader takes';
+    throw new BundleError(source, [{ path: 'format', message: `${shown}; this reader takes ${BUNDLE_FORMATS.map((f) => JSON.stringify(f)).join(' or ')}` }]);
   }
   const parsed = format === BUNDLE_FORMAT_V1 ? bundleV1Schema.safeParse(json) : bundleSchema.safeParse(json);
   if (!parsed.success) {

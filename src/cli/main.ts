@@ -7,6 +7,8 @@ import { BundleError } from '../bundle/verify.js';
 import { ConfigError } from '../config/config.js';
 import { MigrationError } from '../store/migrate.js';
 import { StoreIntegrityError } from '../store/store.js';
+import { DatabaseUnwritableError } from '../store/database.js';
+import { DatabaseHeldError } from '../store/serve-lock.js';
 import { DataFileError } from '../io/csv.js';
 import { DataFileErrors } from '../io/feature-table.js';
 import { UsageError } from './io.js';
@@ -23,6 +25,14 @@ function report(err: unknown): number {
   if (err instanceof BundleError || err instanceof DataFileError || err instanceof DataFileErrors || err instanceof ConfigError || err instanceof RegistryError || err instanceof MigrationError || err instanceof ExposureError || err instanceof StoreIntegrityError || err instanceof OnnxError) {
     process.stderr.write(`plumbline: ${err.message}\n`);
     return 2;
+  }
+  if (err instanceof DatabaseUnwritableError) {
+    process.stderr.write(`plumbline: ${err.message}\n`);
+    return 73; // EX_CANTCREAT of sysexits.h: the output file (the audit log) cannot be written
+  }
+  if (err instanceof DatabaseHeldError) {
+    process.stderr.write(`plumbline: ${err.message}\n`);
+    return 75; // EX_TEMPFAIL of sysexits.h: try again once the other server has stopped
   }
   process.stderr.write(`plumbline: unexpected error: ${err instanceof Error ? (err.stack ?? err.message) : String(err)}\n`);
   return 70; // EX_SOFTWARE of sysexits.h

@@ -84,6 +84,8 @@ export const configSchema = z
       on_error: z.enum(['fail', 'serve']).default('fail'),
       /** Where commits run: on the event loop, or on a thread of their own (pays where a core is free). */
       writer: z.enum(['event-loop', 'thread']).default('event-loop'),
+      /** The write-ahead log file is kept under this many bytes under load (src/store/wal-bound.ts). */
+      wal_max_bytes: int(2 ** 20, 2 ** 40).default(64 * 2 ** 20),
     })
     .prefault({}),
   /** The nightly drift report. */
@@ -123,6 +125,8 @@ export const configSchema = z
       requests_per_minute: int(0, 10_000_000).default(60_000),
       /** Answer 503 overloaded while the event loop lags more than this; 0 to never. */
       event_loop_delay_ms: int(0, 60_000).default(1000),
+      /** The largest bundle file read from the models directory (src/bundle/directory-file.ts). */
+      bundle_bytes: int(1024, 512 * 2 ** 20).default(64 * 2 ** 20),
     })
     .prefault({}),
   })

@@ -88,7 +88,8 @@ export async function buildApp(runtime: Runtime, options: AppOptions = {}): Prom
   // JSON only: fastify would otherwise hand a text/plain body to the schema as a string. Our own
   // JSON parser keeps the reason a body does not parse, which fastify's drops.
   app.removeContentTypeParser(['text/plain', 'application/json']);
-  app.addContentTypeParser('application/json', { parseAs: 'string' }, parseJsonBody);
+  // As bytes: a string would already have U+FFFD in place of invalid UTF-8 (json-body.ts).
+  app.addContentTypeParser('application/json', { parseAs: 'buffer' }, parseJsonBody);
 
   await app.register(swagger, {
     openapi: {

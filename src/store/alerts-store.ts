@@ -63,8 +63,8 @@ export interface AlertsStore {
   /** Records a clear and queues its deliveries, in one transaction. */
   clear(id: string, value: number, at: number, deliveries: NewDelivery[]): void;
   listAlerts(filter: AlertFilter, limit: number, beforeSeq?: number): AlertRow[];
-  /** Pending deliveries due now, each the oldest pending one of its webhook and ordering key. */
-  dueDeliveries(now: number, limit: number): OutboxRow[];
+  /** Pending deliveries due now, each the oldest pending one of its webhook and ordering key; of one webhook when given. */
+  dueDeliveries(now: number, limit: number, webhook?: string): OutboxRow[];
   markDelivered(seq: number, at: number): void;
   markRetry(seq: number, attempts: number, next: number, error: string): void;
   markFailed(seq: number, attempts: number, error: string): void;
@@ -91,7 +91,7 @@ export function createAlertsStore(db: Database): AlertsStore {
      VALUES (?, ?, ?, ?, 'pending', ?, ?)`,
   );
   const due = db.prepare(
-    `SELECT * FROM outbox o WHERE o.status = 'pending' AND o.next_attempt_at <= ?
+    `SELECT * FROM outbox o WHERE o.status = 'pending' AND o.next_attempt_at <= ? AND (? IS NULL OR o.webhook = ?)
        AND NOT EXISTS (SELECT 1 FROM outbox p WHERE p.status = 'pending' AND p.webhook = o.webhook AND p.ordering_key = o.ordering_key AND p.seq < o.seq)
      ORDER BY o.seq LIMIT ?`,
   );
@@ -144,7 +144,7 @@ export function createAlertsStore(db: Database): AlertsStore {
       }
       return db.prepare(`SELECT * FROM alerts ${where.length ? `WHERE ${where.join(' AND ')}` : ''} ORDER BY seq DESC LIMIT ?`).all(...args, limit) as AlertRow[];
     },
-    dueDeliveries: (now, limit) => due.all(now, limit) as OutboxRow[],
+    dueDeliveries: (now, limit, webhook) => due.all(now, webhook ?? null, webhook ?? null, limit) as OutboxRow[],
     markDelivered: (seq, at) => void delivered.run(at, seq),
     markRetry: (seq, attempts, next, error) => void retry.run(attempts, next, error.slice(0, 500), seq),
     markFailed: (seq, attempts, error) => void failed.run(attempts, error.slice(0, 500), seq),

@@ -93,3 +93,30 @@ export function verifyChain(db: Database, anchor?: ChainAnchor): ChainVerdict {
   }
   return verdict(null);
 }
+
+/** Whether the log holds a recorded head, looked up without walking the chain. */
+export type AnchorCheck = { outcome: 'held' | 'pruned' } | { outcome: 'removed' | 'different'; detail: string };
+
+/**
+ * Checks one recorded head against the log without walking the chain (the start-up check of the
+ * head file, and audit verify's): the row must be there with that hash, or lie behind a retention
+ * checkpoint. Whether the rows up to it chain is the walk's business (verifyChain).
+ */
+export function checkAnchor(db: Database, anchor: ChainAnchor): AnchorCheck {
+  const want = anchor.hash.toLowerCase();
+  const row = db.prepare('SELECT chain_hash FROM scored_requests WHERE seq = ?').get(anchor.seq) as { chain_hash: Buffer | null } | undefined;
+  if (row) {
+    const hash = row.chain_hash?.toString('hex') ?? 'none';
+    return hash === want ? { outcome: 'held' } : { outcome: 'different', detail: `row ${anchor.seq} has chain hash ${hash}, not the ${anchor.hash} recorded: the log was rewritten up to there` };
+  }
+  const cp = db.prepare('SELECT seq, chain_hash FROM chain_checkpoints ORDER BY seq DESC LIMIT 1').get() as { seq: number; chain_hash: Buffer } | undefined;
+  if (cp && anchor.seq <= cp.seq) {
+    if (anchor.seq === cp.seq && cp.chain_hash.toString('hex') !== want) {
+      return { outcome: 'different', detail: `the retention checkpoint at row ${cp.seq} has chain hash ${cp.chain_hash.toString('hex')}, not the ${anchor.hash} recorded` };
+    }
+    return { outcome: 'pruned' };
+  }
+  const last = (db.prepare('SELECT MAX(seq) AS seq FROM scored_requests').get() as { seq: number | null }).seq ?? cp?.seq ?? 0;
+  if (last > anchor.seq) return { outcome: 'removed', detail: `row ${anchor.seq}, recorded as a head, is missing from the log` };
+  return { outcome: 'removed', detail: `the log ends at row ${last}, but row ${anchor.seq} was recorded: rows from ${last + 1} on were removed` };
+}

@@ -2,6 +2,7 @@ import type { Database, Statement } from 'better-sqlite3';
 import { createChainHeadReader, type ChainHead } from './chain-head.js';
 import { type ChainedRow, chainHash } from './chain.js';
 import { toFloat64Blob } from './float64-blob.js';
+import { createWalWatch } from './wal-bound.js';
 
 // The commits of the audit log, the same whether they run on the event loop or on the writer
 // thread (log-worker.ts): rows in, per request committed or not out.
@@ -72,14 +73,34 @@ export interface CommitOutcome {
   transactions: number;
   failedTransactions: number;
   lastError: string | null;
+  /**
+   * Set when a commit failed for a reason of the storage (a full disk, a read-only or locked
+   * file, an I/O error) rather than of one request's rows: readiness hears of it.
+   */
+  storageError: string | null;
+  /** The WAL file's size after the commits, when measured (0 otherwise). */
+  walBytes: number;
 }
 
 export interface Committer {
+  /** Whether this connection checkpoints the WAL itself past its trigger (wal-bound.ts). */
+  setInline(on: boolean): void;
   /** Commits each request's rows, all or none of a request, in transactions of at most flushRows rows. */
   commit(requests: EncodedRow[][], rejected: RejectedRow[]): CommitOutcome;
 }
 
-export function createCommitter(db: Database, options: { flushRows: number; rejectedRows: number | null }): Committer {
+export interface CommitterOptions {
+  flushRows: number;
+  rejectedRows: number | null;
+  /**
+   * The database file and log.wal_max_bytes (wal-bound.ts): the WAL is measured after each
+   * commit, and with `inline` (no checkpoint thread) the writer checkpoints it itself.
+   */
+  wal?: { file: string; maxBytes: number; inline: boolean };
+}
+
+export function createCommitter(db: Database, options: CommitterOptions): Committer {
+  const wal = options.wal ? createWalWatch(db, options.wal.file, options.wal.maxBytes, options.wal.inline) : null;
   const insertScored: Statement = db.prepare(`INSERT INTO scored_requests
     (seq, request_id, batch_id, received_at, model_sha256, model_name, model_version, features, tags, label,
      probabilities, margin, in_domain, review, domain, latency_us, key_label, explained, chain_hash)
@@ -143,8 +164,9 @@ export function createCommitter(db: Database, options: { flushRows: number; reje
   }).immediate;
 
   return {
+    setInline: (on) => wal?.setInline(on),
     commit(requests, rejected) {
-      const out: CommitOutcome = { failed: [], transactions: 0, failedTransactions: 0, lastError: startError };
+      const out: CommitOutcome = { failed: [], transactions: 0, failedTransactions: 0, lastError: startError, storageError: null, walBytes: 0 };
       startError = null;
       /** One transaction for requests [from, to); on a constraint failure, each alone. */
       const settle = (from: number, to: number): void => {
@@ -159,6 +181,7 @@ export function createCommitter(db: Database, options: { flushRows: number; reje
           // full disk, an I/O error) would fail each retry alike, and retrying one by one would hold
           // the writer for a busy timeout per request: fail the group at once.
           const code = (err as { code?: string }).code ?? '';
+          if (!code.startsWith('SQLITE_CONSTRAINT')) out.storageError = (err as Error).message;
           if (to - from === 1 || !code.startsWith('SQLITE_CONSTRAINT')) {
             for (let i = from; i < to; i++) out.failed.push({ index: i, message: (err as Error).message });
             return;
@@ -173,6 +196,7 @@ export function createCommitter(db: Database, options: { flushRows: number; reje
             out.lastError = (err as Error).message;
             out.failedTransactions++;
             out.failed.push({ index: i, message: (err as Error).message });
+            if (!((err as { code?: string }).code ?? '').startsWith('SQLITE_CONSTRAINT')) out.storageError = (err as Error).message;
           }
         }
       };
@@ -199,8 +223,10 @@ export function createCommitter(db: Database, options: { flushRows: number; reje
           }
         } catch (err) {
           out.lastError = (err as Error).message;
+          out.storageError = (err as Error).message;
         }
       }
+      if (wal && out.transactions > 0) out.walBytes = wal.afterCommit();
       return out;
     },
   };

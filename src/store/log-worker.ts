@@ -10,6 +10,7 @@ export interface WriterData {
   sync: 'normal' | 'full';
   flushRows: number;
   rejectedRows: number | null;
+  walMaxBytes: number;
   /** false while another thread runs the WAL checkpoints. */
   autocheckpoint: boolean;
   port: MessagePort;
@@ -37,7 +38,7 @@ try {
   db.pragma('foreign_keys = ON');
   db.pragma('busy_timeout = 250');
   if (!data.autocheckpoint) db.pragma('wal_autocheckpoint = 0');
-  committer = createCommitter(db, { flushRows: data.flushRows, rejectedRows: data.rejectedRows });
+  committer = createCommitter(db, { flushRows: data.flushRows, rejectedRows: data.rejectedRows, wal: { file: data.file, maxBytes: data.walMaxBytes, inline: data.autocheckpoint } });
 } catch (err) {
   failure = `the audit log writer could not open ${data.file}: ${(err as Error).message}`;
 }
@@ -57,11 +58,12 @@ port.on('message', (m: WriterRequest) => {
       outcome = committer.commit(m.requests, m.rejected);
     } catch (err) {
       const message = (err as Error).message;
-      outcome = { failed: m.requests.map((_, index) => ({ index, message })), transactions: 0, failedTransactions: 1, lastError: message };
+      outcome = { failed: m.requests.map((_, index) => ({ index, message })), transactions: 0, failedTransactions: 1, lastError: message, storageError: message, walBytes: 0 };
     }
     answer({ type: 'committed', id: m.id, outcome });
   } else if (m.type === 'autocheckpoint') {
     db?.pragma(`wal_autocheckpoint = ${m.on ? 1000 : 0}`);
+    committer?.setInline(m.on);
   } else {
     db?.close();
     port.close();

@@ -1,5 +1,5 @@
 import BetterSqlite3, { type Database } from 'better-sqlite3';
-import { type ChainAnchor, type ChainVerdict, verifyChain } from './audit-verify.js';
+import { type AnchorCheck, type ChainAnchor, type ChainVerdict, checkAnchor, verifyChain } from './audit-verify.js';
 import { type DriftStore, createDriftStore } from './drift-store.js';
 
 /**
@@ -12,6 +12,8 @@ export interface AuditReader {
   /** Whether the log has been migrated to the hash chain (a log from before it has not). */
   hasChain(): boolean;
   verifyChain(anchor?: ChainAnchor): ChainVerdict;
+  /** Whether the log still holds a head recorded earlier (the head file, or one given). */
+  checkAnchor(anchor: ChainAnchor): AnchorCheck;
   close(): void;
 }
 
@@ -22,6 +24,7 @@ export function openAuditReader(file: string): AuditReader {
     drift: createDriftStore(db),
     hasChain: () => db.prepare("SELECT 1 FROM pragma_table_info('scored_requests') WHERE name = 'chain_hash'").get() !== undefined,
     verifyChain: (anchor) => verifyChain(db, anchor),
+    checkAnchor: (anchor) => checkAnchor(db, anchor),
     close: () => db.close(),
   };
 }

@@ -3,6 +3,7 @@ import { MessageChannel, receiveMessageOnPort } from 'node:worker_threads';
 import { startModuleWorker } from '../worker-boot.js';
 import { type CommitOutcome, type Committer, type EncodedRow, type RejectedRow, type ScoredRow, createCommitter, encodeRow } from './log-commit.js';
 import type { WriterAnswer, WriterData, WriterRequest } from './log-worker.js';
+import { DEFAULT_WAL_MAX_BYTES } from './wal-bound.js';
 
 export type { RejectedRow, ScoredRow } from './log-commit.js';
 
@@ -15,6 +16,8 @@ export interface WriterOptions {
   queueRows: number;
   /** Newest rejected rows kept; null for a tool that must leave the table as it is. */
   rejectedRows: number | null;
+  /** log.wal_max_bytes: the WAL file is kept under it (wal-bound.ts); 64 MiB when not given. */
+  walMaxBytes?: number;
 }
 
 /** The queue is full: the caller should answer 503 and ask the client to retry. */
@@ -72,8 +75,26 @@ export interface RequestLog {
   stats(): LogStats;
   /** Commits what waits and refuses further rows. */
   close(): void;
-  /** Whether the writer thread's connection checkpoints the WAL on its commits (SQLite's default). */
+  /** Whether the writing connection checkpoints the WAL itself (SQLite's default, and wal-bound.ts). */
   autocheckpoint(on: boolean): void;
+  /**
+   * Stops acknowledging for good: the database's files were replaced or removed under the
+   * service, so a commit may land where no restart will find it. Appends are refused, and rows
+   * whose commit is in flight are failed even if committed (a 503 may be answered for a row that
+   * is in the log; never a 200 for one that may not be).
+   */
+  fence(reason: string): void;
+}
+
+/** What the store hears from the log, and how it holds it (all optional: the CLI gives none). */
+export interface LogHooks {
+  /** After each batch: null when its commits succeeded, else the storage error that failed them. */
+  onStorage?(error: string | null): void;
+  /**
+   * The WAL's size after a commit; a promise returned holds the next commit until it settles
+   * (wal-bound.ts createWalGate). Given only while a checkpoint thread runs.
+   */
+  walGate?(walBytes: number): Promise<void> | null;
 }
 
 /** The writer thread: the database file to open and how. */
@@ -103,7 +124,7 @@ function loopSink(committer: Committer): Sink {
     send: (requests, rejected, done) => done(committer.commit(requests, rejected)),
     busy: () => false,
     drain: () => undefined,
-    autocheckpoint: () => undefined,
+    autocheckpoint: (on) => committer.setInline(on),
     close: () => undefined,
   };
 }
@@ -124,7 +145,7 @@ const IN_FLIGHT = 4;
 function threadSink(thread: WriterThreadOptions, options: WriterOptions, onAnswer: () => void, onFail: (reason: string) => void): Sink {
   const { port1, port2 } = new MessageChannel();
   const answered = new Int32Array(new SharedArrayBuffer(4));
-  const data: WriterData = { ...thread, flushRows: options.flushRows, rejectedRows: options.rejectedRows, port: port2, answered };
+  const data: WriterData = { ...thread, flushRows: options.flushRows, rejectedRows: options.rejectedRows, walMaxBytes: options.walMaxBytes ?? DEFAULT_WAL_MAX_BYTES, port: port2, answered };
   const worker = startModuleWorker(import.meta.url, 'log-worker', { workerData: data, transferList: [port2] });
   worker.unref();
   let state: 'starting' | 'ready' | 'failed' | 'stopped' = 'starting';
@@ -137,7 +158,7 @@ function threadSink(thread: WriterThreadOptions, options: WriterOptions, onAnswe
     port1.close();
     const batches = [...inFlight.values()];
     inFlight.clear();
-    for (const b of batches) b.done({ failed: Array.from({ length: b.requests }, (_, index) => ({ index, message: reason })), transactions: 0, failedTransactions: 1, lastError: reason });
+    for (const b of batches) b.done({ failed: Array.from({ length: b.requests }, (_, index) => ({ index, message: reason })), transactions: 0, failedTransactions: 1, lastError: reason, storageError: null, walBytes: 0 });
     onFail(reason);
   };
   const handle = (m: WriterAnswer): void => {
@@ -201,8 +222,12 @@ function threadSink(thread: WriterThreadOptions, options: WriterOptions, onAnswe
  * `thread`, the commits run on a worker thread of their own (the service); without it, or when
  * that thread fails, on the event loop with `db` (the CLI, tests).
  */
-export function createRequestLog(db: Database, options: WriterOptions, thread?: WriterThreadOptions): RequestLog {
+export function createRequestLog(db: Database, options: WriterOptions, thread?: WriterThreadOptions, hooks: LogHooks = {}): RequestLog {
   let queue: Pending[] = [];
+  /** Set once the files were replaced under the log: nothing is acknowledged after. */
+  let fenced: string | null = null;
+  /** A checkpoint the next commit waits for (wal-bound.ts); rows queue meanwhile. */
+  let held: Promise<void> | null = null;
   let rejected: RejectedRow[] = [];
   /** Rows queued or in flight. */
   let waiting = 0;
@@ -210,7 +235,8 @@ export function createRequestLog(db: Database, options: WriterOptions, thread?: 
   let timerImmediate = false;
   let closed = false;
   const stats: Omit<LogStats, 'waitingRows' | 'writer'> = { committedRows: 0, failedRows: 0, transactions: 0, failedTransactions: 0, lastError: null };
-  const onLoop = (): Sink => loopSink(createCommitter(db, options));
+  const onLoop = (): Sink =>
+    loopSink(createCommitter(db, { ...options, wal: { file: db.name, maxBytes: options.walMaxBytes ?? DEFAULT_WAL_MAX_BYTES, inline: hooks.walGate === undefined || (thread?.autocheckpoint ?? false) } }));
   let sink: Sink;
   if (thread) {
     sink = threadSink(
@@ -246,7 +272,7 @@ export function createRequestLog(db: Database, options: WriterOptions, thread?: 
 
   function flushNow(): void {
     cancel();
-    if (sink.busy() || (queue.length === 0 && rejected.length === 0)) return;
+    if (held !== null || sink.busy() || (queue.length === 0 && rejected.length === 0)) return;
     const pending: Pending[] = [];
     const requests: EncodedRow[][] = [];
     for (const p of queue) {
@@ -266,10 +292,23 @@ export function createRequestLog(db: Database, options: WriterOptions, thread?: 
       stats.transactions += o.transactions;
       stats.failedTransactions += o.failedTransactions;
       if (o.lastError !== null) stats.lastError = o.lastError;
+      if (o.storageError !== null) hooks.onStorage?.(o.storageError);
+      else if (o.transactions > 0) hooks.onStorage?.(null);
+      if (o.walBytes > 0 && held === null && !closed) {
+        const hold = hooks.walGate?.(o.walBytes) ?? null;
+        if (hold !== null) {
+          held = hold;
+          void hold.finally(() => {
+            // flush() may have let go of this hold, and a later commit taken another.
+            if (held === hold) held = null;
+            if (queue.length > 0 || rejected.length > 0) schedule();
+          });
+        }
+      }
       const failed = new Map(o.failed.map((f) => [f.index, f.message]));
       pending.forEach((p, i) => {
         waiting -= p.rows.length;
-        const message = failed.get(i);
+        const message = fenced ?? failed.get(i);
         if (message === undefined) {
           stats.committedRows += p.rows.length;
           p.resolve();
@@ -284,6 +323,7 @@ export function createRequestLog(db: Database, options: WriterOptions, thread?: 
   return {
     append(rows) {
       if (closed) return Promise.reject(new LogClosedError());
+      if (fenced !== null) return Promise.reject(new LogWriteError(new Error(fenced)));
       if (waiting + rows.length > options.queueRows) return Promise.reject(new LogBackpressureError(waiting));
       return new Promise<void>((resolve, reject) => {
         queue.push({ rows, resolve, reject });
@@ -298,6 +338,8 @@ export function createRequestLog(db: Database, options: WriterOptions, thread?: 
       schedule();
     },
     flush() {
+      // Synchronous: a held commit goes now (at shutdown a checkpoint is not worth the wait).
+      held = null;
       do {
         flushNow();
         sink.drain();
@@ -311,6 +353,19 @@ export function createRequestLog(db: Database, options: WriterOptions, thread?: 
       sink.close();
     },
     autocheckpoint: (on) => sink.autocheckpoint(on),
+    fence(reason) {
+      if (fenced !== null) return;
+      fenced = reason;
+      stats.lastError = reason;
+      // What waits in the queue is refused now; what is in flight is failed when it comes back.
+      const waitingNow = queue;
+      queue = [];
+      for (const p of waitingNow) {
+        waiting -= p.rows.length;
+        stats.failedRows += p.rows.length;
+        p.reject(new LogWriteError(new Error(reason)));
+      }
+    },
   };
 }
 

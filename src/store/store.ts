@@ -1,17 +1,24 @@
+import { mkdirSync } from 'node:fs';
+import { dirname } from 'node:path';
 import type { Database } from 'better-sqlite3';
 import { type AlertsStore, createAlertsStore } from './alerts-store.js';
-import { type ChainAnchor, type ChainVerdict, verifyChain } from './audit-verify.js';
-import { type OpenOptions, openDatabase } from './database.js';
+import { type ChainAnchor, type ChainVerdict, checkAnchor, verifyChain } from './audit-verify.js';
+import { DatabaseUnwritableError, type OpenOptions, isUnwritable, openDatabase } from './database.js';
+import { changedIdentity, recordIdentity } from './file-identity.js';
+import { headFilePath, readHeadFile, writeHeadFile } from './head-file.js';
+import { type ServeLock, acquireServeLock } from './serve-lock.js';
 import { type KeysStore, createKeysStore } from './keys-store.js';
 import { type Retention, createRetention } from './retention.js';
 import { createChainHeadReader } from './chain-head.js';
 import { sealPreChainRows } from './seal.js';
-import { type Checkpointer, startCheckpointer } from './checkpointer.js';
+import { type CheckpointerStats, startCheckpointer } from './checkpointer.js';
 import { type DriftStore, createDriftStore } from './drift-store.js';
 import { type ModelRecord, recordModel } from './models-table.js';
 import { type RequestLog, type WriterOptions, createRequestLog } from './request-log.js';
 import type { LoggedRequest, RequestPage } from '../contracts/logged-request.js';
 import { type RequestFilter, createRequestLookup, createRequestQuery } from './request-query.js';
+import { DEFAULT_WAL_MAX_BYTES, createWalGate } from './wal-bound.js';
+import { type WriteState, createWriteHealth } from './write-health.js';
 
 /** Everything the rest of the service may ask of the database; SQL stays behind this. */
 export interface Store {
@@ -32,9 +39,17 @@ export interface Store {
   /** One logged request by its request id, or null. */
   getRequest(requestId: string): LoggedRequest | null;
   /** Whether a write transaction can be opened now (readiness). */
+  /**
+   * Whether the audit log can be written now (readiness): the last commits succeeded, or a test
+   * write does (write-health.ts), and the write lock can be taken.
+   */
+  writeState(): WriteState;
+  /** writeState().writable. */
   isWritable(): boolean;
   /** The background checkpointer's record, when there is one. */
-  checkpoints(): ReturnType<Checkpointer['stats']> | null;
+  checkpoints(): CheckpointerStats | null;
+  /** The file beside the database where the chain head is kept (the serving process only). */
+  readonly headFile: string | null;
   close(): void;
 }
 
@@ -43,64 +58,175 @@ export interface StoreOptions extends OpenOptions, WriterOptions {
   backgroundCheckpoints?: boolean;
   /** Commit scored rows on a worker thread of their own, off the event loop (the serving process). */
   writerThread?: boolean;
+  /**
+   * The serving process: hold the lock file beside the database (serve-lock.ts; a second server
+   * is refused), check at once that the database can be written, check the chain head kept
+   * beside it (head-file.ts) and keep it at each checkpoint, and, with background checkpoints,
+   * watch that the database's files stay the ones opened (file-identity.ts); `onFenced` hears
+   * when they did not, and the log stops acknowledging.
+   */
+  serve?: { version: string; onFenced?: (reason: string) => void };
 }
 
 export function openStore(file: string, options: StoreOptions): Store {
-  const db: Database = openDatabase(file, options);
-  sealPreChainRows(db);
+  const serving = options.serve !== undefined && file !== ':memory:';
+  let lock: ServeLock | null = null;
+  if (serving) {
+    try {
+      mkdirSync(dirname(file), { recursive: true });
+      lock = acquireServeLock(file);
+    } catch (err) {
+      throw isUnwritable(err) ? new DatabaseUnwritableError(file, err) : err;
+    }
+  }
+  let db: Database;
   try {
+    db = openDatabase(file, options);
+  } catch (err) {
+    lock?.release();
+    throw err;
+  }
+  const headFile = serving ? headFilePath(file) : null;
+  try {
+    // A database opened read-only (an immutable file) migrates without a write when it is up to
+    // date: this first write says so at start, not at the first answer.
+    if (lock && options.serve) lock.announce(db, options.serve.version);
+    sealPreChainRows(db);
     // The newest row must be sealed for the next to chain on; if not, the log was tampered with.
     createChainHeadReader(db)();
+    if (headFile) checkHeadFile(db, file, headFile);
   } catch (err) {
     db.close();
+    lock?.release();
+    if (err instanceof StoreIntegrityError) throw err;
+    if (isUnwritable(err)) throw new DatabaseUnwritableError(file, err);
     throw new StoreIntegrityError(`${file}: ${(err as Error).message}; run plumbline audit verify --db ${file}`);
   }
+  let closed = false;
+  const probe = db.prepare('INSERT INTO write_probe (id, at) VALUES (1, ?) ON CONFLICT (id) DO UPDATE SET at = excluded.at');
+  const health = createWriteHealth(() => {
+    if (closed) throw new Error('the store is closed');
+    probe.run(Date.now());
+  });
   // When the checkpoint thread stops, the writer thread's connection checkpoints again too (the
   // log does not exist yet if that happens at once; it then starts with checkpoints on).
   let started: RequestLog | null = null;
-  const checkpointer = options.backgroundCheckpoints ? startCheckpointer(db, file, 1000, () => started?.autocheckpoint(true)) : null;
+  const fence = (reason: string): void => {
+    if (health.fenced() !== null) return;
+    const message = `${reason}; nothing more is acknowledged until plumbline is restarted, and plumbline audit verify --db ${file} says whether rows were lost`;
+    health.fence(message);
+    started?.fence(message);
+    // What the connections still hold in the WAL they opened goes into the database file they
+    // opened, so that rows already answered are not left only in a removed file.
+    try {
+      db.pragma('wal_checkpoint(FULL)');
+    } catch {
+      // nothing more can be done from here
+    }
+    options.serve?.onFenced?.(message);
+  };
+  const checkpointer = options.backgroundCheckpoints
+    ? startCheckpointer(db, {
+        file,
+        intervalMs: 1000,
+        ...(headFile ? { headFile } : {}),
+        onInline: () => started?.autocheckpoint(true),
+      })
+    : null;
+  // Every second, beside the checkpoints: the files the connections hold must still be the ones
+  // at these paths (file-identity.ts). A stat of two files; off the event loop it would be no cheaper.
+  const identity = serving ? recordIdentity([file, `${file}-wal`]) : [];
+  const watch = serving
+    ? setInterval(() => {
+        const reason = changedIdentity(identity);
+        if (reason !== null) {
+          fence(reason);
+          clearInterval(watch as NodeJS.Timeout);
+        }
+      }, 1000)
+    : null;
+  watch?.unref();
   const thread = options.writerThread && file !== ':memory:' ? { file, sync: options.sync, autocheckpoint: checkpointer === null || checkpointer.stats().inline } : undefined;
-  const log = createRequestLog(db, options, thread);
+  const log = createRequestLog(db, options, thread, {
+    onStorage: (error) => health.record(error),
+    // Past half of log.wal_max_bytes, the log holds its next commit for a full checkpoint (wal-bound.ts).
+    ...(checkpointer ? { walGate: createWalGate(options.walMaxBytes ?? DEFAULT_WAL_MAX_BYTES, () => checkpointer.finish()) } : {}),
+  });
   started = log;
   const query = createRequestQuery(db);
   const drift = createDriftStore(db);
   const alerts = createAlertsStore(db);
   const keys = createKeysStore(db);
-  const probe = db.prepare('SELECT 1');
-  let closed = false;
+  const lockProbe = db.prepare('SELECT 1');
+  const writeState = (): WriteState => {
+    if (closed) return { writable: false, reason: 'the store is closed' };
+    const state = health.state();
+    if (!state.writable) return state;
+    try {
+      // BEGIN IMMEDIATE takes the write lock: it fails while another process holds it.
+      db.exec('BEGIN IMMEDIATE');
+      lockProbe.get();
+      db.exec('ROLLBACK');
+      return state;
+    } catch (err) {
+      if (db.inTransaction) db.exec('ROLLBACK');
+      return { writable: false, reason: `the write lock cannot be taken: ${(err as Error).message}` };
+    }
+  };
   return {
     file,
     log,
     drift,
     alerts,
     keys,
+    headFile,
     retention: createRetention(db),
     verifyChain: (anchor) => verifyChain(db, anchor),
     recordModel: (m) => recordModel(db, m),
     queryRequests: query,
     getRequest: createRequestLookup(db),
-    isWritable() {
-      if (closed) return false;
-      try {
-        // BEGIN IMMEDIATE takes the write lock: it fails on a read-only or locked database.
-        db.exec('BEGIN IMMEDIATE');
-        probe.get();
-        db.exec('ROLLBACK');
-        return true;
-      } catch {
-        if (db.inTransaction) db.exec('ROLLBACK');
-        return false;
-      }
-    },
+    writeState,
+    isWritable: () => writeState().writable,
     checkpoints: () => checkpointer?.stats() ?? null,
     close() {
       if (closed) return;
       log.close();
       closed = true;
+      if (watch) clearInterval(watch);
       checkpointer?.stop();
+      if (headFile) keepHeadAtClose(db, headFile);
       db.close();
+      lock?.release();
     },
   };
+}
+
+/**
+ * At start: the head kept beside the database must still be in the log. If rows were cut from
+ * its end (a WAL removed under a running server, then a crash; a restore of an older copy), the
+ * server does not chain new rows over the gap, which would leave the cut for only an audit to find.
+ */
+function checkHeadFile(db: Database, file: string, headFile: string): void {
+  const head = readHeadFile(headFile);
+  if (head === null) return;
+  const check = head instanceof Error ? null : checkAnchor(db, head);
+  if (check && (check.outcome === 'held' || check.outcome === 'pruned')) return;
+  const problem = head instanceof Error ? head.message : (check as { detail: string }).detail;
+  throw new StoreIntegrityError(
+    `${file}: the chain head kept in ${headFile} is not in the log: ${problem}. plumbline audit verify --db ${file} names what is missing; ` +
+      `to serve on with the log as it is, move ${headFile} aside (and keep it: it records what was lost)`,
+  );
+}
+
+/** At a clean close, the head of everything committed, after a checkpoint has synced it. */
+function keepHeadAtClose(db: Database, headFile: string): void {
+  try {
+    const head = createChainHeadReader(db)();
+    const [r] = db.pragma('wal_checkpoint(PASSIVE)') as Array<{ busy: number }>;
+    if (r?.busy === 0 && head.seq > 0) writeHeadFile(headFile, { seq: head.seq, hash: head.hash.toString('hex') });
+  } catch {
+    // The head of the last checkpoint stays; it is older, not wrong.
+  }
 }
 
 /** The audit log cannot be written on: its hash chain is broken at its head. */

@@ -1,5 +1,6 @@
-import { copyFileSync, rmSync, writeFileSync } from 'node:fs';
-import { join } from 'node:path';
+import { execFileSync } from 'node:child_process';
+import { copyFileSync, mkdirSync, rmSync, symlinkSync, writeFileSync } from 'node:fs';
+import { basename, dirname, join } from 'node:path';
 import { afterEach, describe, expect, it } from 'vitest';
 import { RegistryError, createModelRegistry, loadModelDirectory } from '../../src/bundle/registry.js';
 import { serializeBundle, writeBundle } from '../../src/bundle/write.js';
@@ -60,5 +61,81 @@ describe('models directory', () => {
     await registry.reload();
     expect(registry.get('iris')?.loadedAt).toBe(loadedAt);
     expect(seen).toEqual([v1.sha256]);
+  });
+});
+
+describe('what the models directory reads (issue 19)', () => {
+  const afterCleanup: string[] = [];
+  afterEach(() => {
+    for (const f of afterCleanup.splice(0)) rmSync(f, { force: true });
+  });
+  const race = <T>(p: Promise<T>, ms = 10_000) => Promise.race([p.then(() => 'loaded' as const, (err: Error) => err), new Promise<'hung'>((r) => setTimeout(() => r('hung'), ms))]);
+  const mkfifo = (path: string): string | null => {
+    try {
+      execFileSync('mkfifo', [path]);
+      return null;
+    } catch (err) {
+      return (err as Error).message.split('\n')[0] ?? 'mkfifo failed';
+    }
+  };
+
+  it('refuses a FIFO named *.bundle.json at once, and later reloads work once it is gone', async () => {
+    await writeBundle(tmp.file('iris.bundle.json'), v1);
+    const registry = await createModelRegistry(tmp.dir);
+    const why = mkfifo(tmp.file('x.bundle.json'));
+    if (why !== null) return void console.info(`skipped: cannot make a FIFO here (${why})`);
+    const first = await race(registry.reload());
+    expect(first).toBeInstanceOf(RegistryError);
+    expect((first as Error).message).toMatch(/x\.bundle\.json refused: is a FIFO, not a regular file/);
+    expect(registry.list().map((e) => e.name)).toEqual(['iris']);
+    rmSync(tmp.file('x.bundle.json'));
+    expect(await race(registry.reload())).toBe('loaded');
+  });
+
+  it('follows a symbolic link only to a regular file inside the directory', async () => {
+    mkdirSync(join(tmp.dir, 'versions'));
+    await writeBundle(join(tmp.dir, 'versions', 'iris-1.json'), v1);
+    symlinkSync(join('versions', 'iris-1.json'), tmp.file('iris.bundle.json'));
+    expect([...(await loadModelDirectory(tmp.dir)).keys()]).toEqual(['iris']);
+    // a bundle beside the directory, reached by ../
+    const outside = join(dirname(tmp.dir), `${basename(tmp.dir)}-elsewhere.json`);
+    await writeBundle(outside, v2);
+    afterCleanup.push(outside);
+
+    for (const [name, target, said] of [
+      ['zero', '/dev/zero', /zero\.bundle\.json refused: is a symbolic link to .*outside the models directory/],
+      ['passwd', '/etc/passwd', /passwd\.bundle\.json refused: is a symbolic link to .*outside the models directory/],
+      ['up', join('..', `${basename(tmp.dir)}-elsewhere.json`), /up\.bundle\.json refused: is a symbolic link to .*elsewhere\.json, outside the models directory/],
+    ] as const) {
+      const link = tmp.file(`${name}.bundle.json`);
+      symlinkSync(target, link);
+      const rss = process.memoryUsage().rss;
+      const outcome = await race(loadModelDirectory(tmp.dir));
+      expect(outcome).toBeInstanceOf(RegistryError);
+      expect((outcome as Error).message).toMatch(said);
+      expect((outcome as Error).message).not.toMatch(/root:/);
+      // nothing was read: /dev/zero raised RSS by hundreds of MB before
+      expect(process.memoryUsage().rss - rss).toBeLessThan(64 * 2 ** 20);
+      rmSync(link);
+    }
+  });
+
+  it('refuses a bundle larger than limits.bundle_bytes without reading it', async () => {
+    await writeBundle(tmp.file('iris.bundle.json'), v1);
+    const size = serializeBundle(v1).length;
+    await expect(loadModelDirectory(tmp.dir, { maxBytes: size - 1 })).rejects.toThrow(new RegExp(`iris\\.bundle\\.json refused: is ${size} bytes, more than limits\\.bundle_bytes \\(${size - 1}\\)`));
+    expect([...(await loadModelDirectory(tmp.dir, { maxBytes: size })).keys()]).toEqual(['iris']);
+  });
+
+  it('never quotes what a file holds in its error', async () => {
+    tmp.file('notes.bundle.json', 'root:x:0:0:root:/root:/bin/bash\nline-3 setter password: hunter2\n');
+    tmp.file('half.bundle.json', '{"format": "plumbline-bundle/2", "name": "secret-name-in-file"');
+    tmp.file('odd.bundle.json', JSON.stringify({ format: 'root:x:0:0:root' }));
+    const err = await loadModelDirectory(tmp.dir).then(() => null, (e: Error) => e);
+    expect(err).toBeInstanceOf(RegistryError);
+    expect(err!.message).toMatch(/notes\.bundle\.json refused: is not JSON/);
+    expect(err!.message).toMatch(/half\.bundle\.json refused: is not JSON/);
+    expect(err!.message).toMatch(/odd\.bundle\.json refused: format: is not a bundle format this reader takes/);
+    expect(err!.message).not.toMatch(/root:|hunter2|secret-name-in-file/);
   });
 });

@@ -34,12 +34,12 @@ export interface TestService {
 }
 
 /** The app over a fresh temporary database and models directory (CONVENTIONS 10). */
-export async function startTestService(options: { bundles?: AnyBundleFile[]; config?: Record<string, unknown>; logger?: Logger } = {}): Promise<TestService> {
+export async function startTestService(options: { bundles?: AnyBundleFile[]; config?: Record<string, unknown>; logger?: Logger; dbFile?: string } = {}): Promise<TestService> {
   const tmp = tempDir('plumbline-svc-');
   const modelsDir = join(tmp.dir, 'models');
   mkdirSync(modelsDir);
   for (const b of options.bundles ?? [iris()]) await writeBundle(join(modelsDir, `${b.name}.bundle.json`), b);
-  const dbFile = join(tmp.dir, 'audit.db');
+  const dbFile = options.dbFile ?? join(tmp.dir, 'audit.db');
   const config = configSchema.parse({ models_dir: modelsDir, db: dbFile, ...options.config });
   const runtime = await openRuntime(config, options.logger ? { log: options.logger } : {});
   const { store, registry } = runtime;

@@ -271,3 +271,31 @@ describe('when the audit log cannot be written', () => {
     }
   });
 });
+
+describe('API keys when the database cannot be written', () => {
+  // The key check writes last_used_at on a key's first request of each minute: bookkeeping,
+  // which must never fail the request (issue 19). Scoring still needs its rows committed.
+  it('answers a read with 200 and a score with 503 log-unavailable while another process holds the write lock', async () => {
+    const svc = await startTestService();
+    const reader = addKey(svc, 'reader', 'quality engineer');
+    const scorer = addKey(svc, 'scorer', 'line-3 app');
+    const other = new BetterSqlite3(svc.dbFile);
+    try {
+      other.exec('BEGIN IMMEDIATE');
+      // first request of each key, so each tries to write last_used_at
+      const read = await svc.app.inject({ url: '/v1/models', headers: bearer(reader.key) });
+      expect(read.statusCode, read.body).toBe(200);
+      expect(read.json().items[0].name).toBe('iris');
+      const scored = await svc.app.inject({ method: 'POST', url: '/v1/models/iris/score', payload: scoreBody, headers: bearer(scorer.key) });
+      expect(scored.statusCode, scored.body).toBe(503);
+      expect(scored.json().type).toBe('urn:plumbline:problem:log-unavailable');
+      other.exec('ROLLBACK');
+      // the bookkeeping write is not retried within the minute; the answer still goes out
+      expect((await svc.app.inject({ method: 'POST', url: '/v1/models/iris/score', payload: scoreBody, headers: bearer(scorer.key) })).statusCode).toBe(200);
+      expect(svc.store.keys.list().find((k) => k.id === reader.id)?.last_used_at).toBeNull();
+    } finally {
+      other.close();
+      await svc.close();
+    }
+  });
+});

@@ -51,6 +51,29 @@ describe('requests that are not well-formed HTTP', () => {
     expect(((await long.json()) as { type: string }).type).toBe('urn:plumbline:problem:not-found');
   });
 
+  it('a transfer coding other than chunked is refused with 400, naming the header, and nothing is scored; chunked alone is scored', async () => {
+    const body = JSON.stringify({ features: [232.1, 53.8, 923, 478, 3.48, 14.18, 102, 5.4, 23.7, 47.93] });
+    // Written without ending our side: the answer may wait for the writer thread to start.
+    const send = async (te: string): Promise<string> => {
+      const socket = connect(Number(new URL(server.url).port), '127.0.0.1');
+      await once(socket, 'connect');
+      let text = '';
+      socket.on('data', (c: Buffer) => (text += c.toString()));
+      socket.write(`POST /v1/models/moulding-quality/score HTTP/1.1\r\nHost: x\r\nConnection: close\r\nContent-Type: application/json\r\nTransfer-Encoding: ${te}\r\n\r\n${body.length.toString(16)}\r\n${body}\r\n0\r\n\r\n`);
+      await once(socket, 'close');
+      return text;
+    };
+    const before = server.runtime.store.log.stats().committedRows;
+    // a plain body announced as gzip then chunked: it would have been scored as if plain (RFC 9112, section 6.1)
+    const gzip = await send('gzip, chunked');
+    expect(gzip).toMatch(/^HTTP\/1\.1 400 /);
+    const problem = JSON.parse(gzip.slice(gzip.indexOf('\r\n\r\n') + 4)) as { type: string; errors: unknown[] };
+    expect(problem.type).toBe('urn:plumbline:problem:invalid-request');
+    expect(problem.errors).toEqual([{ header: 'transfer-encoding', detail: 'must be absent or chunked' }]);
+    expect(server.runtime.store.log.stats().committedRows).toBe(before);
+    expect(await send('chunked')).toMatch(/^HTTP\/1\.1 200 /);
+  });
+
   it('keeps serving afterwards', async () => {
     expect((await fetch(`${server.url}/healthz`)).status).toBe(200);
   });

@@ -1,4 +1,5 @@
-import { readFileSync } from 'node:fs';
+import { readFileSync, writeFileSync } from 'node:fs';
+import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { SETOSA, type TestService, VIRGINICA, iris, startTestService } from '../helpers/service.js';
 import { capturedLogger } from '../helpers/sink.js';
@@ -37,6 +38,20 @@ describe('health', () => {
 });
 
 describe('models', () => {
+  it('POST /v1/models/reload refuses a directory with a file that is not a bundle, naming it without quoting it', async () => {
+    const other = await startTestService();
+    try {
+      writeFileSync(join(other.modelsDir, 'passwd.bundle.json'), 'root:x:0:0:root:/root:/bin/bash\n');
+      const res = await other.app.inject({ method: 'POST', url: '/v1/models/reload' });
+      expect(res.statusCode).toBe(422);
+      expect(res.json()).toMatchObject({ type: 'urn:plumbline:problem:reload-refused', detail: expect.stringMatching(/passwd\.bundle\.json refused: is not JSON$/) });
+      expect(res.body).not.toContain('root:');
+      expect((await other.app.inject('/v1/models')).json().items.map((m: { name: string }) => m.name)).toEqual(['iris']);
+    } finally {
+      await other.close();
+    }
+  });
+
   it('GET /v1/models lists the loaded bundles with features, classes and load time', async () => {
     const res = await svc.app.inject('/v1/models');
     expect(res.statusCode).toBe(200);

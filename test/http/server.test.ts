@@ -1,4 +1,3 @@
-import { type ChildProcess, spawn } from 'node:child_process';
 import { once } from 'node:events';
 import { mkdirSync, writeFileSync } from 'node:fs';
 import { createServer } from 'node:http';
@@ -10,46 +9,10 @@ import { afterAll, describe, expect, it } from 'vitest';
 import { serializeBundle, writeBundle } from '../../src/bundle/write.js';
 import { tempDir } from '../helpers/datasets.js';
 import { SETOSA, iris } from '../helpers/service.js';
+import { serve, waitFor } from '../helpers/serve-process.js';
 
 const tmp = tempDir();
 afterAll(() => tmp.remove());
-
-interface Child {
-  proc: ChildProcess;
-  url: Promise<string>;
-  lines: () => Array<Record<string, unknown>>;
-  exit: Promise<[number | null, string | null]>;
-}
-
-function serve(args: string[]): Child {
-  const proc = spawn(process.execPath, ['--import', 'tsx', 'src/cli/main.ts', 'serve', '--port', '0', ...args], { stdio: ['ignore', 'pipe', 'pipe'] });
-  let out = '';
-  let err = '';
-  proc.stderr!.on('data', (c: Buffer) => (err += c.toString()));
-  const url = new Promise<string>((resolve, reject) => {
-    proc.stdout!.on('data', (c: Buffer) => {
-      out += c.toString();
-      const m = /Server listening at (http:\/\/127\.0\.0\.1:\d+)/.exec(out);
-      if (m) resolve(m[1] as string);
-    });
-    proc.on('exit', () => reject(new Error(`exited before listening: ${err || out}`)));
-  });
-  url.catch(() => undefined);
-  const parsed = (): Array<Record<string, unknown>> =>
-    `${out}${err}`
-      .split('\n')
-      .filter((l) => l.startsWith('{'))
-      .map((l) => JSON.parse(l) as Record<string, unknown>);
-  return { proc, url, lines: parsed, exit: once(proc, 'exit') as Promise<[number | null, string | null]> };
-}
-
-async function waitFor(check: () => boolean, ms = 10_000): Promise<void> {
-  const until = Date.now() + ms;
-  while (!check()) {
-    if (Date.now() > until) throw new Error('timed out');
-    await new Promise((r) => setTimeout(r, 25));
-  }
-}
 
 const post = (url: string, body: unknown) => fetch(url, { method: 'POST', headers: { 'content-type': 'application/json' }, body: JSON.stringify(body) });
 

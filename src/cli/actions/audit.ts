@@ -1,5 +1,6 @@
 import { existsSync } from 'node:fs';
 import type { ChainAnchor, ChainVerdict } from '../../store/audit-verify.js';
+import { headFilePath, readHeadFile } from '../../store/head-file.js';
 import { openAuditReader } from '../../store/reader.js';
 import { type CliIo, UsageError } from '../io.js';
 
@@ -10,18 +11,49 @@ export function parseAnchor(v: string): ChainAnchor {
   return { seq: Number(m[1]), hash: (m[2] as string).toLowerCase() };
 }
 
+/** The head kept beside the database (<db>.head), as this run used it. */
+export interface HeadFileUse {
+  path: string;
+  /**
+   * held: the log holds it; pruned: retention removed its row, so it was not compared; absent: no
+   * such file; ignored: --no-head-file; removed or different: the log does not hold it (see
+   * problem); unreadable: the file is not a head record.
+   */
+  state: 'held' | 'pruned' | 'absent' | 'ignored' | 'removed' | 'different' | 'unreadable';
+  seq: number | null;
+  written_at: string | null;
+}
+
+export type AuditVerdict = ChainVerdict & { head_file: HeadFileUse };
+
 /**
  * `plumbline audit verify`: recomputes the hash chain of the audit log, read-only, and says
- * whether it is intact; exit 0 only when it is. With --head, also checks that the log still
- * holds a head recorded earlier (which catches rows cut from the end).
+ * whether it is intact; exit 0 only when it is. Rows cut from the end leave a chain that verifies,
+ * so it also checks that the log still holds the head the serving process keeps beside the
+ * database (written at each checkpoint), and with --head one recorded elsewhere.
  */
-export function auditVerifyAction(ctx: { db: string; head?: ChainAnchor; json: boolean }, io: CliIo): ChainVerdict {
+export function auditVerifyAction(ctx: { db: string; head?: ChainAnchor; json: boolean; headFile?: boolean }, io: CliIo): AuditVerdict {
   if (!existsSync(ctx.db)) throw new UsageError(`--db ${ctx.db}: no such file`);
+  const path = headFilePath(ctx.db);
+  const recorded = ctx.headFile === false ? null : readHeadFile(path);
+  const use: HeadFileUse = { path, state: ctx.headFile === false ? 'ignored' : 'absent', seq: null, written_at: null };
   const reader = openAuditReader(ctx.db);
-  let v: ChainVerdict;
+  let v: AuditVerdict;
   try {
     if (!reader.hasChain()) throw new UsageError(`${ctx.db} has no hash chain yet: start this version of plumbline on it once, to migrate and seal it`);
-    v = reader.verifyChain(ctx.head);
+    v = { ...reader.verifyChain(ctx.head), head_file: use };
+    if (recorded instanceof Error) {
+      use.state = 'unreadable';
+      if (v.intact) v = { ...v, intact: false, problem: { kind: 'anchor', seq: v.head.seq, request_id: null, detail: `${recorded.message}, so the end of the log cannot be checked against it (--no-head-file verifies without it)` } };
+    } else if (recorded !== null) {
+      use.seq = recorded.seq;
+      use.written_at = recorded.written_at;
+      const check = reader.checkAnchor(recorded);
+      use.state = check.outcome === 'held' ? 'held' : check.outcome;
+      if ('detail' in check && v.intact) {
+        v = { ...v, intact: false, problem: { kind: check.outcome === 'removed' ? 'removed' : 'anchor', seq: recorded.seq, request_id: null, detail: `${check.detail} (the head kept in ${path}, written ${recorded.written_at})` } };
+      }
+    }
   } finally {
     reader.close();
   }
@@ -32,6 +64,7 @@ export function auditVerifyAction(ctx: { db: string; head?: ChainAnchor; json: b
     const through = v.anchor === 'checked' ? `, through the recorded head ${ctx.head?.seq}` : '';
     io.stdout.write(`intact: ${v.rows} row${v.rows === 1 ? ' chains' : 's chain'} from ${from} to row ${v.head.seq}${through}\n`);
     if (v.anchor === 'pruned') io.stdout.write(`the recorded head ${ctx.head?.seq} lies before the retention checkpoint at ${v.from.seq}: retention removed it, so it was not checked\n`);
+    io.stdout.write(`${describeHeadFile(use, v.anchor !== null)}\n`);
     io.stdout.write(`head ${v.head.seq}:${v.head.hash}\n`);
   } else {
     const p = v.problem!;
@@ -39,4 +72,12 @@ export function auditVerifyAction(ctx: { db: string; head?: ChainAnchor; json: b
     io.stdout.write(`${v.rows} row${v.rows === 1 ? '' : 's'} before it verif${v.rows === 1 ? 'ies' : 'y'}; the chain up to ${v.rows === 1 ? 'it' : 'them'} ends at ${v.head.seq}:${v.head.hash}\n`);
   }
   return v;
+}
+
+function describeHeadFile(u: HeadFileUse, headGiven: boolean): string {
+  if (u.state === 'held') return `the log holds the head kept in ${u.path} (row ${u.seq}, written ${u.written_at})`;
+  if (u.state === 'pruned') return `the head kept in ${u.path} (row ${u.seq}) lies before the retention checkpoint: retention removed it, so it was not compared`;
+  if (u.state === 'ignored') return `the head file ${u.path} was not read (--no-head-file)`;
+  if (headGiven) return `no head file at ${u.path}; the --head given stands in for it`;
+  return `no head file at ${u.path}: rows cut from the end could not be told (serving the database keeps one; or give --head)`;
 }

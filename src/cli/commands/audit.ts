@@ -9,9 +9,10 @@ export function registerAudit(program: Command): void {
     .description('recompute the hash chain of the audit log (read-only); exit 0 only when intact, 1 when not')
     .requiredOption('--db <file>', 'the audit log database')
     .option('--head <seq:hash>', 'a head printed by an earlier verify, which the log must still hold')
+    .option('--no-head-file', 'do not check the head kept beside the database (<db>.head), which is checked by default')
     .option('--json', 'print the verdict as JSON', false)
-    .action((flags: { db: string; head?: string; json: boolean }) => {
-      const v = auditVerifyAction({ db: flags.db, json: flags.json, ...(flags.head !== undefined ? { head: parseAnchor(flags.head) } : {}) }, processIo());
+    .action((flags: { db: string; head?: string; headFile: boolean; json: boolean }) => {
+      const v = auditVerifyAction({ db: flags.db, json: flags.json, headFile: flags.headFile, ...(flags.head !== undefined ? { head: parseAnchor(flags.head) } : {}) }, processIo());
       if (!v.intact) process.exitCode = 1;
     });
 }

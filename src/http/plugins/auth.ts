@@ -110,7 +110,14 @@ async function auth(app: FastifyInstance, options: AuthOptions): Promise<void> {
     const t = now();
     if (t - (touched.get(key.id) ?? Number.NEGATIVE_INFINITY) >= TOUCH_EVERY_MS) {
       touched.set(key.id, t);
-      options.keys.touch(key.id, t);
+      // Bookkeeping: a database that cannot be written now (full, read-only, locked by another
+      // process) must not fail a read, nor turn a score into a 500; scoring answers for its own
+      // rows (503 log-unavailable). Not retried before the next minute.
+      try {
+        options.keys.touch(key.id, t);
+      } catch (err) {
+        req.log.warn({ key: key.label, err: (err as Error).message }, 'the last use of an API key could not be recorded');
+      }
     }
   };
   // The callback form: nothing here waits, and an async hook costs a promise on every request.

@@ -6,12 +6,12 @@ import { z } from 'zod';
 import type { Config } from '../../config/config.js';
 import { scoreResponseSchema } from '../../contracts/score.js';
 import { MAX_FEATURE_MAGNITUDE } from '../../core/network.js';
+import { LONE_SURROGATE, NOT_WELL_FORMED } from '../json-scan.js';
 import { commonErrors, jsonResponse, modelNameParam, problemResponse } from '../shared-schemas.js';
 
-// A lone UTF-16 surrogate (from a "\ud800" escape) has no UTF-8 form: it could not be stored as sent.
-const LONE_SURROGATE = /[\ud800-\udbff](?![\udc00-\udfff])|(?<![\ud800-\udbff])[\udc00-\udfff]/;
+// The JSON parser refuses a lone surrogate first (json-scan.ts); this keeps the schema saying so too.
 const wellFormed = (s: string): boolean => !LONE_SURROGATE.test(s);
-const WELL_FORMED = 'must be well-formed Unicode (no lone surrogate escapes such as \\ud800)';
+const WELL_FORMED = NOT_WELL_FORMED;
 
 export function scoringSchemas(limits: Config['limits']) {
   const tags = z
