@@ -95,6 +95,23 @@ describe('the WebAssembly dense kernel', () => {
     const want = reference(net, x, 2);
     sameBits((createWasmForwardPass(net) as NonNullable<ReturnType<typeof createWasmForwardPass>>).run(x, 2).logits, want[1] as Float64Array, 'overflow');
   });
+
+  it('keeps relu\'s -0 as -0 and a NaN as NaN in the fused kernel, as `if (v < 0) v = 0` does', () => {
+    // Bias -0 and input 0 times a negative weight: every sum is -0 + (-0) = -0. A max instruction
+    // would give +0 here; the hidden layer is read back, so the sign of zero shows.
+    const net: Network = {
+      layers: [
+        { inputs: 2, outputs: 4, activation: 'relu', alpha: 0, weights: Float64Array.of(-1, -2, -3, -4, 5, -6, -7, 8), bias: Float64Array.of(-0, -0, -0, -0) },
+        { inputs: 4, outputs: 1, activation: 'identity', alpha: 0, weights: Float64Array.of(1, 1, 1, 1), bias: Float64Array.of(0) },
+      ],
+    };
+    const x = Float64Array.of(0, 0, Number.NaN, 1, -1, -1);
+    const got = (createWasmForwardPass(net) as NonNullable<ReturnType<typeof createWasmForwardPass>>).run(x, 3);
+    const want = reference(net, x, 3);
+    sameBits(got.hidden, want[0] as Float64Array, 'hidden');
+    expect(Object.is(got.hidden[0], -0)).toBe(true);
+    expect(Number.isNaN(got.hidden[4])).toBe(true);
+  });
 });
 
 describe('the forward pass the scorer uses', () => {

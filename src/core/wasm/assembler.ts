@@ -50,5 +50,7 @@ export const f64load = [0x2b, 3, 0];
 export const f64store = [0x39, 3, 0];
 export const tee = (l: number): number[] => [0x22, ...uleb(l)];
 export const FSUB = [0xfd, ...uleb(0xf1)]; // f64x2.sub
+/** f64x2.pmax: per lane, a < b ? b : a (pseudo-maximum: no NaN or signed-zero rules of its own). */
+export const FPMAX = [0xfd, ...uleb(0xf7)];
 /** The byte address of element `index` of the array at `base`: base + index * 8. */
 export const at = (base: number, index: number): number[] => [...get(base), ...get(index), ...i32c(8), ...MUL, ...ADD];

@@ -21,7 +21,7 @@ export function createWasmForwardPass(net: Network, initialRows = 64): ForwardPa
   checkNetworkShapes(net);
   const kernel = instantiateKernel(1);
   if (!kernel) return null;
-  const { memory, dense } = kernel;
+  const { memory, dense, denseRelu } = kernel;
 
   let top = 0;
   const placed: Placed[] = net.layers.map((layer) => {
@@ -85,7 +85,9 @@ export function createWasmForwardPass(net: Network, initialRows = 64): ForwardPa
   const compact = (padded: Float64Array, rows: number, p: Placed, into: Float64Array): Float64Array => {
     const m = p.layer.outputs;
     if (p.stride === m) return padded.subarray(0, rows * m);
-    for (let r = 0; r < rows; r++) into.set(padded.subarray(r * p.stride, r * p.stride + m), r * m);
+    // Element by element: a subarray per row costs more than copying a handful of values.
+    const stride = p.stride;
+    for (let r = 0; r < rows; r++) for (let k = 0, i = r * stride, o = r * m; k < m; k++) into[o + k] = padded[i + k] as number;
     return into.subarray(0, rows * m);
   };
 
@@ -98,8 +100,12 @@ export function createWasmForwardPass(net: Network, initialRows = 64): ForwardPa
       let inStride = n0;
       placed.forEach((p, l) => {
         const out = outAt[l] as number;
-        dense(inPtr, inStride * 8, p.layer.inputs, p.w, p.b, out, p.stride * 8, rows, p.blocks);
-        activateInPlace(p.layer.activation as ActivationName, p.layer.alpha, views.outs[l] as Float64Array, 0, rows * p.stride);
+        // relu, the usual hidden activation, is applied inside the kernel as the sums are stored.
+        if (p.layer.activation === 'relu') denseRelu(inPtr, inStride * 8, p.layer.inputs, p.w, p.b, out, p.stride * 8, rows, p.blocks);
+        else {
+          dense(inPtr, inStride * 8, p.layer.inputs, p.w, p.b, out, p.stride * 8, rows, p.blocks);
+          activateInPlace(p.layer.activation as ActivationName, p.layer.alpha, views.outs[l] as Float64Array, 0, rows * p.stride);
+        }
         inPtr = out;
         inStride = p.stride;
       });

@@ -2,15 +2,18 @@ import { section, str, uleb, I32 } from './assembler.js';
 import { denseCode } from './dense-kernel.js';
 import { solveCode } from './solve-kernel.js';
 
-/** The module's bytes: dense(x, xs, n, w, b, out, os, rows, blocks) and solve(lt, out, n), over an imported memory. */
+/**
+ * The module's bytes: dense(x, xs, n, w, b, out, os, rows, blocks), dense_relu (the same with relu
+ * applied as each sum is stored) and solve(lt, out, n), over an imported memory.
+ */
 export function kernelModule(): Uint8Array {
   return Uint8Array.from([
     0x00, 0x61, 0x73, 0x6d, 0x01, 0x00, 0x00, 0x00,
     ...section(1, [2, 0x60, ...uleb(9), ...new Array<number>(9).fill(I32), 0, 0x60, ...uleb(3), I32, I32, I32, 0]),
     ...section(2, [1, ...str('env'), ...str('memory'), 0x02, 0x00, 0x01]),
-    ...section(3, [2, 0, 1]),
-    ...section(7, [2, ...str('dense'), 0x00, 0, ...str('solve'), 0x00, 1]),
-    ...section(10, [2, ...denseCode(), ...solveCode()]),
+    ...section(3, [3, 0, 1, 0]),
+    ...section(7, [3, ...str('dense'), 0x00, 0, ...str('solve'), 0x00, 1, ...str('dense_relu'), 0x00, 2]),
+    ...section(10, [3, ...denseCode(), ...solveCode(), ...denseCode(true)]),
   ]);
 }
 
@@ -60,10 +63,10 @@ export const PAGE = 65536;
 export const align16 = (bytes: number): number => Math.ceil(bytes / 16) * 16;
 
 /** An instance of the kernel over a memory of its own; null where the kernel is not available. */
-export function instantiateKernel(initialPages: number): { memory: WasmMemory; dense: DenseKernel; solve: SolveKernel } | null {
+export function instantiateKernel(initialPages: number): { memory: WasmMemory; dense: DenseKernel; denseRelu: DenseKernel; solve: SolveKernel } | null {
   const c = compile();
   if (!('module' in c)) return null;
   const memory = new c.api.Memory({ initial: initialPages });
   const { exports } = new c.api.Instance(c.module, { env: { memory } });
-  return { memory, dense: exports.dense as DenseKernel, solve: exports.solve as SolveKernel };
+  return { memory, dense: exports.dense as DenseKernel, denseRelu: exports.dense_relu as DenseKernel, solve: exports.solve as SolveKernel };
 }
