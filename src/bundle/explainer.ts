@@ -59,7 +59,7 @@ export function createExplainer(bundle: LoadedBundle): Explainer {
 
   // The scorer's arithmetic, step for step (standardise, forward, mean of the calibrated softmax,
   // first maximum), so that a label found here is the label an answer would carry.
-  const labelOf: LabelFunction = (x, rows) => {
+  const labelOf: LabelFunction = (x, rows, gap) => {
     if (z.length < rows * d) z = new Float64Array(rows * d);
     if (p.length < rows * K) {
       p = new Float64Array(rows * K);
@@ -69,7 +69,17 @@ export function createExplainer(bundle: LoadedBundle): Explainer {
     const logits = passes.map((pass) => pass.run(z, rows).logits);
     ensembleProbabilitiesInto(logits, rows, K, temperature, memberP, p);
     const out = new Int32Array(rows);
-    for (let r = 0; r < rows; r++) out[r] = topTwo(p, r * K, K).index;
+    for (let r = 0; r < rows; r++) {
+      const top = topTwo(p, r * K, K);
+      out[r] = top.index;
+      if (gap) {
+        // The lead of label gap.of in probability: its own minus the largest other.
+        const of = gap.of < 0 ? top.index : gap.of;
+        let best = Number.NEGATIVE_INFINITY;
+        for (let c = 0; c < K; c++) if (c !== of && (p[r * K + c] as number) > best) best = p[r * K + c] as number;
+        gap.into[r] = (p[r * K + of] as number) - best;
+      }
+    }
     return out;
   };
 

@@ -23,20 +23,40 @@ function affinePass(layer: DenseLayer): ForwardPass {
   return pass;
 }
 
-/** The forward pass over rows x inputs, keeping what the backward pass needs. */
-export function traceForward(net: Network, x: Float64Array, rows: number): LayerTrace {
+/** One layer's values before its activation, rows x outputs (a copy). */
+export function preActivations(layer: DenseLayer, x: Float64Array, rows: number): Float64Array {
+  return affinePass(layer).run(x, rows).logits.slice(0, rows * layer.outputs);
+}
+
+// Two scratch buffers the activations go through when only `pre` is kept: a layer reads one
+// while the next writes the other.
+let scratch: [Float64Array, Float64Array] = [new Float64Array(0), new Float64Array(0)];
+
+/**
+ * The forward pass over rows x inputs, keeping what the backward pass needs. With keepPost false,
+ * `post` stays empty and only `pre` is kept (the path tracing needs no more): one array less per
+ * layer.
+ */
+export function traceForward(net: Network, x: Float64Array, rows: number, keepPost = true): LayerTrace {
   const pre: Float64Array[] = [];
   const post: Float64Array[] = [];
   let input = x;
-  for (const layer of net.layers) {
+  net.layers.forEach((layer, l) => {
     // run() returns a view into the pass's own buffer: copied before the next call.
     const a = affinePass(layer).run(input, rows).logits.slice(0, rows * layer.outputs);
-    const h = a.slice();
+    let h: Float64Array;
+    if (keepPost) {
+      h = a.slice();
+      post.push(h);
+    } else {
+      if ((scratch[l % 2] as Float64Array).length < a.length) scratch[l % 2] = new Float64Array(2 * a.length);
+      h = (scratch[l % 2] as Float64Array).subarray(0, a.length);
+      h.set(a);
+    }
     activateInPlace(layer.activation, layer.alpha, h);
     pre.push(a);
-    post.push(h);
     input = h;
-  }
+  });
   return { rows, pre, post };
 }
 

@@ -1,7 +1,7 @@
 import type { ActivationName } from '../activations.js';
 import type { DenseLayer, Network } from '../network.js';
 import { gaussLegendre } from './gauss-legendre.js';
-import { type LayerTrace, backThroughLayer, inputGradients, traceForward, traceOutput } from './input-gradient.js';
+import { type LayerTrace, backThroughLayer, inputGradients, preActivations, traceForward, traceOutput } from './input-gradient.js';
 import type { PathTarget } from './targets.js';
 
 // Integrated gradients (Sundararajan, Taly & Yan 2017, "Axiomatic Attribution for Deep
@@ -144,6 +144,22 @@ interface MemberPath {
   pre: Float64Array[];
 }
 
+/** The distinct values of every list, ascending. */
+function sortedUnion(lists: readonly Float64Array[]): Float64Array {
+  let n = 0;
+  for (const l of lists) n += l.length;
+  const all = new Float64Array(n);
+  let at = 0;
+  for (const l of lists) {
+    all.set(l, at);
+    at += l.length;
+  }
+  all.sort();
+  let k = 0;
+  for (let i = 0; i < n; i++) if (k === 0 || (all[i] as number) !== (all[k - 1] as number)) all[k++] = all[i] as number;
+  return all.subarray(0, k);
+}
+
 /** Rows of a (sorted) and b (sorted) merged in order, with their rows of every matrix. */
 function mergeRows(a: Float64Array, aRows: Float64Array[], b: Float64Array, bRows: Float64Array[], widths: number[]): { alphas: Float64Array; rows: Float64Array[] } {
   const n = a.length + b.length;
@@ -156,18 +172,46 @@ function mergeRows(a: Float64Array, aRows: Float64Array[], b: Float64Array, bRow
     const src = fromA ? aRows : bRows;
     const at = fromA ? i++ : j++;
     alphas[r] = (fromA ? a[at] : b[at]) as number;
-    widths.forEach((w, l) => (rows[l] as Float64Array).set((src[l] as Float64Array).subarray(at * w, at * w + w), r * w));
+    // Element by element: a subarray per row and layer would cost more than the copy.
+    for (let l = 0; l < widths.length; l++) {
+      const w = widths[l] as number;
+      const from = src[l] as Float64Array;
+      const to = rows[l] as Float64Array;
+      for (let k = 0, i = at * w, o = r * w; k < w; k++) to[o + k] = from[i + k] as number;
+    }
   }
   return { alphas, rows };
+}
+
+/** 0 and 1 with the crossings of the units whose inputs at 0 and 1 are v (2 x w), sorted. */
+function withCrossings(ends: Float64Array, v: Float64Array, w: number): Float64Array {
+  const found: number[] = [];
+  for (let o = 0; o < w; o++) {
+    const va = v[o] as number;
+    const vb = v[w + o] as number;
+    if ((va < 0 && vb > 0) || (va > 0 && vb < 0)) {
+      const at = va / (va - vb);
+      if (at > 0 && at < 1) found.push(at);
+    }
+  }
+  if (found.length === 0) return ends;
+  const out = new Float64Array(found.length + 2);
+  out.set(Float64Array.from(found).sort(), 1);
+  out[out.length - 1] = 1;
+  return out;
 }
 
 /** One member's crossings along the path, found layer by layer (see the comment at the top). */
 function traceMemberPath(net: Network, u0: Float64Array, u1: Float64Array): MemberPath {
   const widths = net.layers.map((l) => l.outputs);
+  // The first layer's inputs are affine along the whole path: its crossings come from the two
+  // ends alone, and the whole network is then traced once on the ends and those crossings.
+  const first = net.layers[0] as DenseLayer;
   let alphas: Float64Array = Float64Array.of(0, 1);
-  let pre: Float64Array[] = traceForward(net, pointsOnPath(u0, u1, alphas), 2).pre;
+  if (KINKED.has(first.activation)) alphas = withCrossings(alphas, preActivations(first, pointsOnPath(u0, u1, alphas), 2), first.outputs);
+  let pre: Float64Array[] = traceForward(net, pointsOnPath(u0, u1, alphas), alphas.length, false).pre;
   net.layers.forEach((layer, l) => {
-    if (!KINKED.has(layer.activation)) return;
+    if (l === 0 || !KINKED.has(layer.activation)) return;
     const found: number[] = [];
     const v = pre[l] as Float64Array;
     const w = layer.outputs;
@@ -185,7 +229,7 @@ function traceMemberPath(net: Network, u0: Float64Array, u1: Float64Array): Memb
     }
     if (found.length === 0) return;
     const extra = Float64Array.from(found).sort();
-    const merged = mergeRows(alphas, pre, extra, traceForward(net, pointsOnPath(u0, u1, extra), extra.length).pre, widths);
+    const merged = mergeRows(alphas, pre, extra, traceForward(net, pointsOnPath(u0, u1, extra), extra.length, false).pre, widths);
     alphas = merged.alphas;
     pre = merged.rows;
   });
@@ -217,7 +261,7 @@ function integratePiecewiseLinear(members: readonly Network[], u0: Float64Array,
   const paths = members.map((net) => traceMemberPath(net, u0, u1));
   const logits = paths.map((p, m) => p.pre[(members[m] as Network).layers.length - 1] as Float64Array);
   // The union of every member's points cuts the path into pieces on which every member is affine.
-  const union = Float64Array.from(new Set(paths.flatMap((p) => Array.from(p.alphas)))).sort();
+  const union = sortedUnion(paths.map((p) => p.alphas));
   // Per member, per own piece: the integral of dF/dz_m over it (K values).
   const sums = paths.map((p) => new Float64Array((p.alphas.length - 1) * K));
   const cursor = new Int32Array(M);
@@ -282,12 +326,17 @@ function integratePiecewiseLinear(members: readonly Network[], u0: Float64Array,
       for (let k = 0; k < K; k++) sm[c + k] = (sm[c + k] as number) + (part[m * K + k] as number);
     }
   };
+  // The piece of each member whose logits are in base and slope (-1: none yet).
+  const loaded = new Int32Array(M).fill(-1);
   const moveTo = (lo: number): void => {
     for (let m = 0; m < M; m++) {
       const p = paths[m] as MemberPath;
       let c = cursor[m] as number;
       while ((p.alphas[c + 1] as number) <= lo) c++;
       cursor[m] = c;
+      // Most steps along the union move one member to its next piece; the others stay.
+      if (loaded[m] === c) continue;
+      loaded[m] = c;
       const a0 = p.alphas[c] as number;
       const a1 = p.alphas[c + 1] as number;
       const z = logits[m] as Float64Array;

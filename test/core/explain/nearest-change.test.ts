@@ -52,4 +52,48 @@ describe('nearestChanges', () => {
     // x2 = 9 above the range [0, 5] is labelled 2, which changes at 7, before the range: left out.
     expect(nearestChanges([4, 2, 9], [0, 0, 0], [20, 10, 5], labelOf).find((c) => c.feature === 2)).toBeUndefined();
   });
+
+  it('closes in on a change with fewer vectors where the label function gives the leads, to the same tolerance', () => {
+    // Scores of a softmax over three affine logits; the label is the first largest. The boundary
+    // between labels 0 and 1 along x0 (x1 = 2, x2 = 1) is where 0.7 x0 = 3 - 0.2 x0, x0 = 10/3.
+    const score = (x: Float64Array, r: number): number[] => {
+      const a = x[r * 3] as number;
+      const b = x[r * 3 + 1] as number;
+      const z = [3 - 0.2 * a + 0.1 * b, 0.7 * a + 0.1 * b, -2 + 0.3 * (x[r * 3 + 2] as number)];
+      const m = Math.max(...z);
+      const e = z.map((v) => Math.exp(v - m));
+      const s = e.reduce((p, q) => p + q, 0);
+      return e.map((v) => v / s);
+    };
+    const count = { plain: 0, leads: 0 };
+    const plain = (x: Float64Array, rows: number): Int32Array => {
+      count.plain += rows;
+      return Int32Array.from({ length: rows }, (_, r) => {
+        const p = score(x, r);
+        return p.indexOf(Math.max(...p));
+      });
+    };
+    const withLeads = (x: Float64Array, rows: number, gap?: { of: number; into: Float64Array }): Int32Array => {
+      count.leads += rows;
+      return Int32Array.from({ length: rows }, (_, r) => {
+        const p = score(x, r);
+        const label = p.indexOf(Math.max(...p));
+        if (gap) {
+          const of = gap.of < 0 ? label : gap.of;
+          gap.into[r] = (p[of] as number) - Math.max(...p.filter((_, k) => k !== of));
+        }
+        return label;
+      });
+    };
+    const low = [0, 0, 0];
+    const high = [20, 10, 10];
+    const a = nearestChanges([1, 2, 1], low, high, plain).find((c) => c.feature === 0);
+    const b = nearestChanges([1, 2, 1], low, high, withLeads).find((c) => c.feature === 0);
+    for (const c of [a, b]) {
+      expect(c?.label).toBe(1);
+      expect(c?.to).toBeGreaterThanOrEqual(10 / 3);
+      expect((c?.to as number) - 10 / 3).toBeLessThanOrEqual(1e-6 * 20);
+    }
+    expect(count.leads).toBeLessThan(count.plain);
+  });
 });
