@@ -17,7 +17,7 @@ const tmp = tempDir('plumbline-doc-security-');
 const DB = tmp.file('plumbline.db');
 const BACKUP = tmp.file('backup.db');
 const seen = new Map<string, string>();
-const VARYING = [/plk_[A-Za-z0-9_-]{43}/, /\b[0-9a-f]{64}\b/];
+const VARYING = [/plk_[A-Za-z0-9_-]{43}/, /\b[0-9a-f]{64}\b/, /\d{4}-\d{2}-\d{2}T\d{2}:\d{2}:\d{2}\.\d{3}Z/];
 const toReal = (s: string) => s.replaceAll('var/plumbline.db', DB).replaceAll('/backups/plumbline-2026-12-02.db', BACKUP);
 const toDoc = (s: string) => s.replaceAll(DB, 'var/plumbline.db').replaceAll(BACKUP, '/backups/plumbline-2026-12-02.db');
 
@@ -36,7 +36,7 @@ describe('docs/security.md', () => {
   it('records the head audit verify prints for a log of seven answers', async () => {
     const block = fencedBlocks(DOC).find((b) => b.body.startsWith('intact: 7 rows'));
     const run = await runCommand(`npx tsx src/cli/main.ts audit verify --db ${DB}`);
-    const problems = quoteProblems(run.output, block?.body ?? '', { seen, varyingText: VARYING });
+    const problems = quoteProblems(toDoc(run.output), block?.body ?? '', { seen, varyingText: VARYING });
     expect(problems, problems.join('\n')).toEqual([]);
     copyFileSync(DB, BACKUP);
   });
