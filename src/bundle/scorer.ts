@@ -22,8 +22,12 @@ export interface Scorer {
   readonly featureNames: readonly string[];
   /** Position of each feature name in the vector. */
   readonly featureIndex: ReadonlyMap<string, number>;
-  /** Scores rows x features (row-major, raw units); results in row order. Throws ScoreOverflowError. */
-  scoreRows(x: Float64Array, rows: number): ScoreOutcome[];
+  /**
+   * Scores rows x features (row-major, raw units); results in row order. Throws ScoreOverflowError.
+   * With `probabilities`, also writes the rows x classes probabilities there, in the bundle's class
+   * order (the audit log keeps them as a vector: no conversion back from the answer's record).
+   */
+  scoreRows(x: Float64Array, rows: number, probabilities?: Float64Array): ScoreOutcome[];
 }
 
 /**
@@ -52,7 +56,7 @@ export function createScorer(bundle: LoadedBundle): Scorer {
     bundle,
     featureNames: file.features.map((f) => f.name),
     featureIndex: new Map(file.features.map((f, j) => [f.name, j])),
-    scoreRows(x, rows) {
+    scoreRows(x, rows, probabilitiesOut) {
       if (z.length < rows * d) z = new Float64Array(rows * d);
       if (p.length < rows * K) {
         p = new Float64Array(rows * K);
@@ -69,6 +73,7 @@ export function createScorer(bundle: LoadedBundle): Scorer {
         return { logits, hidden };
       });
       ensembleProbabilitiesInto(outputs.map((o) => o.logits), rows, K, temperature, memberP, p);
+      probabilitiesOut?.set(p.subarray(0, rows * K));
       outputs.forEach((o, m) => (o.probabilities = memberP[m]));
       for (let r = 0; r < rows; r++) memberOfRow[r] = memberForRow(x, r * d, d, M);
       const out: ScoreOutcome[] = new Array(rows);

@@ -116,11 +116,14 @@ export function createScoringService(registry: ModelRegistry, log: RequestLog, o
     // A large batch is scored in chunks with a turn of the event loop between them, so that it
     // does not hold up every other request (and the load-shedding probe) while it runs.
     const outcomes: ScoreOutcome[] = [];
+    const K = entry.bundle.file.classes.length;
+    // The probabilities as the audit log stores them, straight from the scorer.
+    const p = new Float64Array(items.length * K);
     for (let start = 0; start < items.length; start += SCORE_CHUNK_ROWS) {
       if (start > 0) await new Promise((resolve) => setImmediate(resolve));
       const rows = Math.min(SCORE_CHUNK_ROWS, items.length - start);
       try {
-        for (const o of entry.scorer.scoreRows(x.subarray(start * d, (start + rows) * d), rows)) outcomes.push(o);
+        for (const o of entry.scorer.scoreRows(x.subarray(start * d, (start + rows) * d), rows, p.subarray(start * K, (start + rows) * K))) outcomes.push(o);
       } catch (err) {
         if (!(err instanceof ScoreOverflowError)) throw err;
         const at = pointer(batch ? ['items', start + err.row, 'features'] : ['features']);
@@ -131,7 +134,6 @@ export function createScoringService(registry: ModelRegistry, log: RequestLog, o
     const explanations = items.some((item) => item.explain === true) ? await explainRequested(entry.bundle, items, x, outcomes) : null;
     const model = modelRef(entry.bundle);
     const latencyUs = ctx.elapsedMs() * 1000;
-    const classes = entry.bundle.file.classes;
     const responses: ScoreResponse[] = [];
     const rows: ScoredRow[] = outcomes.map((o, i) => {
       const requestId = batch ? uuidv7() : ctx.requestId;
@@ -148,7 +150,7 @@ export function createScoringService(registry: ModelRegistry, log: RequestLog, o
         features: x.subarray(i * d, i * d + d),
         tags: tags && Object.keys(tags).length > 0 ? tags : null,
         label: o.label,
-        probabilities: classes.map((c) => o.probabilities[c] as number),
+        probabilities: p.subarray(i * K, i * K + K),
         margin: o.margin,
         inDomain: o.domain.in_domain,
         review: o.review,

@@ -39,13 +39,16 @@ export interface RejectedRow {
 }
 
 /**
- * A scored row with its columns as stored, but for the chain's seq and the blobs: the vectors
- * are copied into arrays of their own, so that the row can be posted to another thread (a view
- * into a larger buffer would carry the whole buffer with it).
+ * A scored row with its columns as stored, but for the chain's seq and the blobs. With `own`, the
+ * vectors are copied into arrays of their own, so that the row can be posted to another thread (a
+ * view into a larger buffer would carry the whole buffer with it); without, a Float64Array is
+ * kept as it is, and the commit on the event loop reads it in place.
  */
 export type EncodedRow = Omit<ChainedRow, 'seq' | 'features' | 'probabilities'> & { features: Float64Array; probabilities: Float64Array };
 
-export function encodeRow(r: ScoredRow): EncodedRow {
+const vector = (v: ArrayLike<number>, own: boolean): Float64Array => (!own && v instanceof Float64Array ? v : Float64Array.from(v));
+
+export function encodeRow(r: ScoredRow, own = true): EncodedRow {
   return {
     request_id: r.requestId,
     batch_id: r.batchId,
@@ -53,10 +56,10 @@ export function encodeRow(r: ScoredRow): EncodedRow {
     model_sha256: r.model.sha256,
     model_name: r.model.name,
     model_version: r.model.version,
-    features: Float64Array.from(r.features),
+    features: vector(r.features, own),
     tags: r.tags ? JSON.stringify(r.tags) : null,
     label: r.label,
-    probabilities: Float64Array.from(r.probabilities),
+    probabilities: vector(r.probabilities, own),
     margin: r.margin,
     in_domain: r.inDomain ? 1 : 0,
     review: r.review ? 1 : 0,

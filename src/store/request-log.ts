@@ -277,7 +277,8 @@ export function createRequestLog(db: Database, options: WriterOptions, thread?: 
     const requests: EncodedRow[][] = [];
     for (const p of queue) {
       try {
-        requests.push(p.rows.map(encodeRow));
+        // Rows posted to the writer thread get vectors of their own; on the event loop they are read in place.
+        requests.push(p.rows.map((r) => encodeRow(r, sink.kind === 'thread')));
         pending.push(p);
       } catch (err) {
         waiting -= p.rows.length;

@@ -11,9 +11,11 @@ import { sink } from '../helpers/sink.js';
 const committed = (name: string): Buffer => readFileSync(new URL(`../../demo-data/${name}`, import.meta.url));
 const tmp = tempDir();
 afterAll(() => tmp.remove());
+// Training the demo's five fold networks on 5,000 rows: about half a minute alone, several times
+// that beside the rest of the suite on two cores.
 beforeAll(async () => {
   await buildDemo(tmp.dir);
-});
+}, 300_000);
 
 async function scoreTraffic(file: string): Promise<ScoreResponse[]> {
   const out = sink();
