@@ -114,7 +114,7 @@ async function childMain(file: string): Promise<void> {
   const bundle = await readBundle(join(DEMO_DATA_DIR, 'models/moulding-quality.bundle.json'));
   const store = openStore(file, { sync: 'normal', flushMs: 0, flushRows: 1, queueRows: 1, rejectedRows: 10 });
   const t = performance.now();
-  const report = buildDriftReport(store.drift, bundle, { from: dayStart, to: dayStart + DAY }, { id: 'bench', createdAt: new Date() });
+  const report = await buildDriftReport(store.drift, bundle, { from: dayStart, to: dayStart + DAY }, { id: 'bench', createdAt: new Date() });
   const reportMs = performance.now() - t;
   store.close();
   process.stdout.write(JSON.stringify({ reportMs, maxRssKb: process.resourceUsage().maxRSS, scored: report.counts.scored } satisfies ChildFigures));

@@ -67,7 +67,7 @@ export async function startServer(config: Config, options: ServerOptions = {}): 
   });
   let app: FastifyInstance | null = null;
   try {
-    const keys = runtime.store.keys.list();
+    const keys = await runtime.store.keys.list();
     const exposure = checkExposure({ host: config.host, auth: config.auth, keys: keys.length, liveKeys: keys.filter((k) => k.revoked_at === null).length });
     if (exposure) log.warn(exposure);
     if (runtime.registry.list().length === 0) log.warn({ dir: config.models_dir }, 'no *.bundle.json in the models directory; scoring answers 404 until one is added and SIGHUP sent');

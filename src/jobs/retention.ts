@@ -14,7 +14,7 @@ export const PRUNE_CHUNK_ROWS = 1000;
 export async function pruneBefore(retention: Retention, cutoff: number, chunkRows = PRUNE_CHUNK_ROWS): Promise<PruneStep & { steps: number }> {
   const total = { scored: 0, rejected: 0, outbox: 0, steps: 0 };
   for (;;) {
-    const s = retention.pruneStep(cutoff, chunkRows);
+    const s = await retention.pruneStep(cutoff, chunkRows);
     total.scored += s.scored;
     total.rejected += s.rejected;
     total.outbox += s.outbox;
