@@ -207,6 +207,7 @@ export async function openRuntime(config: Config, options: RuntimeOptions = {}):
           schedule: config.reports.schedule,
           timezone: config.reports.timezone,
           log,
+          exclusively: (name, work) => store.coordination.exclusively(name, work),
           ...(options.clock ? { now: options.clock } : {}),
         });
       }
