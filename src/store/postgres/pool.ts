@@ -42,6 +42,10 @@ export function createPool(o: ServerOptions, onError: (message: string) => void)
   });
   // An idle connection lost emits here; without a listener it would end the process.
   pool.on('error', (err) => onError(maskSecrets(err.message, o.url)));
+  // So does a connection lost while checked out between two queries (the server stopped under
+  // a transaction): the query under way fails on its own, and the error event must not end
+  // the process either.
+  pool.on('connect', (client) => client.on('error', (err) => onError(maskSecrets(err.message, o.url))));
   return pool;
 }
 
