@@ -3,16 +3,23 @@ import type { Pool, PoolClient } from './pool.js';
 
 /**
  * How long a replica holds the deliveries it took (wall clock). Longer than any receiver's
- * timeout (alerts.webhooks.*.timeout_s is at most 60 s): a replica killed while delivering leaves
+ * timeout (alerts.webhooks.*.timeout_s is at most 120 s): a replica killed while delivering leaves
  * its rows to another after this, with the same event id (at least once).
  */
-export const LEASE_MS = 120_000;
+export const LEASE_MS = 180_000;
+
+/**
+ * The evaluator joins rule and model with a NUL, which PostgreSQL's TEXT cannot hold; rule and
+ * model names never contain "/" (src/config/alert-rules.ts, the bundle name pattern), so it
+ * stands in for it without two keys becoming one.
+ */
+const storedKey = (key: string): string => key.replaceAll('\u0000', '/');
 
 async function queue(client: PoolClient, deliveries: NewDelivery[], now: number): Promise<void> {
   for (const d of deliveries) {
     await client.query(
       `INSERT INTO outbox (event_id, webhook, ordering_key, body, status, created_at, next_attempt_at) VALUES ($1, $2, $3, $4, 'pending', $5, $5)`,
-      [d.eventId, d.webhook, d.orderingKey, d.body, now],
+      [d.eventId, d.webhook, storedKey(d.orderingKey), d.body, now],
     );
   }
 }
