@@ -1,5 +1,5 @@
 import type { Database } from 'better-sqlite3';
-import type { Awaitable, Sync } from './contract.js';
+import type { Awaitable, Sync } from './awaitable.js';
 
 export interface WindowCounts {
   scored: number;

@@ -9,6 +9,7 @@ import type { RequestFilter } from './request-query.js';
 import type { RequestLog } from './request-log.js';
 import type { Retention } from './retention.js';
 import type { WriteState } from './write-health.js';
+import type { Awaitable } from './awaitable.js';
 
 // The contract every store keeps, SQLite (one process, an embedded file) and PostgreSQL (several
 // replicas on one server). A method that needs a round trip to a server returns a promise there;
@@ -16,11 +17,7 @@ import type { WriteState } from './write-health.js';
 // where it matters (the key check on every request, the scoring path: `log.append` is a promise
 // in both, resolved when the rows are committed).
 
-/** A value now (SQLite) or later (a database server). */
-export type Awaitable<T> = T | Promise<T>;
-
-/** The same contract answered synchronously: what the SQLite implementations give. */
-export type Sync<T> = { [K in keyof T]: T[K] extends (...a: infer A) => Awaitable<infer R> ? (...a: A) => R : T[K] };
+export type { Awaitable, Sync } from './awaitable.js';
 
 /** Work that must happen on one replica at a time (the nightly reports, the alert evaluation). */
 export interface Coordination {

@@ -1,4 +1,4 @@
-import type { Awaitable, Sync } from './contract.js';
+import type { Awaitable, Sync } from './awaitable.js';
 import type { Database, Statement } from 'better-sqlite3';
 
 /** One logged answer as the drift report reads it: only what it needs, the vector still packed. */

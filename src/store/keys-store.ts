@@ -1,4 +1,4 @@
-import type { Awaitable, Sync } from './contract.js';
+import type { Awaitable, Sync } from './awaitable.js';
 import type { Database } from 'better-sqlite3';
 
 export type Role = 'scorer' | 'reader' | 'admin';
