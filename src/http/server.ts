@@ -1,6 +1,7 @@
 import { readFileSync } from 'node:fs';
 import { createSecureContext } from 'node:tls';
 import type { FastifyInstance } from 'fastify';
+import { maskUrl } from '../store/location.js';
 import { type Logger, pino } from 'pino';
 import { checkExposure } from '../auth/exposure.js';
 import { type Config, ConfigError } from '../config/config.js';
@@ -79,7 +80,7 @@ export async function startServer(config: Config, options: ServerOptions = {}): 
     await (app ? app.close() : runtime.close()).catch(() => undefined);
     throw err;
   }
-  log.info({ models: runtime.registry.list().map((e) => `${e.name}@${e.bundle.file.version}`), db: config.db, sync: config.log.sync }, 'serving');
+  log.info({ models: runtime.registry.list().map((e) => `${e.name}@${e.bundle.file.version}`), db: maskUrl(config.db), sync: config.log.sync }, 'serving');
 
   const running = app;
   let closing: Promise<void> | null = null;
