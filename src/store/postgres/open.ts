@@ -46,7 +46,8 @@ function serverCoordination(pool: Pool): Coordination {
   };
 }
 
-async function connect(url: string, options: Partial<Omit<ServerOptions, 'url'>> & { onPoolError?: (message: string) => void }): Promise<Pool> {
+/** A pool on the server with its schema migrated (under the advisory lock). */
+export async function connectServer(url: string, options: Partial<Omit<ServerOptions, 'url'>> & { onPoolError?: (message: string) => void }): Promise<Pool> {
   const pool = createPool({ url, ...SERVER_DEFAULTS, ...options }, options.onPoolError ?? (() => undefined));
   try {
     await migrateServer(pool, url);
@@ -62,7 +63,7 @@ async function connect(url: string, options: Partial<Omit<ServerOptions, 'url'>>
  * an advisory lock), the group-commit log on the one chain, and the same contract as SQLite's.
  */
 export async function openServerStore(url: string, options: ServerStoreOptions): Promise<Store> {
-  const pool = await connect(url, options);
+  const pool = await connectServer(url, options);
   const health = createServerHealth(pool, url);
   const log = createServerLog(pool, url, options, { onStorage: (e) => health.record(e) });
   const requests = createServerRequestQuery(pool);
@@ -95,7 +96,7 @@ export async function openServerStore(url: string, options: ServerStoreOptions):
 
 /** The keys table on a server, for `plumbline keys --db URL`: migrated first, like any start. */
 export async function withServerKeys<T>(url: string, fn: (keys: KeysStore) => Promise<T>): Promise<T> {
-  const pool = await connect(url, { poolSize: 2 });
+  const pool = await connectServer(url, { poolSize: 2 });
   try {
     return await fn(createServerKeysStore(pool));
   } finally {
@@ -105,7 +106,7 @@ export async function withServerKeys<T>(url: string, fn: (keys: KeysStore) => Pr
 
 /** audit verify --db URL: the chain, read from the server, without starting a store. */
 export async function verifyServerLog(url: string, anchor?: Parameters<typeof verifyServerChain>[1]): Promise<Awaited<ReturnType<typeof verifyServerChain>>> {
-  const pool = await connect(url, { poolSize: 2 });
+  const pool = await connectServer(url, { poolSize: 2 });
   try {
     return await verifyServerChain(pool, anchor);
   } finally {
