@@ -12,6 +12,7 @@ import { measureDrift } from './drift-report.js';
 import { type HttpFigures, measureHttp } from './http.js';
 import { describeMachine } from './lib/machine.js';
 import { measureExplain } from './explain.js';
+import { measureReplicas, replicasTable } from './replicas.js';
 import { hasWrk } from './lib/load.js';
 import { type WalFigures, measureWal } from './wal.js';
 
@@ -181,6 +182,22 @@ sections.push(
     ...wal.map((f) => `| ${f.route}${f.route === 'score-batch' ? ` x ${f.items}` : ''} | ${f.writer} | ${f0(f.load.requestsPerSecond)} | ${f0(f.rows)} | ${f2(f.walMaxBytes / 2 ** 20)} | ${f0(f.boundBytes / 2 ** 20)} | ${f2(f.dbBytes / 2 ** 20)} | ${f.load.failed} |`),
   ].join('\n'),
 );
+
+const REPLICAS_INTRO = [
+  '## Replicas on one PostgreSQL against one on SQLite',
+  '',
+  'POST score with the demo bundle, the audit log on, `limits.requests_per_minute` 0 (no limit), as fast as the',
+  'load generator goes. One replica on a SQLite file, then 1, 2 and 3 replicas (each its own process) on one',
+  'database of a throwaway PostgreSQL 15 on this machine (fsync off, synchronous_commit on), side by side in one',
+  'run (bench/replicas.ts). One load generator per replica at once, 32 connections split between them; the',
+  'answers per second are their sum. Server processes, PostgreSQL and the load generators share this',
+  "machine's cores, so these figures show what one machine gives, not what N machines would: more replicas",
+  'here only split the same CPU and add contention for the chain head, which every commit locks.',
+  '',
+];
+say('replicas on PostgreSQL ...');
+const replicas = await measureReplicas({ seconds: quick ? 2 : 10, connections: 32 });
+sections.push(['skipped' in replicas ? [...REPLICAS_INTRO, `Skipped: ${replicas.skipped}.`] : [...REPLICAS_INTRO, ...replicasTable(replicas)]].flat().join('\n'));
 
 if (soak) {
   say('soak ...');
