@@ -211,7 +211,7 @@ export async function openRuntime(config: Config, options: RuntimeOptions = {}):
           ...(options.clock ? { now: options.clock } : {}),
         });
       }
-      if (config.retention_days > 0) retention = startRetention({ retention: store.retention, days: config.retention_days, timezone: config.reports.timezone, log });
+      if (config.retention_days > 0) retention = startRetention({ retention: store.retention, days: config.retention_days, timezone: config.reports.timezone, log, exclusively: (name, work) => store.coordination.exclusively(name, work) });
     }
     add('jobs', ['registry', 'reports', 'store'], null, async () => {
       await nightly?.stop();
