@@ -22,7 +22,7 @@ const sizes = process.argv[2] === '--child' ? [] : process.argv.slice(2).map(Num
 const DAY = 86_400_000;
 const dayStart = Date.parse('2026-11-30T00:00:00Z');
 
-async function baseRows(): Promise<Omit<ScoredRow, 'requestId' | 'receivedAt'>[]> {
+export async function baseRows(): Promise<Omit<ScoredRow, 'requestId' | 'receivedAt'>[]> {
   const bundle = await readBundle(join(DEMO_DATA_DIR, 'models/moulding-quality.bundle.json'));
   const scorer = createScorer(bundle);
   const out: Omit<ScoredRow, 'requestId' | 'receivedAt'>[] = [];
