@@ -144,13 +144,17 @@ export async function openRuntime(config: Config, options: RuntimeOptions = {}):
 
     // A server answers recordModel later: the first load waits for it (a scored row names its
     // model's record), a reload (SIGHUP) logs what failed.
-    const recording: Array<Promise<void>> = [];
+    let recording: Array<Promise<void>> | null = [];
     const record = (e: ModelEntry): void => {
       const done = store.recordModel(modelRecord(e));
-      if (done instanceof Promise) recording.push(done.catch((err: unknown) => log.error({ model: e.bundle.file.name, err: (err as Error).message }, 'the model could not be recorded in the database')));
+      if (!(done instanceof Promise)) return;
+      // At start a failure stops the start, as it does on SQLite; on a reload it is logged.
+      if (recording) recording.push(done);
+      else done.catch((err: unknown) => log.error({ model: e.bundle.file.name, err: (err as Error).message }, 'the model could not be recorded in the database'));
     };
     const registry = options.models === false ? emptyRegistry() : await createModelRegistry(config.models_dir, record, { maxBytes: config.limits.bundle_bytes });
-    await Promise.all(recording.splice(0));
+    await Promise.all(recording);
+    recording = null;
     add('registry', ['store'], registry);
     if (serve) {
       const kernel = kernelStatus();
