@@ -32,5 +32,11 @@ export default async function setup(project: TestProject): Promise<() => void> {
   server = await startThrowawayServer(found.bin);
   project.provide('pgUrl', server.url);
   project.provide('pgMissing', null);
-  return () => server?.remove();
+  // Also when the run ends without its teardown (a signal, a closed pipe): no server left behind.
+  const remove = (): void => {
+    server?.remove();
+    server = null;
+  };
+  process.once('exit', remove);
+  return remove;
 }
