@@ -22,7 +22,7 @@ const sizes = process.argv[2] === '--child' ? [] : process.argv.slice(2).map(Num
 const DAY = 86_400_000;
 const dayStart = Date.parse('2026-11-30T00:00:00Z');
 
-async function baseRows(): Promise<Omit<ScoredRow, 'requestId' | 'receivedAt'>[]> {
+export async function baseRows(): Promise<Omit<ScoredRow, 'requestId' | 'receivedAt'>[]> {
   const bundle = await readBundle(join(DEMO_DATA_DIR, 'models/moulding-quality.bundle.json'));
   const scorer = createScorer(bundle);
   const out: Omit<ScoredRow, 'requestId' | 'receivedAt'>[] = [];
@@ -114,7 +114,7 @@ async function childMain(file: string): Promise<void> {
   const bundle = await readBundle(join(DEMO_DATA_DIR, 'models/moulding-quality.bundle.json'));
   const store = openStore(file, { sync: 'normal', flushMs: 0, flushRows: 1, queueRows: 1, rejectedRows: 10 });
   const t = performance.now();
-  const report = buildDriftReport(store.drift, bundle, { from: dayStart, to: dayStart + DAY }, { id: 'bench', createdAt: new Date() });
+  const report = await buildDriftReport(store.drift, bundle, { from: dayStart, to: dayStart + DAY }, { id: 'bench', createdAt: new Date() });
   const reportMs = performance.now() - t;
   store.close();
   process.stdout.write(JSON.stringify({ reportMs, maxRssKb: process.resourceUsage().maxRSS, scored: report.counts.scored } satisfies ChildFigures));

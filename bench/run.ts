@@ -9,9 +9,11 @@ import { writeFileSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
 import { measureEnsembleForward, measureForward, measureOfflineScore, measureScoreBatch } from './batch.js';
 import { measureDrift } from './drift-report.js';
+import { measureDriftOnServer } from './drift-postgres.js';
 import { type HttpFigures, measureHttp } from './http.js';
 import { describeMachine } from './lib/machine.js';
 import { measureExplain } from './explain.js';
+import { measureReplicas, replicasTable } from './replicas.js';
 import { hasWrk } from './lib/load.js';
 import { type WalFigures, measureWal } from './wal.js';
 
@@ -158,6 +160,29 @@ sections.push(
   ].join('\n'),
 );
 
+say('drift report on PostgreSQL ...');
+const serverDrift = await measureDriftOnServer(quick ? 100_000 : 1_000_000);
+if (!('skipped' in serverDrift)) {
+  targets.push(
+    { measure: `drift report over ${f0(serverDrift.rows)} rows in PostgreSQL / bare server-side-cursor scan from Node`, figure: `${f2(serverDrift.ratio)}x`, target: '<= 3x', met: serverDrift.ratio <= 3 },
+    { measure: `drift report peak RSS at ${f0(serverDrift.rows)} rows in PostgreSQL`, figure: `${f0(serverDrift.peakRssMb)} MB`, target: '< 300 MB', met: serverDrift.peakRssMb < 300 },
+  );
+}
+sections.push(
+  [
+    '## Drift report over rows in PostgreSQL',
+    '',
+    "The demo traffic's answers, repeated over one day, in a throwaway PostgreSQL 15 (bench/drift-postgres.ts).",
+    'The report reads them through a server-side cursor, 5,000 rows a FETCH; the bare scan runs the same query',
+    'through the same cursor from Node and does nothing with the rows. Each in a process of its own; the bare',
+    'scan is the better of one run before and one after the report.',
+    '',
+    ...('skipped' in serverDrift
+      ? [`Skipped: ${serverDrift.skipped}.`]
+      : ['| rows | report ms | bare scan ms | ratio | peak RSS MB |', '|---:|---:|---:|---:|---:|', `| ${f0(serverDrift.rows)} | ${f0(serverDrift.reportMs)} | ${f0(serverDrift.scanMs)} | ${f2(serverDrift.ratio)} | ${f0(serverDrift.peakRssMb)} |`]),
+  ].join('\n'),
+);
+
 // 4. The write-ahead log under sustained load
 say('WAL under sustained load ...');
 const wal: WalFigures[] = [];
@@ -185,6 +210,22 @@ sections.push(
     ...wal.map((f) => `| ${f.route}${f.route === 'score-batch' ? ` x ${f.items}` : ''} | ${f.writer} | ${f0(f.load.requestsPerSecond)} | ${f0(f.rows)} | ${f2(f.walMaxBytes / 2 ** 20)} | ${f0(f.boundBytes / 2 ** 20)} | ${f2(f.dbBytes / 2 ** 20)} | ${f.load.failed} |`),
   ].join('\n'),
 );
+
+const REPLICAS_INTRO = [
+  '## Replicas on one PostgreSQL against one on SQLite',
+  '',
+  'POST score with the demo bundle, the audit log on, `limits.requests_per_minute` 0 (no limit), as fast as the',
+  'load generator goes. One replica on a SQLite file, then 1, 2 and 3 replicas (each its own process) on one',
+  'database of a throwaway PostgreSQL 15 on this machine (fsync off, synchronous_commit on), side by side in one',
+  'run (bench/replicas.ts). One load generator per replica at once, 32 connections split between them; the',
+  'answers per second are their sum. Server processes, PostgreSQL and the load generators share this',
+  "machine's cores, so these figures show what one machine gives, not what N machines would: more replicas",
+  'here only split the same CPU and add contention for the chain head, which every commit locks.',
+  '',
+];
+say('replicas on PostgreSQL ...');
+const replicas = await measureReplicas({ seconds: quick ? 2 : 10, connections: 32 });
+sections.push(['skipped' in replicas ? [...REPLICAS_INTRO, `Skipped: ${replicas.skipped}.`] : [...REPLICAS_INTRO, ...replicasTable(replicas)]].flat().join('\n'));
 
 if (soak) {
   say('soak ...');

@@ -12,7 +12,10 @@ import { type ReportService, createReportService } from './reports/service.js';
 import { type ExplanationService, createExplanationService } from './scoring/explain.js';
 import { type ScoringService, createScoringService } from './scoring/service.js';
 import type { ModelRecord } from './store/models-table.js';
-import { type Store, type StoreOptions, openStore } from './store/store.js';
+import type { Store } from './store/contract.js';
+import { maskUrl } from './store/location.js';
+import { openStoreAt } from './store/open.js';
+import type { StoreOptions } from './store/store.js';
 import { VERSION } from './version.js';
 
 /** What the routes, the CLI and the jobs are given: every part of a running service. */
@@ -126,13 +129,32 @@ export async function openRuntime(config: Config, options: RuntimeOptions = {}):
 
   try {
     // The serving process holds the database (one server per file) and keeps the chain head beside it.
-    const store = openStore(config.db, {
+    const db = maskUrl(config.db);
+    const store = await openStoreAt(config.db, {
       ...storeOptions(config, serve),
-      ...(serve ? { serve: { version: VERSION, onFenced: (reason: string) => log.error({ db: config.db }, reason) } } : {}),
+      ...(serve ? { serve: { version: VERSION, onFenced: (reason: string) => log.error({ db }, reason) } } : {}),
+      server: {
+        poolSize: config.postgres.pool_size,
+        statementTimeoutMs: config.postgres.statement_timeout_ms,
+        connectTimeoutMs: config.postgres.connect_timeout_ms,
+        onPoolError: (message) => log.warn({ db }, `a connection to the database was lost: ${message}`),
+      },
     });
     add('store', [], store, () => store.close());
 
-    const registry = options.models === false ? emptyRegistry() : await createModelRegistry(config.models_dir, (e) => store.recordModel(modelRecord(e)), { maxBytes: config.limits.bundle_bytes });
+    // A server answers recordModel later: the first load waits for it (a scored row names its
+    // model's record), a reload (SIGHUP) logs what failed.
+    let recording: Array<Promise<void>> | null = [];
+    const record = (e: ModelEntry): void => {
+      const done = store.recordModel(modelRecord(e));
+      if (!(done instanceof Promise)) return;
+      // At start a failure stops the start, as it does on SQLite; on a reload it is logged.
+      if (recording) recording.push(done);
+      else done.catch((err: unknown) => log.error({ model: e.bundle.file.name, err: (err as Error).message }, 'the model could not be recorded in the database'));
+    };
+    const registry = options.models === false ? emptyRegistry() : await createModelRegistry(config.models_dir, record, { maxBytes: config.limits.bundle_bytes });
+    await Promise.all(recording);
+    recording = null;
     add('registry', ['store'], registry);
     if (serve) {
       const kernel = kernelStatus();
@@ -143,7 +165,7 @@ export async function openRuntime(config: Config, options: RuntimeOptions = {}):
     const metrics = createMetrics();
     // The gauges start from what the log already holds.
     for (const e of registry.list()) {
-      const psi = latestMaxPsi(store.alerts.latestReport(e.name));
+      const psi = latestMaxPsi(await store.alerts.latestReport(e.name));
       if (psi !== null) metrics.driftMaxPsi.set({ model: e.name }, psi);
     }
     add('metrics', ['registry', 'store'], metrics);
@@ -189,10 +211,11 @@ export async function openRuntime(config: Config, options: RuntimeOptions = {}):
           schedule: config.reports.schedule,
           timezone: config.reports.timezone,
           log,
+          exclusively: (name, work) => store.coordination.exclusively(name, work),
           ...(options.clock ? { now: options.clock } : {}),
         });
       }
-      if (config.retention_days > 0) retention = startRetention({ retention: store.retention, days: config.retention_days, timezone: config.reports.timezone, log });
+      if (config.retention_days > 0) retention = startRetention({ retention: store.retention, days: config.retention_days, timezone: config.reports.timezone, log, exclusively: (name, work) => store.coordination.exclusively(name, work) });
     }
     add('jobs', ['registry', 'reports', 'store'], null, async () => {
       await nightly?.stop();

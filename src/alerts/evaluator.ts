@@ -2,7 +2,7 @@ import { falseAlarmBaseline } from '../bundle/baseline.js';
 import type { Logger } from 'pino';
 import type { ModelRegistry } from '../bundle/registry.js';
 import { uuidv7 } from '../ids.js';
-import type { AlertsStore, NewDelivery } from '../store/alerts-store.js';
+import type { AlertRow, AlertsStore, NewDelivery } from '../store/alerts-store.js';
 import { type AlertEventType, type AlertFacts, alertEvent, describeAlert } from './cloudevents.js';
 import { formatDuration } from '../config/durations.js';
 import type { AlertRule } from '../config/alert-rules.js';
@@ -34,8 +34,11 @@ interface Track {
 }
 
 export interface Evaluator {
-  /** Evaluates every rule for every model it applies to, raising and clearing alerts. */
-  tick(now?: number): void;
+  /**
+   * Evaluates every rule for every model it applies to, raising and clearing alerts. Starts from
+   * the alerts the store holds open, which another replica may have raised or cleared since.
+   */
+  tick(now?: number): Promise<void>;
   states(): AlertState[];
 }
 
@@ -49,10 +52,24 @@ export function createEvaluator(deps: { rules: AlertRule[]; registry: ModelRegis
   const { rules, registry, store, log } = deps;
   const tracks = new Map<string, Track>();
   const key = (rule: string, model: string): string => `${rule}\u0000${model}`;
-  for (const a of store.openAlerts()) {
-    // A restart keeps raised alerts raised, so that recovery is announced and nothing twice.
-    tracks.set(key(a.rule, a.model_name), { phase: 'raised', since: a.raised_at, clearSince: null, alertId: a.id, raisedAt: a.raised_at, value: a.raised_value, threshold: a.threshold, requests: 0 });
-  }
+  /**
+   * A restart keeps raised alerts raised, so that recovery is announced and nothing twice; with
+   * several replicas the one evaluating now takes over what another raised or cleared.
+   */
+  const syncOpen = (open: AlertRow[]): void => {
+    const raised = new Set<string>();
+    for (const a of open) {
+      const k = key(a.rule, a.model_name);
+      raised.add(k);
+      const t = tracks.get(k);
+      if (t?.phase === 'raised' && t.alertId === a.id) continue;
+      tracks.set(k, { phase: 'raised', since: a.raised_at, clearSince: null, alertId: a.id, raisedAt: a.raised_at, value: a.raised_value, threshold: a.threshold, requests: 0 });
+    }
+    for (const [k, t] of tracks) if (t.phase === 'raised' && !raised.has(k)) Object.assign(t, { phase: 'quiet', alertId: null, raisedAt: null, clearSince: null });
+  };
+  // SQLite answers at once: the states are there before the first tick.
+  const first = store.openAlerts();
+  if (Array.isArray(first)) syncOpen(first);
 
   const deliveries = (rule: AlertRule, model: string, type: AlertEventType, at: number, facts: AlertFacts): NewDelivery[] => {
     const eventId = uuidv7(at);
@@ -68,13 +85,13 @@ export function createEvaluator(deps: { rules: AlertRule[]; registry: ModelRegis
     return entry && rule.above_expected !== undefined ? rule.above_expected * falseAlarmBaseline(entry.bundle.file).high : null;
   };
 
-  const evaluate = (rule: AlertRule, model: string, now: number): void => {
+  const evaluate = async (rule: AlertRule, model: string, now: number): Promise<void> => {
     const k = key(rule.name, model);
     const t = tracks.get(k) ?? { phase: 'quiet', since: now, clearSince: null, alertId: null, raisedAt: null, value: null, threshold: null, requests: 0 };
     tracks.set(k, t);
     const direction = rule.below !== undefined ? 'below' : 'above';
     const threshold = thresholdFor(rule, model);
-    const signal = computeSignal(store, rule, model, now);
+    const signal = await computeSignal(store, rule, model, now);
     t.requests = signal?.requests ?? 0;
     t.threshold = threshold;
     const enough = signal !== null && signal.requests >= rule.min_requests && threshold !== null;
@@ -96,7 +113,7 @@ export function createEvaluator(deps: { rules: AlertRule[]; registry: ModelRegis
       }
       if (t.phase === 'holding' && now - t.since >= rule.sustain) {
         const id = uuidv7(now);
-        store.raise(
+        await store.raise(
           { id, rule: rule.name, model_name: model, signal: rule.signal, direction, threshold, window_ms: rule.window, raised_value: signal.value, raised_at: now },
           deliveries(rule, model, 'plumbline.alert.raised', now, facts(id, now, null)),
           now,
@@ -110,7 +127,7 @@ export function createEvaluator(deps: { rules: AlertRule[]; registry: ModelRegis
     if (t.phase === 'raised' && t.alertId !== null) {
       t.clearSince ??= now;
       if (now - t.clearSince >= rule.window) {
-        store.clear(t.alertId, signal.value, now, deliveries(rule, model, 'plumbline.alert.cleared', now, facts(t.alertId, t.raisedAt ?? now, now)));
+        await store.clear(t.alertId, signal.value, now, deliveries(rule, model, 'plumbline.alert.cleared', now, facts(t.alertId, t.raisedAt ?? now, now)));
         log.info({ alert: t.alertId, rule: rule.name, model, value: signal.value }, 'alert cleared');
         Object.assign(t, { phase: 'quiet', since: now, alertId: null, raisedAt: null, clearSince: null });
       }
@@ -118,12 +135,13 @@ export function createEvaluator(deps: { rules: AlertRule[]; registry: ModelRegis
   };
 
   return {
-    tick(now = Date.now()) {
+    async tick(now = Date.now()) {
+      syncOpen(await store.openAlerts());
       for (const rule of rules) {
         const models = rule.model === '*' ? registry.list().map((e) => e.name) : [rule.model];
         for (const model of models) {
           try {
-            evaluate(rule, model, now);
+            await evaluate(rule, model, now);
           } catch (err) {
             log.error({ rule: rule.name, model, err: (err as Error).message }, 'alert rule could not be evaluated');
           }

@@ -70,7 +70,7 @@ export function createDeliverer(deps: { store: AlertsStore; webhooks: Record<str
     const target = webhooks[d.webhook];
     const attempts = d.attempts + 1;
     if (!target) {
-      store.markFailed(d.seq, attempts, `webhook ${d.webhook} is no longer configured`);
+      await store.markFailed(d.seq, attempts, `webhook ${d.webhook} is no longer configured`);
       log.error({ webhook: d.webhook, event: d.event_id }, 'alert delivery failed: webhook not configured');
       return;
     }
@@ -85,7 +85,7 @@ export function createDeliverer(deps: { store: AlertsStore; webhooks: Record<str
       await res.arrayBuffer().catch(() => undefined);
       if (stopping.signal.aborted) return;
       if (res.status >= 200 && res.status < 300) {
-        store.markDelivered(d.seq, Date.now());
+        await store.markDelivered(d.seq, Date.now());
         return;
       }
       error = `answered ${res.status}`;
@@ -95,18 +95,18 @@ export function createDeliverer(deps: { store: AlertsStore; webhooks: Record<str
       error = (err as Error).name === 'TimeoutError' ? `no answer within ${target.timeoutMs} ms` : (err as Error).message;
     }
     if (now - d.created_at >= policy.giveUpAfter) {
-      store.markFailed(d.seq, attempts, error);
+      await store.markFailed(d.seq, attempts, error);
       log.error({ webhook: d.webhook, event: d.event_id, attempts, error }, 'alert delivery failed for good');
       return;
     }
-    store.markRetry(d.seq, attempts, Math.round(now + backoff(attempts, policy)), error);
+    await store.markRetry(d.seq, attempts, Math.round(now + backoff(attempts, policy)), error);
     log.warn({ webhook: d.webhook, event: d.event_id, attempts, error }, 'alert delivery will be retried');
   };
 
   /** Delivers what is due for one webhook until nothing more is due now. */
   const pass = async (webhook: string, now: number): Promise<void> => {
     while (!stopping.signal.aborted) {
-      const due = store.dueDeliveries(now, 100, webhook);
+      const due = await store.dueDeliveries(now, 100, webhook);
       if (due.length === 0) return;
       // A delivered row frees the next of its key for the next round; a retried one is due
       // again only later, so the loop ends.
@@ -115,17 +115,17 @@ export function createDeliverer(deps: { store: AlertsStore; webhooks: Record<str
   };
 
   return {
-    tick(now = Date.now()) {
-      if (stopping.signal.aborted) return Promise.resolve();
+    async tick(now = Date.now()) {
+      if (stopping.signal.aborted) return;
       const started: Array<Promise<void>> = [];
-      for (const webhook of new Set(store.dueDeliveries(now, 100).map((d) => d.webhook))) {
+      for (const webhook of new Set((await store.dueDeliveries(now, 100)).map((d) => d.webhook))) {
         // One pass per webhook at a time: a slow receiver must not get a second copy of a delivery in flight.
         if (busy.has(webhook)) continue;
         const run = pass(webhook, now).finally(() => busy.delete(webhook));
         busy.set(webhook, run);
         started.push(run);
       }
-      return Promise.all(started).then(() => undefined);
+      await Promise.all(started);
     },
     async stop() {
       stopping.abort();

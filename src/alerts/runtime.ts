@@ -39,16 +39,19 @@ export function startAlerting(deps: { config: Config; registry: ModelRegistry; s
   let stopped = false;
   // The gauge is set on every call, before the passes: a pass may hang on a receiver for its
   // whole timeout, and the depth must not wait for it.
-  const countPending = (): void => metrics.outboxDepth.set(store.alerts.pendingDeliveries());
-  const deliver = (now?: number): Promise<void> => {
-    if (stopped) return Promise.resolve();
-    countPending();
-    return deliverer.tick(now).then(() => {
-      if (!stopped) countPending();
-    });
+  const countPending = async (): Promise<void> => {
+    metrics.outboxDepth.set(await store.alerts.pendingDeliveries());
   };
+  const deliver = async (now?: number): Promise<void> => {
+    if (stopped) return;
+    await countPending();
+    await deliverer.tick(now);
+    if (!stopped) await countPending();
+  };
+  // With several replicas on one database, one evaluates the rules at a time (store.coordination);
+  // the others only deliver, which the outbox's leases keep to one replica per delivery.
   const tick = async (now?: number): Promise<void> => {
-    evaluator.tick(now);
+    await store.coordination.exclusively('alert-evaluation', () => evaluator.tick(now));
     await deliver(now);
   };
   const timers: NodeJS.Timeout[] = [];
@@ -57,7 +60,7 @@ export function startAlerting(deps: { config: Config; registry: ModelRegistry; s
     timers.push(setInterval(() => void deliver().catch((err: unknown) => log.error({ err }, 'alert delivery failed')), 1000));
     for (const t of timers) t.unref();
   }
-  countPending();
+  void countPending().catch((err: unknown) => log.error({ err }, 'the outbox could not be counted'));
   return {
     evaluator,
     deliverer,

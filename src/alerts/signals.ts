@@ -11,21 +11,21 @@ export interface SignalValue {
  * A rule's signal for one model over [now - window, now), or null when nothing was logged.
  * max_psi is the largest feature PSI of the model's newest drift report, whatever its window.
  */
-export function computeSignal(store: AlertsStore, rule: AlertRule, model: string, now: number): SignalValue | null {
+export async function computeSignal(store: AlertsStore, rule: AlertRule, model: string, now: number): Promise<SignalValue | null> {
   const from = now - rule.window;
   if (rule.signal === 'max_psi') {
-    const text = store.latestReport(model);
+    const text = await store.latestReport(model);
     if (!text) return null;
     const report = JSON.parse(text) as { counts: { scored: number }; features: Array<{ psi: number | null }> };
     const psis = report.features.map((f) => f.psi).filter((p): p is number => p !== null);
     return psis.length > 0 ? { value: Math.max(...psis), requests: report.counts.scored } : null;
   }
   if (rule.signal === 'rejected_rate') {
-    const rejected = store.rejectedCount(model, from, now);
-    const total = store.windowCounts(model, from, now).scored + rejected;
+    const rejected = await store.rejectedCount(model, from, now);
+    const total = (await store.windowCounts(model, from, now)).scored + rejected;
     return total > 0 ? { value: rejected / total, requests: total } : null;
   }
-  const c = store.windowCounts(model, from, now);
+  const c = await store.windowCounts(model, from, now);
   if (c.scored === 0) return null;
   switch (rule.signal) {
     case 'out_of_domain_rate':
@@ -36,7 +36,7 @@ export function computeSignal(store: AlertsStore, rule: AlertRule, model: string
       return { value: c.marginSum / c.scored, requests: c.scored };
     default: {
       const label = rule.signal.slice('class_fraction:'.length);
-      return { value: store.labelCount(model, label, from, now) / c.scored, requests: c.scored };
+      return { value: (await store.labelCount(model, label, from, now)) / c.scored, requests: c.scored };
     }
   }
 }

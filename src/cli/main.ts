@@ -9,6 +9,7 @@ import { MigrationError } from '../store/migrate.js';
 import { StoreIntegrityError } from '../store/store.js';
 import { DatabaseUnwritableError } from '../store/database.js';
 import { DatabaseHeldError } from '../store/serve-lock.js';
+import { ServerError } from '../store/postgres/pool.js';
 import { DataFileError } from '../io/csv.js';
 import { DataFileErrors } from '../io/feature-table.js';
 import { UsageError } from './io.js';
@@ -33,6 +34,10 @@ function report(err: unknown): number {
   if (err instanceof DatabaseHeldError) {
     process.stderr.write(`plumbline: ${err.message}\n`);
     return 75; // EX_TEMPFAIL of sysexits.h: try again once the other server has stopped
+  }
+  if (err instanceof ServerError) {
+    process.stderr.write(`plumbline: ${err.message}\n`);
+    return 69; // EX_UNAVAILABLE of sysexits.h: the database server cannot be reached or refused
   }
   process.stderr.write(`plumbline: unexpected error: ${err instanceof Error ? (err.stack ?? err.message) : String(err)}\n`);
   return 70; // EX_SOFTWARE of sysexits.h

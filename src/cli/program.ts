@@ -4,6 +4,7 @@ import { registerDemo } from './commands/demo.js';
 import { registerDrift } from './commands/drift.js';
 import { registerImport } from './commands/import.js';
 import { registerKeys } from './commands/keys.js';
+import { registerMigrateLog } from './commands/migrate-log.js';
 import { registerScore } from './commands/score.js';
 import { registerExplain } from './commands/explain.js';
 import { registerServe } from './commands/serve.js';
@@ -25,5 +26,6 @@ export function buildProgram(): Command {
   registerDemo(program);
   registerKeys(program);
   registerAudit(program);
+  registerMigrateLog(program);
   return program;
 }

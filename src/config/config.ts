@@ -45,8 +45,22 @@ export const configSchema = z
   port: int(0, 65535).default(8080),
   /** Directory whose *.bundle.json files are served. */
   models_dir: z.string().min(1).default('models'),
-  /** SQLite database file of the audit log; created with its directory when missing. */
+  /**
+   * The audit log: a SQLite file (created with its directory when missing), or a postgres:// or
+   * postgresql:// URL (libpq's URI syntax) for several replicas on one PostgreSQL server.
+   */
   db: z.string().min(1).default('var/plumbline.db'),
+  /** Only when `db` is a PostgreSQL URL (src/store/postgres/). */
+  postgres: z
+    .strictObject({
+      /** Connections each replica opens at most (the group-commit writer takes one per batch). */
+      pool_size: int(2, 1000).default(10),
+      /** A statement running longer is cancelled by the server (statement_timeout), in ms. */
+      statement_timeout_ms: int(100, 3_600_000).default(30_000),
+      /** Waiting longer for a connection to the server fails the operation, in ms. */
+      connect_timeout_ms: int(100, 600_000).default(5_000),
+    })
+    .prefault({}),
   /**
    * "keys": once one API key exists in the database, every /v1 route needs one (and with none
    * the server listens on loopback only). "off": no key is asked for, on any address.

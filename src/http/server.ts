@@ -1,6 +1,7 @@
 import { readFileSync } from 'node:fs';
 import { createSecureContext } from 'node:tls';
 import type { FastifyInstance } from 'fastify';
+import { maskUrl } from '../store/location.js';
 import { type Logger, pino } from 'pino';
 import { checkExposure } from '../auth/exposure.js';
 import { type Config, ConfigError } from '../config/config.js';
@@ -67,7 +68,7 @@ export async function startServer(config: Config, options: ServerOptions = {}): 
   });
   let app: FastifyInstance | null = null;
   try {
-    const keys = runtime.store.keys.list();
+    const keys = await runtime.store.keys.list();
     const exposure = checkExposure({ host: config.host, auth: config.auth, keys: keys.length, liveKeys: keys.filter((k) => k.revoked_at === null).length });
     if (exposure) log.warn(exposure);
     if (runtime.registry.list().length === 0) log.warn({ dir: config.models_dir }, 'no *.bundle.json in the models directory; scoring answers 404 until one is added and SIGHUP sent');
@@ -79,7 +80,7 @@ export async function startServer(config: Config, options: ServerOptions = {}): 
     await (app ? app.close() : runtime.close()).catch(() => undefined);
     throw err;
   }
-  log.info({ models: runtime.registry.list().map((e) => `${e.name}@${e.bundle.file.version}`), db: config.db, sync: config.log.sync }, 'serving');
+  log.info({ models: runtime.registry.list().map((e) => `${e.name}@${e.bundle.file.version}`), db: maskUrl(config.db), sync: config.log.sync }, 'serving');
 
   const running = app;
   let closing: Promise<void> | null = null;

@@ -35,22 +35,57 @@ export function startNightlyReports(deps: {
   log: Logger;
   /** The clock; tests set it so that what "the last scheduled run" is does not depend on the day they run. */
   now?: () => Date;
+  /**
+   * Runs a pass only where no other replica runs one (store.coordination): with several replicas
+   * on one database, one elected replica makes the reports. Without it, every pass runs.
+   */
+  exclusively?: (name: string, work: () => Promise<void>) => Promise<boolean>;
+  /**
+   * A replica that was not elected looks again after this long (default a minute), so that the
+   * reports are made even when the elected one died before it finished: re-election.
+   */
+  retryMs?: number;
 }): NightlyReports {
   const { registry, reports, drift, timezone, log } = deps;
   const now = deps.now ?? (() => new Date());
+  const exclusively = deps.exclusively ?? (async (_name: string, work: () => Promise<void>) => (await work(), true));
+  const retryMs = deps.retryMs ?? 60_000;
+  let stopped = false;
+  const retries = new Set<NodeJS.Timeout>();
   let running: Promise<void> = Promise.resolve();
-  const runFor = (at: Date): Promise<void> => {
+  const pass = async (at: Date): Promise<void> => {
+    const window = previousDayWindow(at, timezone);
+    for (const e of registry.list()) {
+      try {
+        if (await drift.hasReport(e.name, window.from, window.to)) continue;
+        const r = await reports.run(e.name, window, 'nightly', e.bundle.file.sha256);
+        log.info({ model: e.name, report: r.id, verdict: r.verdict, scored: r.counts.scored, window: r.window }, 'nightly drift report');
+      } catch (err) {
+        log.error({ model: e.name, err: (err as Error).message }, 'nightly drift report failed');
+      }
+    }
+  };
+  const runFor = (at: Date, attempt = 0): Promise<void> => {
     // One pass at a time; a slow pass makes the next one wait rather than run beside it.
     running = running.then(async () => {
-      const window = previousDayWindow(at, timezone);
-      for (const e of registry.list()) {
-        if (drift.hasReport(e.name, window.from, window.to)) continue;
-        try {
-          const r = await reports.run(e.name, window, 'nightly', e.bundle.file.sha256);
-          log.info({ model: e.name, report: r.id, verdict: r.verdict, scored: r.counts.scored, window: r.window }, 'nightly drift report');
-        } catch (err) {
-          log.error({ model: e.name, err: (err as Error).message }, 'nightly drift report failed');
-        }
+      // A retry after stop() does not run; a pass queued before it does, and stop() waits for it.
+      if (stopped && attempt > 0) return;
+      let elected: boolean;
+      try {
+        elected = await exclusively('nightly-reports', () => pass(at));
+      } catch (err) {
+        log.error({ err: (err as Error).message }, 'nightly drift reports could not start');
+        elected = false;
+      }
+      // Another replica holds the job: look again later, until the day's reports exist (a
+      // pass that finds them all stored does nothing). A day's worth of tries at most.
+      if (!elected && !stopped && attempt < 1440) {
+        const t = setTimeout(() => {
+          retries.delete(t);
+          void runFor(at, attempt + 1);
+        }, retryMs);
+        t.unref();
+        retries.add(t);
       }
     });
     return running;
@@ -61,7 +96,9 @@ export function startNightlyReports(deps: {
   return {
     runFor,
     stop: () => {
+      stopped = true;
       job.stop();
+      for (const t of retries) clearTimeout(t);
       return running;
     },
   };

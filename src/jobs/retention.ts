@@ -14,7 +14,7 @@ export const PRUNE_CHUNK_ROWS = 1000;
 export async function pruneBefore(retention: Retention, cutoff: number, chunkRows = PRUNE_CHUNK_ROWS): Promise<PruneStep & { steps: number }> {
   const total = { scored: 0, rejected: 0, outbox: 0, steps: 0 };
   for (;;) {
-    const s = retention.pruneStep(cutoff, chunkRows);
+    const s = await retention.pruneStep(cutoff, chunkRows);
     total.scored += s.scored;
     total.rejected += s.rejected;
     total.outbox += s.outbox;
@@ -34,17 +34,28 @@ export interface RetentionJob {
  * The retention job: every night at 03:30 in the reports' time zone (after the nightly reports at
  * their default time), and once at start, rows older than `days` days are pruned.
  */
-export function startRetention(deps: { retention: Retention; days: number; timezone: string; log: Logger; now?: () => number }): RetentionJob {
+export function startRetention(deps: {
+  retention: Retention;
+  days: number;
+  timezone: string;
+  log: Logger;
+  now?: () => number;
+  /** With several replicas on one database, one prunes at a time; the others skip that night's pass. */
+  exclusively?: (name: string, work: () => Promise<void>) => Promise<boolean>;
+}): RetentionJob {
   const now = deps.now ?? Date.now;
   let running: Promise<void> = Promise.resolve();
   const runNow = (): Promise<void> => {
     running = running.then(async () => {
       const cutoff = now() - deps.days * DAY;
+      const exclusively = deps.exclusively ?? (async (_name: string, work: () => Promise<void>) => (await work(), true));
       try {
-        const r = await pruneBefore(deps.retention, cutoff);
-        if (r.scored + r.rejected + r.outbox > 0) {
-          deps.log.info({ before: new Date(cutoff).toISOString(), scored: r.scored, rejected: r.rejected, outbox: r.outbox, transactions: r.steps }, 'retention: old rows pruned');
-        }
+        await exclusively('retention', async () => {
+          const r = await pruneBefore(deps.retention, cutoff);
+          if (r.scored + r.rejected + r.outbox > 0) {
+            deps.log.info({ before: new Date(cutoff).toISOString(), scored: r.scored, rejected: r.rejected, outbox: r.outbox, transactions: r.steps }, 'retention: old rows pruned');
+          }
+        });
       } catch (err) {
         deps.log.error({ err: (err as Error).message }, 'retention failed; nothing after the last committed step was pruned');
       }

@@ -5,7 +5,7 @@ import { ksTest } from '../core/stats/ks.js';
 import { binomialUpperTail, wilsonInterval } from '../core/stats/proportion.js';
 import type { LoadedBundle } from '../bundle/verify.js';
 import { falseAlarmBaseline } from '../bundle/baseline.js';
-import type { DriftStore } from '../store/drift-store.js';
+import type { DriftStore, ScoredRowView } from '../store/drift-store.js';
 import { writeFindings } from './findings.js';
 import { REPORT_DEFAULTS, type ReportOptions } from './options.js';
 import type { DriftReport, FeatureDrift } from '../contracts/drift-report.js';
@@ -48,13 +48,13 @@ function column(values: Float64Array, rows: number, width: number, j: number): F
  * Benjamini-Hochberg across features); predictions with the held-out answers'; the
  * out-of-domain rate with the false-alarm rate measured when the flag was calibrated.
  */
-export function buildDriftReport(
+export async function buildDriftReport(
   store: Pick<DriftStore, 'scoredRows' | 'countOtherVersions' | 'countRejected'>,
   bundle: LoadedBundle,
   window: { from: number; to: number },
   meta: { id: string; createdAt: Date },
   options: ReportOptions = REPORT_DEFAULTS,
-): DriftReport {
+): Promise<DriftReport> {
   const b = bundle.file;
   const d = b.features.length;
   const K = b.classes.length;
@@ -75,7 +75,7 @@ export function buildDriftReport(
   let review = 0;
   let marginSum = 0;
 
-  for (const row of store.scoredRows(b.sha256, window.from, window.to)) {
+  const add = (row: ScoredRowView): void => {
     for (let j = 0; j < d; j++) x[j] = row.features.readDoubleLE(j * 8);
     scored++;
     for (let j = 0; j < d; j++) {
@@ -100,7 +100,16 @@ export function buildDriftReport(
     h.scored++;
     if (row.in_domain === 0) h.ood++;
     hourly.set(hour, h);
+  };
+  const source = store.scoredRows(b.sha256, window.from, window.to);
+  // SQLite's rows come synchronously, one at a time; a server's in pages.
+  if (Symbol.asyncIterator in source) {
+    for await (const page of source) for (const row of page) add(row);
+  } else {
+    for (const row of source) add(row);
   }
+  const rejected = await store.countRejected(b.name, window.from, window.to);
+  const otherVersions = await store.countOtherVersions(b.name, b.sha256, window.from, window.to);
 
   const enough = scored >= options.minRows;
   const rows = sample.size;
@@ -151,9 +160,9 @@ export function buildDriftReport(
     verdict: 'stable',
     counts: {
       scored,
-      rejected: store.countRejected(b.name, window.from, window.to),
+      rejected,
       out_of_domain: ood,
-      other_versions: store.countOtherVersions(b.name, b.sha256, window.from, window.to),
+      other_versions: otherVersions,
     },
     out_of_domain: {
       rate: scored > 0 ? ood / scored : null,

@@ -44,13 +44,15 @@ function inWorker(job: WorkerJob): Promise<DriftReport> {
 export function createReportService(store: Store, options: ReportOptions & { worker: boolean }, onStored?: (r: DriftReport) => void): ReportService {
   return {
     async run(model, window, trigger, sha256) {
-      const stored = store.drift.bundleText(model, sha256);
+      const stored = await store.drift.bundleText(model, sha256);
       if (!stored) throw new ReportError(`the audit log holds no bundle for a model named ${JSON.stringify(model)}`, 'unknown-model');
       const meta = { id: uuidv7(), createdAt: new Date() };
-      const report = options.worker
+      // The worker opens the SQLite file read-only; on PostgreSQL the rows come in pages from a
+      // server-side cursor and the builder awaits each, so the event loop keeps scoring meanwhile.
+      const report = options.worker && store.kind === 'sqlite'
         ? await inWorker({ dbFile: store.file, bundleText: stored.text, window, meta: { id: meta.id, createdAt: meta.createdAt.toISOString() }, options })
-        : buildDriftReport(store.drift, parseBundle(stored.text, 'stored bundle'), window, meta, options);
-      store.drift.saveReport({
+        : await buildDriftReport(store.drift, parseBundle(stored.text, 'stored bundle'), window, meta, options);
+      await store.drift.saveReport({
         id: report.id,
         model_name: report.model.name,
         model_sha256: report.model.sha256,

@@ -18,7 +18,7 @@ export interface WorkerJob {
 const job = workerData as WorkerJob;
 const reader = openAuditReader(job.dbFile);
 try {
-  const report = buildDriftReport(reader.drift, parseBundle(job.bundleText, 'stored bundle'), job.window, { id: job.meta.id, createdAt: new Date(job.meta.createdAt) }, job.options);
+  const report = await buildDriftReport(reader.drift, parseBundle(job.bundleText, 'stored bundle'), job.window, { id: job.meta.id, createdAt: new Date(job.meta.createdAt) }, job.options);
   parentPort?.postMessage({ ok: true, report });
 } catch (err) {
   parentPort?.postMessage({ ok: false, message: (err as Error).message });

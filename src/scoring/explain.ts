@@ -37,13 +37,13 @@ export async function explainRequested(bundle: LoadedBundle, items: ReadonlyArra
 }
 
 export interface ExplanationSource {
-  getRequest(requestId: string): LoggedRequest | null;
+  getRequest(requestId: string): LoggedRequest | null | Promise<LoggedRequest | null>;
   /** The sealed bundle text stored with the model row (src/store/drift-store.ts). */
-  bundleText(name: string, sha256: string): { sha256: string; text: string } | null;
+  bundleText(name: string, sha256: string): { sha256: string; text: string } | null | Promise<{ sha256: string; text: string } | null>;
 }
 
 export interface ExplanationService {
-  recompute(requestId: string): RecomputedExplanation;
+  recompute(requestId: string): Promise<RecomputedExplanation>;
 }
 
 /**
@@ -53,12 +53,12 @@ export interface ExplanationService {
  */
 export function createExplanationService(registry: ModelRegistry, source: ExplanationSource): ExplanationService {
   const stored = new Map<string, LoadedBundle>();
-  const bundleOf = (row: LoggedRequest): LoadedBundle => {
+  const bundleOf = async (row: LoggedRequest): Promise<LoadedBundle> => {
     const loaded = registry.get(row.model.name);
     if (loaded && loaded.bundle.file.sha256 === row.model.sha256) return loaded.bundle;
     const hit = stored.get(row.model.sha256);
     if (hit) return hit;
-    const text = source.bundleText(row.model.name, row.model.sha256);
+    const text = await source.bundleText(row.model.name, row.model.sha256);
     if (!text) {
       throw new ProblemError('not-found', `request ${row.request_id} was answered by ${row.model.name} ${row.model.version} (sha256 ${row.model.sha256}), which is not loaded and whose bundle the audit log does not hold`);
     }
@@ -69,10 +69,10 @@ export function createExplanationService(registry: ModelRegistry, source: Explan
     return bundle;
   };
   return {
-    recompute(requestId) {
-      const row = source.getRequest(requestId);
+    async recompute(requestId) {
+      const row = await source.getRequest(requestId);
       if (!row) throw new ProblemError('not-found', `no scored request with id ${JSON.stringify(requestId)} is in the audit log`);
-      const bundle = bundleOf(row);
+      const bundle = await bundleOf(row);
       const x = bundle.file.features.map((f) => row.features[f.name] as number);
       return {
         request_id: row.request_id,

@@ -1,4 +1,5 @@
 import type { Database } from 'better-sqlite3';
+import type { Awaitable, Sync } from './awaitable.js';
 
 export interface WindowCounts {
   scored: number;
@@ -52,27 +53,27 @@ export interface AlertFilter {
 
 /** The alerts' reads and writes: window aggregates, the alert records and the durable outbox. */
 export interface AlertsStore {
-  windowCounts(model: string, from: number, to: number): WindowCounts;
-  labelCount(model: string, label: string, from: number, to: number): number;
-  rejectedCount(model: string, from: number, to: number): number;
+  windowCounts(model: string, from: number, to: number): Awaitable<WindowCounts>;
+  labelCount(model: string, label: string, from: number, to: number): Awaitable<number>;
+  rejectedCount(model: string, from: number, to: number): Awaitable<number>;
   /** The report JSON of the newest drift report of a model, if any. */
-  latestReport(model: string): string | null;
-  openAlerts(): AlertRow[];
+  latestReport(model: string): Awaitable<string | null>;
+  openAlerts(): Awaitable<AlertRow[]>;
   /** Records a raised alert and queues its deliveries, in one transaction. */
-  raise(alert: Omit<AlertRow, 'seq' | 'cleared_value' | 'cleared_at'>, deliveries: NewDelivery[], now: number): void;
+  raise(alert: Omit<AlertRow, 'seq' | 'cleared_value' | 'cleared_at'>, deliveries: NewDelivery[], now: number): Awaitable<void>;
   /** Records a clear and queues its deliveries, in one transaction. */
-  clear(id: string, value: number, at: number, deliveries: NewDelivery[]): void;
-  listAlerts(filter: AlertFilter, limit: number, beforeSeq?: number): AlertRow[];
+  clear(id: string, value: number, at: number, deliveries: NewDelivery[]): Awaitable<void>;
+  listAlerts(filter: AlertFilter, limit: number, beforeSeq?: number): Awaitable<AlertRow[]>;
   /** Pending deliveries due now, each the oldest pending one of its webhook and ordering key; of one webhook when given. */
-  dueDeliveries(now: number, limit: number, webhook?: string): OutboxRow[];
-  markDelivered(seq: number, at: number): void;
-  markRetry(seq: number, attempts: number, next: number, error: string): void;
-  markFailed(seq: number, attempts: number, error: string): void;
-  pendingDeliveries(): number;
-  deliveries(): OutboxRow[];
+  dueDeliveries(now: number, limit: number, webhook?: string): Awaitable<OutboxRow[]>;
+  markDelivered(seq: number, at: number): Awaitable<void>;
+  markRetry(seq: number, attempts: number, next: number, error: string): Awaitable<void>;
+  markFailed(seq: number, attempts: number, error: string): Awaitable<void>;
+  pendingDeliveries(): Awaitable<number>;
+  deliveries(): Awaitable<OutboxRow[]>;
 }
 
-export function createAlertsStore(db: Database): AlertsStore {
+export function createAlertsStore(db: Database): Sync<AlertsStore> {
   const counts = db.prepare(
     `SELECT COUNT(*) AS scored, COALESCE(SUM(in_domain = 0), 0) AS ood, COALESCE(SUM(review), 0) AS review, COALESCE(SUM(margin), 0) AS margin
      FROM scored_requests WHERE model_name = ? AND received_at >= ? AND received_at < ?`,

@@ -26,17 +26,22 @@ export interface ChainAnchor {
   hash: string;
 }
 
-type StoredRow = ChainedRow & { chain_hash: Buffer | null };
+export type StoredRow = ChainedRow & { chain_hash: Buffer | null };
+
+/** The walk of a chain, row by row, whatever the rows are read from (SQLite, PostgreSQL). */
+export interface ChainWalk {
+  /** The next row in seq order; a verdict when the walk stops at it, else null. */
+  push(row: StoredRow): ChainVerdict | null;
+  /** After the last row. */
+  finish(): ChainVerdict;
+}
 
 /**
- * Recomputes the hash chain of scored_requests from the genesis, or from the newest retention
- * checkpoint, and names the first row that was changed, removed or inserted. Streams the rows.
- * Without an anchor, rows cut from the end, or a chain rewritten whole, cannot be told from a
- * shorter log: give the head recorded earlier as `anchor` to check for that too.
+ * The checks of verifyChain over rows given one at a time. `cp` is the newest retention
+ * checkpoint; `rowAt(seq)` looks one row up, to tell a row put in from one changed (null when
+ * it cannot say, which then reports the row as changed).
  */
-export function verifyChain(db: Database, anchor?: ChainAnchor): ChainVerdict {
-  const cp = db.prepare('SELECT seq, chain_hash FROM chain_checkpoints ORDER BY seq DESC LIMIT 1').get() as { seq: number; chain_hash: Buffer } | undefined;
-  const bySeq = db.prepare('SELECT * FROM scored_requests WHERE seq = ?');
+export function startChainWalk(cp: { seq: number; chain_hash: Buffer } | undefined, rowAt: (seq: number) => StoredRow | undefined, anchor?: ChainAnchor): ChainWalk {
   let prev = cp ? cp.chain_hash : GENESIS;
   let expect = cp ? cp.seq + 1 : 1;
   let rows = 0;
@@ -50,48 +55,70 @@ export function verifyChain(db: Database, anchor?: ChainAnchor): ChainVerdict {
     anchor: anchorState,
     problem,
   });
+  return {
+    push(row) {
+      if (row.seq < expect) {
+        return verdict({ kind: 'inserted', seq: row.seq, request_id: row.request_id, detail: `row ${row.seq} lies at or before the retention checkpoint at ${expect - 1}, where every row was removed` });
+      }
+      if (row.seq > expect) {
+        const gap = row.seq - 1 === expect ? `row ${expect} is missing` : `rows ${expect} to ${row.seq - 1} are missing`;
+        return verdict({ kind: 'removed', seq: expect, request_id: null, detail: `${gap}: the chain goes from ${expect - 1} to ${row.seq}` });
+      }
+      if (!row.chain_hash) return verdict({ kind: 'unsealed', seq: row.seq, request_id: row.request_id, detail: `row ${row.seq} has no chain hash` });
+      if (!chainHash(prev, row).equals(row.chain_hash)) {
+        // A row put in before others, which were renumbered to make room: the next row is then the
+        // one sealed at this seq, and chains from the previous hash once given its old number.
+        const next = rowAt(row.seq + 1);
+        if (next?.chain_hash && chainHash(prev, { ...next, seq: row.seq }).equals(next.chain_hash)) {
+          return verdict({ kind: 'inserted', seq: row.seq, request_id: row.request_id, detail: `row ${row.seq} (request ${row.request_id}) was put in: the rows from it on were renumbered to make room` });
+        }
+        return verdict({ kind: 'changed', seq: row.seq, request_id: row.request_id, detail: `row ${row.seq} (request ${row.request_id}) does not hash to its stored chain hash: it was changed` });
+      }
+      prev = row.chain_hash;
+      if (anchor && row.seq === anchor.seq) {
+        if (prev.toString('hex') !== anchor.hash.toLowerCase()) {
+          return verdict({ kind: 'anchor', seq: row.seq, request_id: row.request_id, detail: `row ${row.seq} has chain hash ${prev.toString('hex')}, not the ${anchor.hash} recorded: the log was rewritten up to here` });
+        }
+        anchorSeen = true;
+        anchorState = 'checked';
+      }
+      expect++;
+      rows++;
+      return null;
+    },
+    finish() {
+      if (anchor && !anchorSeen) {
+        if (anchor.seq >= expect) {
+          return verdict({ kind: 'removed', seq: expect, request_id: null, detail: `the log ends at row ${expect - 1}, but row ${anchor.seq} was recorded: rows from ${expect} on were removed` });
+        }
+        // The anchored row was pruned by retention: only a checkpoint at exactly that row can be compared.
+        if (cp && anchor.seq === cp.seq) {
+          if (cp.chain_hash.toString('hex') !== anchor.hash.toLowerCase()) {
+            return verdict({ kind: 'anchor', seq: anchor.seq, request_id: null, detail: `the checkpoint at row ${anchor.seq} has chain hash ${cp.chain_hash.toString('hex')}, not the ${anchor.hash} recorded` });
+          }
+          anchorState = 'checked';
+        } else anchorState = 'pruned';
+      }
+      return verdict(null);
+    },
+  };
+}
+
+/**
+ * Recomputes the hash chain of scored_requests from the genesis, or from the newest retention
+ * checkpoint, and names the first row that was changed, removed or inserted. Streams the rows.
+ * Without an anchor, rows cut from the end, or a chain rewritten whole, cannot be told from a
+ * shorter log: give the head recorded earlier as `anchor` to check for that too.
+ */
+export function verifyChain(db: Database, anchor?: ChainAnchor): ChainVerdict {
+  const cp = db.prepare('SELECT seq, chain_hash FROM chain_checkpoints ORDER BY seq DESC LIMIT 1').get() as { seq: number; chain_hash: Buffer } | undefined;
+  const bySeq = db.prepare('SELECT * FROM scored_requests WHERE seq = ?');
+  const walk = startChainWalk(cp, (seq) => bySeq.get(seq) as StoredRow | undefined, anchor);
   for (const row of db.prepare('SELECT * FROM scored_requests ORDER BY seq').iterate() as IterableIterator<StoredRow>) {
-    if (row.seq < expect) {
-      return verdict({ kind: 'inserted', seq: row.seq, request_id: row.request_id, detail: `row ${row.seq} lies at or before the retention checkpoint at ${expect - 1}, where every row was removed` });
-    }
-    if (row.seq > expect) {
-      const gap = row.seq - 1 === expect ? `row ${expect} is missing` : `rows ${expect} to ${row.seq - 1} are missing`;
-      return verdict({ kind: 'removed', seq: expect, request_id: null, detail: `${gap}: the chain goes from ${expect - 1} to ${row.seq}` });
-    }
-    if (!row.chain_hash) return verdict({ kind: 'unsealed', seq: row.seq, request_id: row.request_id, detail: `row ${row.seq} has no chain hash` });
-    if (!chainHash(prev, row).equals(row.chain_hash)) {
-      // A row put in before others, which were renumbered to make room: the next row is then the
-      // one sealed at this seq, and chains from the previous hash once given its old number.
-      const next = bySeq.get(row.seq + 1) as StoredRow | undefined;
-      if (next?.chain_hash && chainHash(prev, { ...next, seq: row.seq }).equals(next.chain_hash)) {
-        return verdict({ kind: 'inserted', seq: row.seq, request_id: row.request_id, detail: `row ${row.seq} (request ${row.request_id}) was put in: the rows from it on were renumbered to make room` });
-      }
-      return verdict({ kind: 'changed', seq: row.seq, request_id: row.request_id, detail: `row ${row.seq} (request ${row.request_id}) does not hash to its stored chain hash: it was changed` });
-    }
-    prev = row.chain_hash;
-    if (anchor && row.seq === anchor.seq) {
-      if (prev.toString('hex') !== anchor.hash.toLowerCase()) {
-        return verdict({ kind: 'anchor', seq: row.seq, request_id: row.request_id, detail: `row ${row.seq} has chain hash ${prev.toString('hex')}, not the ${anchor.hash} recorded: the log was rewritten up to here` });
-      }
-      anchorSeen = true;
-      anchorState = 'checked';
-    }
-    expect++;
-    rows++;
+    const stop = walk.push(row);
+    if (stop) return stop;
   }
-  if (anchor && !anchorSeen) {
-    if (anchor.seq >= expect) {
-      return verdict({ kind: 'removed', seq: expect, request_id: null, detail: `the log ends at row ${expect - 1}, but row ${anchor.seq} was recorded: rows from ${expect} on were removed` });
-    }
-    // The anchored row was pruned by retention: only a checkpoint at exactly that row can be compared.
-    if (cp && anchor.seq === cp.seq) {
-      if (cp.chain_hash.toString('hex') !== anchor.hash.toLowerCase()) {
-        return verdict({ kind: 'anchor', seq: anchor.seq, request_id: null, detail: `the checkpoint at row ${anchor.seq} has chain hash ${cp.chain_hash.toString('hex')}, not the ${anchor.hash} recorded` });
-      }
-      anchorState = 'checked';
-    } else anchorState = 'pruned';
-  }
-  return verdict(null);
+  return walk.finish();
 }
 
 /** Whether the log holds a recorded head, looked up without walking the chain. */

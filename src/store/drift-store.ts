@@ -1,3 +1,4 @@
+import type { Awaitable, Sync } from './awaitable.js';
 import type { Database, Statement } from 'better-sqlite3';
 
 /** One logged answer as the drift report reads it: only what it needs, the vector still packed. */
@@ -32,20 +33,24 @@ export interface ReportFilter {
 /** The reads and writes drift reports need: the stored bundle, a streaming row iterator, counts, reports. */
 export interface DriftStore {
   /** The sealed bundle text of a model: the given sha256, or the one of that name loaded last. */
-  bundleText(name: string, sha256?: string): { sha256: string; text: string } | null;
-  /** Streams the scored rows of one bundle in [from, to), oldest first, without loading them all. */
-  scoredRows(sha256: string, from: number, to: number): IterableIterator<ScoredRowView>;
+  bundleText(name: string, sha256?: string): Awaitable<{ sha256: string; text: string } | null>;
+  /**
+   * Streams the scored rows of one bundle in [from, to), oldest first, without loading them all:
+   * synchronously from SQLite (nothing else runs on its connection meanwhile), in pages from a
+   * server-side cursor on PostgreSQL.
+   */
+  scoredRows(sha256: string, from: number, to: number): Iterable<ScoredRowView> | AsyncIterable<ScoredRowView[]>;
   /** Scored rows of the model under other bundles in the window (reported, not analysed). */
-  countOtherVersions(name: string, sha256: string, from: number, to: number): number;
-  countRejected(name: string, from: number, to: number): number;
-  saveReport(r: Omit<StoredReport, 'report'> & { report: unknown }): void;
-  getReport(id: string): StoredReport | null;
-  listReports(filter: ReportFilter, limit: number, afterSeq?: number): Array<StoredReport & { seq: number }>;
+  countOtherVersions(name: string, sha256: string, from: number, to: number): Awaitable<number>;
+  countRejected(name: string, from: number, to: number): Awaitable<number>;
+  saveReport(r: Omit<StoredReport, 'report'> & { report: unknown }): Awaitable<void>;
+  getReport(id: string): Awaitable<StoredReport | null>;
+  listReports(filter: ReportFilter, limit: number, afterSeq?: number): Awaitable<Array<StoredReport & { seq: number }>>;
   /** Whether a report exists for exactly this model and window (the nightly job's catch-up). */
-  hasReport(name: string, from: number, to: number): boolean;
+  hasReport(name: string, from: number, to: number): Awaitable<boolean>;
 }
 
-export function createDriftStore(db: Database): DriftStore {
+export function createDriftStore(db: Database): Sync<DriftStore> & { scoredRows(sha256: string, from: number, to: number): IterableIterator<ScoredRowView> } {
   const bundleBySha = db.prepare('SELECT sha256, bundle FROM models WHERE sha256 = ? AND bundle IS NOT NULL');
   const bundleByName = db.prepare('SELECT sha256, bundle FROM models WHERE name = ? AND bundle IS NOT NULL ORDER BY last_loaded_at DESC, rowid DESC LIMIT 1');
   const rows: Statement = db.prepare(

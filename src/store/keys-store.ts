@@ -1,3 +1,4 @@
+import type { Awaitable, Sync } from './awaitable.js';
 import type { Database } from 'better-sqlite3';
 
 export type Role = 'scorer' | 'reader' | 'admin';
@@ -13,21 +14,21 @@ export interface KeyRecord {
 }
 
 export interface KeysStore {
-  create(k: { id: string; prefix: string; hash: string; role: Role; label: string; createdAt: number }): void;
-  list(): KeyRecord[];
+  create(k: { id: string; prefix: string; hash: string; role: Role; label: string; createdAt: number }): Awaitable<void>;
+  list(): Awaitable<KeyRecord[]>;
   /** Revokes a key; false when no key has that id (or it was revoked already). */
-  revoke(id: string, at: number): boolean;
+  revoke(id: string, at: number): Awaitable<boolean>;
   /** Live keys whose public prefix is this (at most a few); the caller compares hashes. */
-  findByPrefix(prefix: string): Array<KeyRecord & { hash: string }>;
+  findByPrefix(prefix: string): Awaitable<Array<KeyRecord & { hash: string }>>;
   /**
    * Whether any key was ever made, revoked or not: from then on every /v1 route needs one.
    * Revoking the last key locks the service rather than opening it.
    */
-  anyKey(): boolean;
-  touch(id: string, at: number): void;
+  anyKey(): Awaitable<boolean>;
+  touch(id: string, at: number): Awaitable<void>;
 }
 
-export function createKeysStore(db: Database): KeysStore {
+export function createKeysStore(db: Database): Sync<KeysStore> {
   const insert = db.prepare('INSERT INTO api_keys (id, prefix, hash, role, label, created_at) VALUES (?, ?, ?, ?, ?, ?)');
   const all = db.prepare('SELECT id, prefix, role, label, created_at, last_used_at, revoked_at FROM api_keys ORDER BY created_at, id');
   const revoke = db.prepare('UPDATE api_keys SET revoked_at = ? WHERE id = ? AND revoked_at IS NULL');

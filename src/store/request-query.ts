@@ -3,7 +3,7 @@ import type { DomainCheck, OutsideFeature } from '../contracts/score.js';
 import type { LoggedRequest, RequestPage } from '../contracts/logged-request.js';
 import { cursorCodec } from '../cursor.js';
 import { fromFloat64Blob } from './float64-blob.js';
-import { createModelCache } from './models-table.js';
+import { type ModelRecord, createModelCache } from './models-table.js';
 import type { ChainedRow } from './chain.js';
 
 export interface RequestFilter {
@@ -22,7 +22,8 @@ export interface RequestFilter {
 type Row = ChainedRow;
 
 // Opaque to clients; the "r1" tag lets the format change later.
-const codec = cursorCodec('r1');
+export const requestCursor = cursorCodec('r1');
+const codec = requestCursor;
 
 /** Pages through the audit log, newest first; the cursor continues where the last page ended. */
 export function createRequestQuery(db: Database): (filter: RequestFilter, limit: number, cursor?: string) => RequestPage {
@@ -69,7 +70,8 @@ export function createRequestQuery(db: Database): (filter: RequestFilter, limit:
   };
 }
 
-function toItem(r: Row, m: ReturnType<ReturnType<typeof createModelCache>>): LoggedRequest {
+/** A stored row as GET /v1/requests answers it, its vectors named by the model's record. */
+export function toItem(r: Row, m: ModelRecord | null): LoggedRequest {
   const features = fromFloat64Blob(r.features);
   const probabilities = fromFloat64Blob(r.probabilities);
   return {

@@ -1,3 +1,4 @@
+import type { Awaitable, Sync } from './awaitable.js';
 import type { Database } from 'better-sqlite3';
 
 export interface PruneStep {
@@ -13,10 +14,10 @@ export interface Retention {
    * transaction. Scored rows go only as a prefix in seq order, so that the rows kept still chain
    * from a checkpoint: a checkpoint row records the chain hash of the last row removed.
    */
-  pruneStep(cutoff: number, maxRows: number, now?: number): PruneStep;
+  pruneStep(cutoff: number, maxRows: number, now?: number): Awaitable<PruneStep>;
 }
 
-export function createRetention(db: Database): Retention {
+export function createRetention(db: Database): Sync<Retention> {
   // The first row to keep: the oldest that is not old enough. Everything before it may go.
   const firstKept = db.prepare('SELECT MIN(seq) AS seq FROM scored_requests WHERE received_at >= ?');
   const lastRemoved = db.prepare(

@@ -2,7 +2,7 @@ import { mkdirSync } from 'node:fs';
 import { dirname } from 'node:path';
 import type { Database } from 'better-sqlite3';
 import { type AlertsStore, createAlertsStore } from './alerts-store.js';
-import { type ChainAnchor, type ChainVerdict, checkAnchor, verifyChain } from './audit-verify.js';
+import { checkAnchor, verifyChain } from './audit-verify.js';
 import { DatabaseUnwritableError, type OpenOptions, isUnwritable, openDatabase } from './database.js';
 import { changedIdentity, recordIdentity } from './file-identity.js';
 import { headFilePath, readHeadFile, writeHeadFile } from './head-file.js';
@@ -11,46 +11,26 @@ import { type KeysStore, createKeysStore } from './keys-store.js';
 import { type Retention, createRetention } from './retention.js';
 import { createChainHeadReader } from './chain-head.js';
 import { sealPreChainRows } from './seal.js';
-import { type CheckpointerStats, startCheckpointer } from './checkpointer.js';
-import { type DriftStore, createDriftStore } from './drift-store.js';
-import { type ModelRecord, recordModel } from './models-table.js';
+import { startCheckpointer } from './checkpointer.js';
+import { createDriftStore } from './drift-store.js';
+import { recordModel } from './models-table.js';
 import { type RequestLog, type WriterOptions, createRequestLog } from './request-log.js';
-import type { LoggedRequest, RequestPage } from '../contracts/logged-request.js';
-import { type RequestFilter, createRequestLookup, createRequestQuery } from './request-query.js';
+import type { Store, Sync } from './contract.js';
+import { createRequestLookup, createRequestQuery } from './request-query.js';
 import { DEFAULT_WAL_MAX_BYTES, createWalGate } from './wal-bound.js';
 import { type WriteState, createWriteHealth } from './write-health.js';
 
-/** Everything the rest of the service may ask of the database; SQL stays behind this. */
-export interface Store {
-  readonly file: string;
-  readonly log: RequestLog;
-  /** Reads and writes of the drift reports. */
-  readonly drift: DriftStore;
-  /** Window aggregates, alert records and the webhook outbox. */
-  readonly alerts: AlertsStore;
-  /** API keys, stored as hashes. */
-  readonly keys: KeysStore;
-  /** Prunes old rows, keeping the hash chain verifiable. */
-  readonly retention: Retention;
-  /** Recomputes the audit log's hash chain (plumbline audit verify). */
-  verifyChain(anchor?: ChainAnchor): ChainVerdict;
-  recordModel(m: ModelRecord): void;
-  queryRequests(filter: RequestFilter, limit: number, cursor?: string): RequestPage;
-  /** One logged request by its request id, or null. */
-  getRequest(requestId: string): LoggedRequest | null;
-  /** Whether a write transaction can be opened now (readiness). */
-  /**
-   * Whether the audit log can be written now (readiness): the last commits succeeded, or a test
-   * write does (write-health.ts), and the write lock can be taken.
-   */
-  writeState(): WriteState;
+export type { Store } from './contract.js';
+
+/** The SQLite store: the contract of contract.ts, answered synchronously. */
+export interface SqliteStore extends Omit<Sync<Store>, 'drift' | 'alerts' | 'keys' | 'retention'> {
+  readonly kind: 'sqlite';
+  readonly drift: ReturnType<typeof createDriftStore>;
+  readonly alerts: Sync<AlertsStore>;
+  readonly keys: Sync<KeysStore>;
+  readonly retention: Sync<Retention>;
   /** writeState().writable. */
   isWritable(): boolean;
-  /** The background checkpointer's record, when there is one. */
-  checkpoints(): CheckpointerStats | null;
-  /** The file beside the database where the chain head is kept (the serving process only). */
-  readonly headFile: string | null;
-  close(): void;
 }
 
 export interface StoreOptions extends OpenOptions, WriterOptions {
@@ -68,7 +48,7 @@ export interface StoreOptions extends OpenOptions, WriterOptions {
   serve?: { version: string; onFenced?: (reason: string) => void };
 }
 
-export function openStore(file: string, options: StoreOptions): Store {
+export function openStore(file: string, options: StoreOptions): SqliteStore {
   const serving = options.serve !== undefined && file !== ':memory:';
   let lock: ServeLock | null = null;
   if (serving) {
@@ -174,7 +154,9 @@ export function openStore(file: string, options: StoreOptions): Store {
     }
   };
   return {
+    kind: 'sqlite',
     file,
+    coordination: { exclusively: async (_name, work) => (await work(), true) },
     log,
     drift,
     alerts,

@@ -113,7 +113,7 @@ describe('alerts on out-of-domain traffic', () => {
     for (let s = 1; s <= 5; s++) await server.app.alerting.deliverer.tick(T0 + 30 * MIN + s * 1000);
     expect(receiver.received).toHaveLength(0);
     // the raised event has been tried and tried again; the cleared one waits behind it, in order
-    const [first, second] = server.runtime.store.alerts.deliveries();
+    const [first, second] = (await server.runtime.store.alerts.deliveries());
     expect(first!.attempts).toBeGreaterThanOrEqual(3);
     expect(first!.last_error).toBe('answered 503');
     expect(second!.attempts).toBe(0);
@@ -122,7 +122,7 @@ describe('alerts on out-of-domain traffic', () => {
     await server.app.alerting.deliverer.tick(T0 + 2 * 60 * MIN);
     await server.app.alerting.deliverer.tick(T0 + 2 * 60 * MIN);
     expect(events().map((e) => e.event.type)).toEqual(['plumbline.alert.raised', 'plumbline.alert.cleared']);
-    const outbox = server.runtime.store.alerts.deliveries();
+    const outbox = (await server.runtime.store.alerts.deliveries());
     expect(outbox.map((d) => d.status)).toEqual(['delivered', 'delivered']);
     expect(events().map((e) => e.headers['webhook-id'])).toEqual(outbox.map((d) => d.event_id));
   });
@@ -134,7 +134,7 @@ describe('alerts on out-of-domain traffic', () => {
     await traffic(server, STUCK, 60, T0, T0 + 5 * MIN);
     await tick(server, T0 + 5 * MIN);
     await tick(server, T0 + 8 * MIN);
-    expect(server.runtime.store.alerts.deliveries().map((d) => d.status)).toEqual(['pending']);
+    expect((await server.runtime.store.alerts.deliveries()).map((d) => d.status)).toEqual(['pending']);
     await server.close();
 
     receiver.down = false;
@@ -144,7 +144,7 @@ describe('alerts on out-of-domain traffic', () => {
     await tick(server, T0 + 9 * MIN);
     await server.app.alerting.deliverer.tick(T0 + 60 * MIN);
     expect(events().map((e) => e.event.type)).toEqual(['plumbline.alert.raised']);
-    expect(server.runtime.store.alerts.deliveries().map((d) => d.status)).toEqual(['delivered']);
+    expect((await server.runtime.store.alerts.deliveries()).map((d) => d.status)).toEqual(['delivered']);
   });
 
   it('give up after give_up_after, mark the delivery failed, and keep going', async () => {
@@ -155,7 +155,7 @@ describe('alerts on out-of-domain traffic', () => {
     await tick(server, T0 + 8 * MIN);
     await server.app.alerting.deliverer.tick(T0 + 8 * MIN);
     await server.app.alerting.deliverer.tick(T0 + 8 * MIN + 2 * 60 * MIN); // past the hour
-    const [d] = server.runtime.store.alerts.deliveries();
+    const [d] = (await server.runtime.store.alerts.deliveries());
     expect(d).toMatchObject({ status: 'failed', last_error: 'answered 503' });
   });
 });

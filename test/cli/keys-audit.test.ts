@@ -22,9 +22,9 @@ const cli = (...args: string[]) => spawnSync(process.execPath, ['--import', 'tsx
 describe('plumbline keys', () => {
   const db = tmp.file('keys.db');
 
-  it('create prints the key once, as the last line of stdout, and stores only its hash', () => {
+  it('create prints the key once, as the last line of stdout, and stores only its hash', async () => {
     const t = io();
-    const { id, key } = createKeyAction({ db, role: 'scorer', label: 'line-3 app' }, t);
+    const { id, key } = await createKeyAction({ db, role: 'scorer', label: 'line-3 app' }, t);
     const lines = t.out.text().trimEnd().split('\n');
     expect(lines.at(-1)).toBe(key);
     // "plk_" and 32 random bytes in base64url: 43 characters
@@ -37,22 +37,22 @@ describe('plumbline keys', () => {
     expect(row).toMatchObject({ id, prefix: key.slice(0, 10), role: 'scorer', label: 'line-3 app', revoked_at: null });
   });
 
-  it('list shows id, role, label and times, never the key; revoke stops it', () => {
-    const admin = createKeyAction({ db, role: 'admin', label: 'ops' }, io());
+  it('list shows id, role, label and times, never the key; revoke stops it', async () => {
+    const admin = await createKeyAction({ db, role: 'admin', label: 'ops' }, io());
     const t = io();
-    const listed = listKeysAction({ db, json: false }, t);
+    const listed = await listKeysAction({ db, json: false }, t);
     expect(listed.map((k) => k.label)).toEqual(['line-3 app', 'ops']);
     expect(t.out.text().split('\n')[0]).toMatch(/^id +prefix +role +label +created +last used +revoked$/);
     expect(t.out.text()).not.toContain(admin.key);
-    revokeKeyAction({ db, id: admin.id }, io());
-    const after = listKeysAction({ db, json: true }, io());
+    await revokeKeyAction({ db, id: admin.id }, io());
+    const after = await listKeysAction({ db, json: true }, io());
     expect(after.find((k) => k.id === admin.id)?.revoked_at).not.toBeNull();
-    expect(() => revokeKeyAction({ db, id: admin.id }, io())).toThrow(/was revoked already/);
-    expect(() => revokeKeyAction({ db, id: 'nope' }, io())).toThrow(/no key has the id nope/);
+    await expect(revokeKeyAction({ db, id: admin.id }, io())).rejects.toThrow(/was revoked already/);
+    await expect(revokeKeyAction({ db, id: 'nope' }, io())).rejects.toThrow(/no key has the id nope/);
   });
 
-  it('refuses an empty label, an unknown role and a missing database, from the command line', () => {
-    expect(() => createKeyAction({ db, role: 'reader', label: '  ' }, io())).toThrow(/--label must be 1 to 128 characters/);
+  it('refuses an empty label, an unknown role and a missing database, from the command line', async () => {
+    await expect(createKeyAction({ db, role: 'reader', label: '  ' }, io())).rejects.toThrow(/--label must be 1 to 128 characters/);
     const bad = cli('keys', 'create', '--db', db, '--role', 'root', '--label', 'x');
     expect(bad.status).toBe(2);
     expect(bad.stderr).toMatch(/--role <role>.*expected one of scorer, reader, admin/);
@@ -71,16 +71,16 @@ describe('plumbline keys leaves the audit log alone', () => {
     for (let i = 0; i < 3; i++) store.log.appendRejected({ requestId: `r${i}`, receivedAt: 1_790_000_000_000, method: 'GET', route: '/v1/requests', modelName: null, status: 401, problemType: 'unauthorized', bodyBytes: null });
     store.log.flush();
     store.close();
-    const { id } = createKeyAction({ db, role: 'admin', label: 'ops' }, io());
-    listKeysAction({ db, json: false }, io());
+    const { id } = await createKeyAction({ db, role: 'admin', label: 'ops' }, io());
+    await listKeysAction({ db, json: false }, io());
     const raw = new BetterSqlite3(db);
     expect(raw.prepare('SELECT COUNT(*) AS n FROM rejected_requests').get()).toEqual({ n: 3 });
     raw.prepare('UPDATE scored_requests SET chain_hash = NULL').run();
     raw.close();
     // the service would not open this log any more, but a leaked key can still be revoked
     expect(() => openStore(db, { sync: 'normal', flushMs: 0, flushRows: 512, queueRows: 1000, rejectedRows: 1000 })).toThrow(/has no chain hash/);
-    revokeKeyAction({ db, id }, io());
-    expect(listKeysAction({ db, json: true }, io())[0]?.revoked_at).not.toBeNull();
+    await revokeKeyAction({ db, id }, io());
+    expect((await listKeysAction({ db, json: true }, io()))[0]?.revoked_at).not.toBeNull();
   });
 });
 

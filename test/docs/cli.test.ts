@@ -65,7 +65,7 @@ beforeAll(async () => {
   await replayDemoDay(demo.app.scoring, 'moulding-quality', DEMO_DIR, DAY_START);
   await demo.close();
   // The keys examples: an admin key first, then the doc's scorer key (its own example).
-  createKeyAction({ db: tmp.file('plumbline.db'), role: 'admin', label: 'ops' }, quiet());
+  await createKeyAction({ db: tmp.file('plumbline.db'), role: 'admin', label: 'ops' }, quiet());
 }, 120_000);
 afterAll(() => tmp.remove());
 
@@ -73,7 +73,7 @@ afterAll(() => tmp.remove());
 async function before(e: Example): Promise<void> {
   if (e.command.includes('keys revoke')) {
     // The reader key of the list below, made after the scorer key.
-    const reader = createKeyAction({ db: tmp.file('plumbline.db'), role: 'reader', label: 'quality engineer' }, quiet());
+    const reader = await createKeyAction({ db: tmp.file('plumbline.db'), role: 'reader', label: 'quality engineer' }, quiet());
     seen.set('01a2341d-2461-7000-90d9-2ac3d1d99d0a', reader.id);
   }
   if (e.command.includes('keys list')) {

@@ -31,11 +31,11 @@ export async function startDocServer(options: { config?: Record<string, unknown>
   const db = join(tmp.dir, 'docs.db');
   const env: Record<string, string> = {};
   if (options.keys) {
-    env.ADMIN_KEY = createKeyAction({ db, role: 'admin', label: 'ops' }, quiet()).key;
-    env.SCORER_KEY = createKeyAction({ db, role: 'scorer', label: 'line-3 app' }, quiet()).key;
-    env.READER_KEY = createKeyAction({ db, role: 'reader', label: 'quality engineer' }, quiet()).key;
-    const old = createKeyAction({ db, role: 'reader', label: 'old reader' }, quiet());
-    revokeKeyAction({ db, id: old.id }, quiet());
+    env.ADMIN_KEY = (await createKeyAction({ db, role: 'admin', label: 'ops' }, quiet())).key;
+    env.SCORER_KEY = (await createKeyAction({ db, role: 'scorer', label: 'line-3 app' }, quiet())).key;
+    env.READER_KEY = (await createKeyAction({ db, role: 'reader', label: 'quality engineer' }, quiet())).key;
+    const old = (await createKeyAction({ db, role: 'reader', label: 'old reader' }, quiet()));
+    await revokeKeyAction({ db, id: old.id }, quiet());
     env.OLD_READER_KEY = old.key;
   }
   let models = options.models ?? 'demo-data/models';

@@ -9,7 +9,7 @@ import { writeBundle } from '../../src/bundle/write.js';
 import { type Config, configSchema } from '../../src/config/config.js';
 import { buildApp } from '../../src/http/app.js';
 import { openRuntime } from '../../src/runtime.js';
-import type { Store } from '../../src/store/store.js';
+import type { SqliteStore } from '../../src/store/store.js';
 import { irisBundle } from './bundles.js';
 import { tempDir } from './datasets.js';
 
@@ -22,7 +22,7 @@ export function iris(): BundleFile {
 
 export interface TestService {
   app: FastifyInstance;
-  store: Store;
+  store: SqliteStore;
   registry: ModelRegistry;
   config: Config;
   modelsDir: string;
@@ -42,7 +42,9 @@ export async function startTestService(options: { bundles?: AnyBundleFile[]; con
   const dbFile = options.dbFile ?? join(tmp.dir, 'audit.db');
   const config = configSchema.parse({ models_dir: modelsDir, db: dbFile, ...options.config });
   const runtime = await openRuntime(config, options.logger ? { log: options.logger } : {});
-  const { store, registry } = runtime;
+  const { registry } = runtime;
+  // A file path: the SQLite store, whose parts answer synchronously.
+  const store = runtime.store as SqliteStore;
   const app = await buildApp(runtime, options.logger ? { logger: options.logger } : {});
   await app.ready();
   const db = new BetterSqlite3(dbFile, { readonly: true });

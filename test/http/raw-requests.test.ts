@@ -87,6 +87,6 @@ describe('requests that are not well-formed HTTP', () => {
     expect(res.status).toBe(200);
     const { request_id } = (await res.json()) as { request_id: string };
     expect(server.app.store.log.stats()).toMatchObject({ writer: 'thread', failedRows: 0 });
-    expect(server.app.store.queryRequests({}, 10).items.map((r) => r.request_id)).toContain(request_id);
+    expect((await server.app.store.queryRequests({}, 10)).items.map((r) => r.request_id)).toContain(request_id);
   });
 });

@@ -11,7 +11,7 @@ let report: DriftReport;
 const bundle = () => svc.registry.get('moulding-quality')!.bundle;
 beforeAll(async () => {
   svc = await demoDayService();
-  report = buildDriftReport(svc.store.drift, bundle(), { from: DAY_START, to: DAY_END }, { id: 'r1', createdAt: new Date('2026-12-01T02:00:00Z') });
+  report = await buildDriftReport(svc.store.drift, bundle(), { from: DAY_START, to: DAY_END }, { id: 'r1', createdAt: new Date('2026-12-01T02:00:00Z') });
 });
 afterAll(async () => {
   await svc.close();
@@ -66,8 +66,8 @@ describe('drift report over the invented demo day (normal morning, resin-lot cha
     expect(report.findings.findIndex((f) => f.startsWith('melt_temp_c has shifted'))).toBeLessThan(report.findings.findIndex((f) => f.startsWith('Predicted classes')));
   });
 
-  it('says so instead of giving p-values when the window holds too few rows', () => {
-    const small = buildDriftReport(svc.store.drift, bundle(), { from: DAY_START, to: DAY_START + 20 * 60_000 }, { id: 'r2', createdAt: new Date() });
+  it('says so instead of giving p-values when the window holds too few rows', async () => {
+    const small = await buildDriftReport(svc.store.drift, bundle(), { from: DAY_START, to: DAY_START + 20 * 60_000 }, { id: 'r2', createdAt: new Date() });
     expect(small.counts.scored).toBeLessThan(30);
     expect(small.verdict).toBe('insufficient data');
     expect(small.out_of_domain.p_value).toBeNull();
@@ -78,10 +78,10 @@ describe('drift report over the invented demo day (normal morning, resin-lot cha
     expect(small.findings[0]).toMatch(/^Only \d+ rows were scored in the window; at least 30 are needed/);
   });
 
-  it('keeps memory bounded: above the cap the KS sample is a seeded uniform reservoir, and the report says so', () => {
+  it('keeps memory bounded: above the cap the KS sample is a seeded uniform reservoir, and the report says so', async () => {
     const opts = { minRows: 30, sampleCap: 300, seed: 7 };
-    const a = buildDriftReport(svc.store.drift, bundle(), { from: DAY_START, to: DAY_END }, { id: 'r3', createdAt: new Date() }, opts);
-    const b = buildDriftReport(svc.store.drift, bundle(), { from: DAY_START, to: DAY_END }, { id: 'r3', createdAt: new Date(0) }, opts);
+    const a = await buildDriftReport(svc.store.drift, bundle(), { from: DAY_START, to: DAY_END }, { id: 'r3', createdAt: new Date() }, opts);
+    const b = await buildDriftReport(svc.store.drift, bundle(), { from: DAY_START, to: DAY_END }, { id: 'r3', createdAt: new Date(0) }, opts);
     expect(a.sample).toEqual({ rows: 300, cap: 300, reservoir: true, seed: 7 });
     expect(a.features.map((f) => f.ks.d)).toEqual(b.features.map((f) => f.ks.d));
     expect(a.findings.some((f) => f.includes('seeded uniform sample of 300 of the 1999 rows'))).toBe(true);

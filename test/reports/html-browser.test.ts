@@ -16,7 +16,7 @@ describe.skipIf(!existsSync(CHROMIUM))('the drift report page in a real browser 
   let file = '';
   beforeAll(async () => {
     const svc = await demoDayService();
-    const report = buildDriftReport(svc.store.drift, svc.registry.get('moulding-quality')!.bundle, { from: DAY_START, to: DAY_END }, { id: 'page-test', createdAt: new Date() });
+    const report = await buildDriftReport(svc.store.drift, svc.registry.get('moulding-quality')!.bundle, { from: DAY_START, to: DAY_END }, { id: 'page-test', createdAt: new Date() });
     await svc.close();
     file = tmp.file('report.html', renderReportHtml(report));
     browser = await chromium.launch({

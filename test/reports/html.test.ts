@@ -19,7 +19,7 @@ let report: DriftReport;
 beforeAll(async () => {
   svc = await demoDayService();
   const bundle = svc.registry.get('moulding-quality')!.bundle;
-  report = buildDriftReport(svc.store.drift, bundle, { from: DAY_START, to: DAY_END }, { id: 'r1', createdAt: new Date('2026-12-01T02:00:00Z') });
+  report = await buildDriftReport(svc.store.drift, bundle, { from: DAY_START, to: DAY_END }, { id: 'r1', createdAt: new Date('2026-12-01T02:00:00Z') });
 });
 afterAll(async () => {
   await svc.close();

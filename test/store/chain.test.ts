@@ -4,7 +4,7 @@ import { afterAll, afterEach, beforeEach, describe, expect, it } from 'vitest';
 import { pruneBefore } from '../../src/jobs/retention.js';
 import { GENESIS, rowBytes } from '../../src/store/chain.js';
 import type { ScoredRow } from '../../src/store/request-log.js';
-import { type Store, openStore } from '../../src/store/store.js';
+import { type SqliteStore as Store, openStore } from '../../src/store/store.js';
 import { tempDir } from '../helpers/datasets.js';
 import chainReference from '../fixtures/chain-reference.json' with { type: 'json' };
 

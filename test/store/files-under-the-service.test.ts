@@ -4,7 +4,7 @@ import { afterAll, describe, expect, it } from 'vitest';
 import { auditVerifyAction } from '../../src/cli/actions/audit.js';
 import { headFilePath, readHeadFile } from '../../src/store/head-file.js';
 import { LogWriteError, type ScoredRow } from '../../src/store/request-log.js';
-import { StoreIntegrityError, type Store, openStore } from '../../src/store/store.js';
+import { StoreIntegrityError, type SqliteStore as Store, openStore } from '../../src/store/store.js';
 import { tempDir } from '../helpers/datasets.js';
 import { sink } from '../helpers/sink.js';
 

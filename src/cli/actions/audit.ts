@@ -2,6 +2,7 @@ import { existsSync } from 'node:fs';
 import type { ChainAnchor, ChainVerdict } from '../../store/audit-verify.js';
 import { headFilePath, readHeadFile } from '../../store/head-file.js';
 import { openAuditReader } from '../../store/reader.js';
+import { verifyServerLog } from '../../store/postgres/open.js';
 import { type CliIo, UsageError } from '../io.js';
 
 /** seq:hash, as `audit verify` prints the head. */
@@ -57,6 +58,21 @@ export function auditVerifyAction(ctx: { db: string; head?: ChainAnchor; json: b
   } finally {
     reader.close();
   }
+  return printVerdict(v, ctx, use, io);
+}
+
+/**
+ * `plumbline audit verify --db postgres://...`: the one chain every replica writes, read from the
+ * server and checked as the SQLite one is. No head file: a server keeps no file beside it; give a
+ * head recorded earlier with --head to check that the end of the log is still there.
+ */
+export async function auditVerifyServerAction(ctx: { db: string; head?: ChainAnchor; json: boolean }, io: CliIo): Promise<AuditVerdict> {
+  const use: HeadFileUse = { path: '', state: 'ignored', seq: null, written_at: null };
+  const v: AuditVerdict = { ...(await verifyServerLog(ctx.db, ctx.head)), head_file: use };
+  return printVerdict(v, ctx, use, io);
+}
+
+function printVerdict(v: AuditVerdict, ctx: { head?: ChainAnchor; json: boolean }, use: HeadFileUse, io: CliIo): AuditVerdict {
   if (ctx.json) {
     io.stdout.write(`${JSON.stringify(v, null, 2)}\n`);
   } else if (v.intact) {
@@ -64,7 +80,7 @@ export function auditVerifyAction(ctx: { db: string; head?: ChainAnchor; json: b
     const through = v.anchor === 'checked' ? `, through the recorded head ${ctx.head?.seq}` : '';
     io.stdout.write(`intact: ${v.rows} row${v.rows === 1 ? ' chains' : 's chain'} from ${from} to row ${v.head.seq}${through}\n`);
     if (v.anchor === 'pruned') io.stdout.write(`the recorded head ${ctx.head?.seq} lies before the retention checkpoint at ${v.from.seq}: retention removed it, so it was not checked\n`);
-    io.stdout.write(`${describeHeadFile(use, v.anchor !== null)}\n`);
+    if (use.path !== '') io.stdout.write(`${describeHeadFile(use, v.anchor !== null)}\n`);
     io.stdout.write(`head ${v.head.seq}:${v.head.hash}\n`);
   } else {
     const p = v.problem!;

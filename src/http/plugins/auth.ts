@@ -51,23 +51,37 @@ function allowed(role: Role, access: Role): boolean {
 async function auth(app: FastifyInstance, options: AuthOptions): Promise<void> {
   const now = options.now ?? Date.now;
   let active = { value: false, at: Number.NEGATIVE_INFINITY };
-  const enforced = (): boolean => {
+  // The keys store answers at once on SQLite and with a promise on PostgreSQL: a promise is
+  // waited for only where one was given, so that SQLite's requests pay for none.
+  const enforced = (): boolean | Promise<boolean> => {
     if (options.mode === 'off') return false;
     const t = now();
-    if (t - active.at > ACTIVE_TTL_MS) active = { value: options.keys.anyKey(), at: t };
-    return active.value;
+    if (t - active.at <= ACTIVE_TTL_MS) return active.value;
+    const any = options.keys.anyKey();
+    if (!(any instanceof Promise)) {
+      active = { value: any, at: t };
+      return any;
+    }
+    return any.then((value) => {
+      active = { value, at: t };
+      return value;
+    });
   };
   const touched = new Map<string, number>();
 
-  const identify = (token: string): ApiKeyIdentity | null => {
+  const identify = (token: string): ApiKeyIdentity | null | Promise<ApiKeyIdentity | null> => {
     const hash = Buffer.from(hashKey(token), 'hex');
-    let found: ApiKeyIdentity | null = null;
-    // Every candidate is compared, in constant time, whatever the first comparison gave.
-    for (const k of options.keys.findByPrefix(keyPrefix(token))) {
-      const stored = Buffer.from(k.hash, 'hex');
-      if (stored.length === hash.length && timingSafeEqual(stored, hash)) found = { id: k.id, label: k.label, role: k.role };
-    }
-    return found;
+    const match = (candidates: Array<{ id: string; label: string; role: Role; hash: string }>): ApiKeyIdentity | null => {
+      let found: ApiKeyIdentity | null = null;
+      // Every candidate is compared, in constant time, whatever the first comparison gave.
+      for (const k of candidates) {
+        const stored = Buffer.from(k.hash, 'hex');
+        if (stored.length === hash.length && timingSafeEqual(stored, hash)) found = { id: k.id, label: k.label, role: k.role };
+      }
+      return found;
+    };
+    const candidates = options.keys.findByPrefix(keyPrefix(token));
+    return candidates instanceof Promise ? candidates.then(match) : match(candidates);
   };
 
   // The OpenAPI document says which routes need a key, and of which role.
@@ -81,11 +95,16 @@ async function auth(app: FastifyInstance, options: AuthOptions): Promise<void> {
   });
 
   app.decorateRequest('apiKey', null);
-  const check = (req: FastifyRequest): void => {
+  const check = (req: FastifyRequest): void | Promise<void> => {
     const path = req.url.split('?')[0] ?? '';
     // A route says what it needs; a path no route has is treated as needing a reader key.
     const access: Access = req.routeOptions.config.access ?? (path.startsWith('/v1/') ? 'reader' : 'public');
-    if (access === 'public' || !enforced()) return;
+    if (access === 'public') return;
+    const on = enforced();
+    if (on instanceof Promise) return on.then((yes) => (yes ? checkKey(req, access) : undefined));
+    if (on) return checkKey(req, access);
+  };
+  const checkKey = (req: FastifyRequest, access: Role): void | Promise<void> => {
     const header = req.headers.authorization;
     const token = bearerToken(header);
     if (token === null) {
@@ -96,7 +115,10 @@ async function auth(app: FastifyInstance, options: AuthOptions): Promise<void> {
         { 'www-authenticate': CHALLENGE },
       );
     }
-    const key = identify(token);
+    const found = identify(token);
+    return found instanceof Promise ? found.then((key) => admit(req, access, key)) : admit(req, access, found);
+  };
+  const admit = (req: FastifyRequest, access: Role, key: ApiKeyIdentity | null): void => {
     if (!key) {
       throw new ProblemError('unauthorized', 'the API key is not one this service knows, or it was revoked', [{ header: 'authorization', detail: 'holds no valid key' }], {
         'www-authenticate': `${CHALLENGE}, error="invalid_token"`,
@@ -113,22 +135,26 @@ async function auth(app: FastifyInstance, options: AuthOptions): Promise<void> {
       // Bookkeeping: a database that cannot be written now (full, read-only, locked by another
       // process) must not fail a read, nor turn a score into a 500; scoring answers for its own
       // rows (503 log-unavailable). Not retried before the next minute.
+      const warn = (err: unknown): void => req.log.warn({ key: key.label, err: (err as Error).message }, 'the last use of an API key could not be recorded');
       try {
-        options.keys.touch(key.id, t);
+        const done = options.keys.touch(key.id, t);
+        if (done instanceof Promise) done.catch(warn);
       } catch (err) {
-        req.log.warn({ key: key.label, err: (err as Error).message }, 'the last use of an API key could not be recorded');
+        warn(err);
       }
     }
   };
   // The callback form: nothing here waits, and an async hook costs a promise on every request.
   app.addHook('onRequest', (req, _reply, done) => {
+    let pending: void | Promise<void>;
     try {
-      check(req);
+      pending = check(req);
     } catch (err) {
       done(err as Error);
       return;
     }
-    done();
+    if (pending instanceof Promise) pending.then(() => done(), (err: Error) => done(err));
+    else done();
   });
 }
 

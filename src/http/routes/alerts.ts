@@ -51,7 +51,7 @@ const alerts: FastifyPluginAsyncZod = async (app) => {
       const q = req.query;
       const { errors, ...window } = queryWindow(q);
       if (errors.length > 0) throw new ProblemError('invalid-request', 'the window is empty', errors);
-      const rows = app.store.alerts.listAlerts(
+      const rows = await app.store.alerts.listAlerts(
         {
           ...(q.state ? { state: q.state } : {}),
           ...(q.model !== undefined ? { model: q.model } : {}),

@@ -29,7 +29,7 @@ const health: FastifyPluginAsyncZod = async (app) => {
     },
     async (_req, reply) => {
       const models = app.registry.list().length;
-      const { writable, reason } = app.store.writeState();
+      const { writable, reason } = await app.store.writeState();
       const ready = models > 0 && writable;
       return reply.code(ready ? 200 : 503).send({ status: ready ? 'ready' : 'not ready', models, database: writable ? 'writable' : 'not writable', ...(reason !== null ? { reason } : {}) });
     },

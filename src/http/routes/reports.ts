@@ -45,8 +45,8 @@ const codec = cursorCodec('d1');
 
 const reports: FastifyPluginAsyncZod = async (app) => {
   const { store } = app;
-  const load = (id: string): DriftReport => {
-    const stored = store.drift.getReport(id);
+  const load = async (id: string): Promise<DriftReport> => {
+    const stored = await store.drift.getReport(id);
     if (!stored) throw new ProblemError('unknown-report', `no drift report has the id ${JSON.stringify(id)}`);
     return JSON.parse(stored.report) as DriftReport;
   };
@@ -66,7 +66,7 @@ const reports: FastifyPluginAsyncZod = async (app) => {
       const q = req.query;
       const { errors, ...window } = queryWindow(q);
       if (errors.length > 0) throw new ProblemError('invalid-request', 'the window is empty', errors);
-      const rows = store.drift.listReports(
+      const rows = await store.drift.listReports(
         { ...(q.model !== undefined ? { model: q.model } : {}), ...window },
         q.limit + 1,
         q.cursor !== undefined ? withCursor(() => codec.decode(q.cursor as string)) : undefined,
@@ -107,7 +107,7 @@ const reports: FastifyPluginAsyncZod = async (app) => {
         response: { 200: { description: 'the page', content: { 'text/html': { schema: z.string() } } }, 404: problemResponse('no report has that id'), ...commonErrors },
       },
     },
-    async (req, reply) => reply.type('text/html; charset=utf-8').send(renderReportHtml(load(req.params.id))),
+    async (req, reply) => reply.type('text/html; charset=utf-8').send(renderReportHtml(await load(req.params.id))),
   );
 
   app.post(

@@ -1,0 +1,63 @@
+import type { LoggedRequest, RequestPage } from '../../contracts/logged-request.js';
+import type { ChainedRow } from '../chain.js';
+import type { ModelRecord } from '../models-table.js';
+import { type RequestFilter, requestCursor, toItem } from '../request-query.js';
+import type { Pool } from './pool.js';
+
+/** Records a bundle when loaded, as models-table.ts does on SQLite. */
+export async function recordServerModel(pool: Pool, m: ModelRecord, now = Date.now()): Promise<void> {
+  await pool.query(
+    `INSERT INTO models (sha256, name, version, features, classes, first_loaded_at, last_loaded_at, bundle)
+     VALUES ($1, $2, $3, $4, $5, $6, $6, $7)
+     ON CONFLICT (sha256) DO UPDATE SET bundle = COALESCE(models.bundle, excluded.bundle), last_loaded_at = excluded.last_loaded_at`,
+    [m.sha256, m.name, m.version, JSON.stringify(m.features.map((f) => ({ name: f.name, unit: f.unit }))), JSON.stringify(m.classes), now, m.bundle ?? null],
+  );
+}
+
+/** Looks models up by hash, caching them: a sealed bundle never changes. */
+function serverModelCache(pool: Pool): (sha256: string) => Promise<ModelRecord | null> {
+  const cache = new Map<string, ModelRecord>();
+  return async (sha256) => {
+    const hit = cache.get(sha256);
+    if (hit) return hit;
+    const row = (await pool.query<{ sha256: string; name: string; version: string; features: string; classes: string }>('SELECT sha256, name, version, features, classes FROM models WHERE sha256 = $1', [sha256])).rows[0];
+    if (!row) return null;
+    const record: ModelRecord = { ...row, features: JSON.parse(row.features) as ModelRecord['features'], classes: JSON.parse(row.classes) as string[] };
+    cache.set(sha256, record);
+    return record;
+  };
+}
+
+/** GET /v1/requests on the server: the same pages, filters and cursors as request-query.ts. */
+export function createServerRequestQuery(pool: Pool): {
+  query(filter: RequestFilter, limit: number, cursor?: string): Promise<RequestPage>;
+  lookup(requestId: string): Promise<LoggedRequest | null>;
+} {
+  const model = serverModelCache(pool);
+  return {
+    async query(filter, limit, cursor) {
+      const where: string[] = [];
+      const args: unknown[] = [];
+      const arg = (v: unknown): string => `$${args.push(v)}`;
+      if (cursor !== undefined) where.push(`seq < ${arg(requestCursor.decode(cursor))}`);
+      if (filter.model !== undefined) where.push(`model_name = ${arg(filter.model)}`);
+      if (filter.from !== undefined) where.push(`received_at >= ${arg(filter.from)}`);
+      if (filter.to !== undefined) where.push(`received_at < ${arg(filter.to)}`);
+      if (filter.inDomain !== undefined) where.push(`in_domain = ${arg(filter.inDomain ? 1 : 0)}`);
+      if (filter.label !== undefined) where.push(`label = ${arg(filter.label)}`);
+      // Tags are stored as the JSON text written; jsonb only to look inside it.
+      for (const [k, v] of filter.tags ?? []) where.push(`(tags::jsonb -> ${arg(k)}) = to_jsonb(${arg(v)}::text)`);
+      const sql = `SELECT * FROM scored_requests ${where.length ? `WHERE ${where.join(' AND ')}` : ''} ORDER BY seq DESC LIMIT ${arg(limit + 1)}`;
+      const rows = (await pool.query(sql, args)).rows as ChainedRow[];
+      const more = rows.length > limit;
+      const page = more ? rows.slice(0, limit) : rows;
+      const items: LoggedRequest[] = [];
+      for (const r of page) items.push(toItem(r, await model(r.model_sha256)));
+      return { items, next_cursor: more ? requestCursor.encode((page[page.length - 1] as ChainedRow).seq) : null };
+    },
+    async lookup(requestId) {
+      const r = (await pool.query('SELECT * FROM scored_requests WHERE request_id = $1', [requestId])).rows[0] as ChainedRow | undefined;
+      return r ? toItem(r, await model(r.model_sha256)) : null;
+    },
+  };
+}
