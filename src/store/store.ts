@@ -8,6 +8,7 @@ import { changedIdentity, recordIdentity } from './file-identity.js';
 import { headFilePath, readHeadFile, writeHeadFile } from './head-file.js';
 import { type ServeLock, acquireServeLock } from './serve-lock.js';
 import { type KeysStore, createKeysStore } from './keys-store.js';
+import { type OutcomesStore, createOutcomesStore } from './outcomes-store.js';
 import { type Retention, createRetention } from './retention.js';
 import { createChainHeadReader } from './chain-head.js';
 import { sealPreChainRows } from './seal.js';
@@ -30,6 +31,8 @@ export interface Store {
   readonly alerts: AlertsStore;
   /** API keys, stored as hashes. */
   readonly keys: KeysStore;
+  /** What the parts turned out to be: recorded in their own chain, read by reports, export and compare. */
+  readonly outcomes: OutcomesStore;
   /** Prunes old rows, keeping the hash chain verifiable. */
   readonly retention: Retention;
   /** Recomputes the audit log's hash chain (plumbline audit verify). */
@@ -157,6 +160,7 @@ export function openStore(file: string, options: StoreOptions): Store {
   const drift = createDriftStore(db);
   const alerts = createAlertsStore(db);
   const keys = createKeysStore(db);
+  const outcomes = createOutcomesStore(db);
   const lockProbe = db.prepare('SELECT 1');
   const writeState = (): WriteState => {
     if (closed) return { writable: false, reason: 'the store is closed' };
@@ -179,6 +183,7 @@ export function openStore(file: string, options: StoreOptions): Store {
     drift,
     alerts,
     keys,
+    outcomes,
     headFile,
     retention: createRetention(db),
     verifyChain: (anchor) => verifyChain(db, anchor),

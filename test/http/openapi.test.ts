@@ -33,6 +33,7 @@ describe('openapi/openapi.json', () => {
       '/v1/models/{name}',
       '/v1/models/{name}/score',
       '/v1/models/{name}/score-batch',
+      '/v1/outcomes',
       '/v1/requests',
       '/v1/requests/{id}/explanation',
     ]);
