@@ -81,6 +81,8 @@ export interface OutcomesStore {
   labelledRows(sha256: string, from: number, to: number): IterableIterator<LabelledRowView>;
   /** Answers of a model (every bundle of it) in [from, to), oldest first; only labelled ones with `labelledOnly`. */
   loggedVectors(model: string, from: number, to: number, labelledOnly: boolean): IterableIterator<LoggedVectorView>;
+  /** The bundle of a model loaded last (as the drift reports take it): name, version, sha256, classes. */
+  latestModel(name: string): { name: string; version: string; sha256: string; classes: string[] } | null;
   /** Recomputes the outcome chain from the genesis. */
   verifyChain(): OutcomeChainVerdict;
 }
@@ -100,6 +102,7 @@ export function createOutcomesStore(db: Database): OutcomesStore {
   const newest = db.prepare('SELECT seq, label FROM outcomes WHERE request_id = ? ORDER BY seq DESC LIMIT 1');
   const head = db.prepare('SELECT seq, chain_hash FROM outcomes ORDER BY seq DESC LIMIT 1');
   const insert = db.prepare('INSERT INTO outcomes (seq, request_id, label, observed_at, source, recorded_at, key_label, replaces, chain_hash) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?)');
+  const latest = db.prepare('SELECT sha256, name, version, classes FROM models WHERE name = ? ORDER BY last_loaded_at DESC, rowid DESC LIMIT 1');
   const countScored = db.prepare('SELECT COUNT(*) AS n FROM scored_requests WHERE model_sha256 = ? AND received_at >= ? AND received_at < ?');
   const labelled = db.prepare(
     `SELECT * FROM (SELECT s.received_at, s.seq, s.label, s.probabilities, s.margin, s.in_domain, s.review, (${NEWEST}) AS actual
@@ -195,6 +198,10 @@ export function createOutcomesStore(db: Database): OutcomesStore {
     countScored: (sha256, from, to) => (countScored.get(sha256, from, to) as { n: number }).n,
     labelledRows: (sha256, from, to) => labelled.iterate(sha256, from, to) as IterableIterator<LabelledRowView>,
     loggedVectors: (model, from, to, labelledOnly) => (labelledOnly ? labelledVectors : allVectors).iterate(model, from, to) as IterableIterator<LoggedVectorView>,
+    latestModel(name) {
+      const m = latest.get(name) as { sha256: string; name: string; version: string; classes: string } | undefined;
+      return m ? { ...m, classes: JSON.parse(m.classes) as string[] } : null;
+    },
     verifyChain: () => verifyOutcomeChain(db),
   };
 }
