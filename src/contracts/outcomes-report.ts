@@ -27,7 +27,7 @@ export const outcomesReportSchema = z
       bins: z.array(z.object({ low: z.number(), high: z.number(), rows: z.number().int(), confidence: nullableNumber.describe('mean top probability'), accuracy: nullableNumber })),
     }),
     by_domain: z.object({ in_domain: shareSchema, out_of_domain: shareSchema, p_value: nullableNumber.describe("Fisher's exact test, two-sided, of right/wrong against in/out of domain") }),
-    by_margin: z.array(shareSchema.extend({ low: z.number(), high: z.number() })).describe('margin bands [0, 0.2), [0.2, 0.5), [0.5, 0.8), [0.8, 1]'),
+    by_margin: z.array(z.object({ low: z.number(), high: z.number() }).extend(shareSchema.shape)).describe('margin bands [0, 0.2), [0.2, 0.5), [0.5, 0.8), [0.8, 1]'),
     review: shareSchema.describe('answers marked for review'),
     not_review: shareSchema,
     findings: z.array(z.string()).describe('plain sentences, worst first'),

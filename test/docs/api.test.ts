@@ -3,6 +3,7 @@ import BetterSqlite3 from 'better-sqlite3';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { driftAction } from '../../src/cli/actions/drift.js';
+import { recordDemoOutcomes } from '../../src/demo/outcomes.js';
 import { replayDemoDay } from '../../src/demo/replay.js';
 import { DEFAULT_VARYING, type Example, carry, dumpOutput, examplesOf, fencedBlocks, quoteProblems, readDoc, runCommand } from '../helpers/doc-examples.js';
 import { type DocServer, startDocServer } from '../helpers/doc-servers.js';
@@ -33,7 +34,7 @@ function serverFor(e: Example): ServerName | null {
   if (e.output.includes('429 Too Many Requests')) return 'limited';
   if (e.output.includes('"status":"not ready"')) return 'empty';
   if (e.output.includes('log-backpressure')) return 'backpressure';
-  if (e.section.includes('drift-reports')) return 'drift';
+  if (e.section.includes('drift-reports') || e.section.includes('outcomes')) return 'drift';
   if (e.section === 'Authentication' || e.command.includes('_KEY')) return 'keyed';
   return 'open';
 }
@@ -73,7 +74,9 @@ beforeAll(async () => {
   // command line (the day, the day again with --min-rows 5000, and 05:00 to 07:00).
   servers.drift = await startDocServer();
   const app = servers.drift.server.app;
-  await replayDemoDay(app.scoring, 'moulding-quality', DEMO_DIR, DAY_START);
+  const replayed = await replayDemoDay(app.scoring, 'moulding-quality', DEMO_DIR, DAY_START);
+  // and the inspection results of every third shot, as `plumbline demo` records them
+  recordDemoOutcomes(app.store.outcomes, 'moulding-quality', replayed.shots);
   const db = app.config.db;
   const io = { stdout: sink(), stderr: sink(), interactive: false };
   const day = await driftAction({ db, model: 'moulding-quality', from: new Date(DAY_START), to: new Date(DAY_START + DAY), minRows: 30, sampleCap: 10_000 }, io);
