@@ -1,6 +1,6 @@
 import type { Database, Statement } from 'better-sqlite3';
 import { OUTCOME_GENESIS, type OutcomeRow, outcomeHash } from './outcome-chain.js';
-import { createModelCache } from './models-table.js';
+import { type ModelRecord, createModelCache } from './models-table.js';
 
 /** One item of POST /v1/outcomes, checked for shape already. */
 export interface OutcomeInput {
@@ -81,8 +81,10 @@ export interface OutcomesStore {
   labelledRows(sha256: string, from: number, to: number): IterableIterator<LabelledRowView>;
   /** Answers of a model (every bundle of it) in [from, to), oldest first; only labelled ones with `labelledOnly`. */
   loggedVectors(model: string, from: number, to: number, labelledOnly: boolean): IterableIterator<LoggedVectorView>;
-  /** The bundle of a model loaded last (as the drift reports take it): name, version, sha256, classes. */
-  latestModel(name: string): { name: string; version: string; sha256: string; classes: string[] } | null;
+  /** The bundle of a model loaded last (as the drift reports take it). */
+  latestModel(name: string): ModelRecord | null;
+  /** A bundle the log holds, by its sha256: its features in vector order and classes in probability order. */
+  describeModel(sha256: string): ModelRecord | null;
   /** Recomputes the outcome chain from the genesis. */
   verifyChain(): OutcomeChainVerdict;
 }
@@ -102,7 +104,7 @@ export function createOutcomesStore(db: Database): OutcomesStore {
   const newest = db.prepare('SELECT seq, label FROM outcomes WHERE request_id = ? ORDER BY seq DESC LIMIT 1');
   const head = db.prepare('SELECT seq, chain_hash FROM outcomes ORDER BY seq DESC LIMIT 1');
   const insert = db.prepare('INSERT INTO outcomes (seq, request_id, label, observed_at, source, recorded_at, key_label, replaces, chain_hash) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?)');
-  const latest = db.prepare('SELECT sha256, name, version, classes FROM models WHERE name = ? ORDER BY last_loaded_at DESC, rowid DESC LIMIT 1');
+  const latest = db.prepare('SELECT sha256 FROM models WHERE name = ? ORDER BY last_loaded_at DESC, rowid DESC LIMIT 1');
   const countScored = db.prepare('SELECT COUNT(*) AS n FROM scored_requests WHERE model_sha256 = ? AND received_at >= ? AND received_at < ?');
   const labelled = db.prepare(
     `SELECT * FROM (SELECT s.received_at, s.seq, s.label, s.probabilities, s.margin, s.in_domain, s.review, (${NEWEST}) AS actual
@@ -199,9 +201,10 @@ export function createOutcomesStore(db: Database): OutcomesStore {
     labelledRows: (sha256, from, to) => labelled.iterate(sha256, from, to) as IterableIterator<LabelledRowView>,
     loggedVectors: (model, from, to, labelledOnly) => (labelledOnly ? labelledVectors : allVectors).iterate(model, from, to) as IterableIterator<LoggedVectorView>,
     latestModel(name) {
-      const m = latest.get(name) as { sha256: string; name: string; version: string; classes: string } | undefined;
-      return m ? { ...m, classes: JSON.parse(m.classes) as string[] } : null;
+      const m = latest.get(name) as { sha256: string } | undefined;
+      return m ? models(m.sha256) : null;
     },
+    describeModel: (sha256) => models(sha256),
     verifyChain: () => verifyOutcomeChain(db),
   };
 }
