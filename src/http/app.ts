@@ -21,6 +21,7 @@ import explanations from './routes/explanations.js';
 import requests from './routes/requests.js';
 import outcomes from './routes/outcomes.js';
 import outcomesReport from './routes/outcomes-report.js';
+import compare from './routes/compare.js';
 import scoring from './routes/scoring.js';
 
 export interface AppOptions {
@@ -182,6 +183,7 @@ export async function buildApp(runtime: Runtime, options: AppOptions = {}): Prom
       await v1.register(requests);
       await v1.register(outcomes);
       await v1.register(outcomesReport);
+      await v1.register(compare);
       await v1.register(explanations);
       await v1.register(reports);
       await v1.register(alerts);

@@ -39,6 +39,7 @@ describe('API keys and roles', () => {
     { method: 'GET', url: '/v1/requests', ok: 200, needs: 'reader' },
     { method: 'GET', url: '/v1/models/iris/outcomes-report', ok: 200, needs: 'reader' },
     { method: 'GET', url: '/v1/models/iris/outcomes-report.html', ok: 200, needs: 'reader' },
+    { method: 'POST', url: '/v1/models/iris/compare', payload: { format: 'plumbline-bundle/2' }, ok: 422, needs: 'admin' },
     { method: 'POST', url: '/v1/outcomes', payload: { items: [{ request_id: 'nope', label: 'setosa' }] }, ok: 200, needs: 'scorer' },
     { method: 'GET', url: '/v1/requests/nope/explanation', ok: 404, needs: 'reader' },
     { method: 'GET', url: '/v1/drift-reports', ok: 200, needs: 'reader' },

@@ -5,6 +5,9 @@ import type { OutcomesReport } from '../../src/contracts/outcomes-report.js';
 import { recordDemoOutcomes } from '../../src/demo/outcomes.js';
 import { replayDemoDay } from '../../src/demo/replay.js';
 import { renderOutcomesHtml } from '../../src/reports/outcomes-html.js';
+import { readFileSync } from 'node:fs';
+import { sealBundle } from '../../src/bundle/verify.js';
+import { compareReportSchema } from '../../src/contracts/compare-report.js';
 import { DAY_END, DAY_START, DEMO_DIR, demoBundle } from '../helpers/demo.js';
 import { type TestService, startTestService } from '../helpers/service.js';
 
@@ -76,5 +79,34 @@ describe('GET /v1/models/{name}/outcomes-report on the demo day', () => {
     const r = res.json() as OutcomesReport;
     expect([r.scored, r.labelled, r.accuracy.value, r.log_loss]).toEqual([0, 0, null, null]);
     expect(r.findings).toHaveLength(1);
+  });
+});
+
+describe('POST /v1/models/{name}/compare on the demo day', () => {
+  const text = () => readFileSync(`${DEMO_DIR}models/moulding-quality.bundle.json`, 'utf8');
+  const post = (body: string, query = WINDOW) => svc.app.inject({ method: 'POST', url: `/v1/models/moulding-quality/compare?${query}`, headers: { 'content-type': 'application/json' }, payload: body });
+
+  it('rescores the day with the bundle in the body: the logged bundle agrees with itself on every answer', async () => {
+    const res = await post(text());
+    expect(res.statusCode).toBe(200);
+    const r = res.json();
+    expect(compareReportSchema.safeParse(r).error).toBeUndefined();
+    expect([r.rows, r.agreement.rows, r.labelled, r.mcnemar.p_value]).toEqual([1999, 1999, 666, 1]);
+    expect(r.in_domain.candidate).toBe(r.in_domain.current);
+    expect(r.accuracy.candidate).toEqual(r.accuracy.current);
+    expect(r.accuracy.current.value).toBeCloseTo(report.accuracy.value as number, 14);
+  });
+
+  it('refuses a body that is not a bundle, and a bundle that takes other features, with 422 problems', async () => {
+    const notBundle = await post(JSON.stringify({ format: 'plumbline-bundle/2', name: 'x' }));
+    expect([notBundle.statusCode, notBundle.json().type]).toEqual([422, 'urn:plumbline:problem:invalid-bundle']);
+    const { sha256: _, ...body } = JSON.parse(text());
+    body.features[9].name = 'part_weight_g';
+    body.reference.features[9].name = 'part_weight_g';
+    const other = await post(JSON.stringify(sealBundle(body)));
+    expect([other.statusCode, other.json().type]).toEqual([422, 'urn:plumbline:problem:incompatible-bundle']);
+    expect(other.json().detail).toContain('part_weight_g');
+    const empty = await post(text(), 'from=2026-12-01T00:00:00Z&to=2026-11-30T00:00:00Z');
+    expect(empty.statusCode).toBe(400);
   });
 });
