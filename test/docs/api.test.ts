@@ -34,7 +34,7 @@ function serverFor(e: Example): ServerName | null {
   if (e.output.includes('429 Too Many Requests')) return 'limited';
   if (e.output.includes('"status":"not ready"')) return 'empty';
   if (e.output.includes('log-backpressure')) return 'backpressure';
-  if (e.section.includes('drift-reports') || e.section.includes('outcomes')) return 'drift';
+  if (e.section.includes('drift-reports') || e.section.includes('outcomes') || e.section.includes('compare')) return 'drift';
   if (e.section === 'Authentication' || e.command.includes('_KEY')) return 'keyed';
   return 'open';
 }

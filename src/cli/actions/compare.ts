@@ -22,9 +22,9 @@ export interface CompareContext {
 const pct = (v: number | null): string => (v === null ? '–' : `${(v * 100).toFixed(1)}%`);
 
 /** The comparison as a person reads it at the terminal. */
-export function formatCompareSummary(r: CompareReport): string {
+export function formatCompareSummary(r: CompareReport, candidateFile: string): string {
   return [
-    `compare: ${r.model} as logged (${r.current.map((m) => `version ${m.version}`).join(', ')}) against ${r.candidate.name} version ${r.candidate.version} (${r.candidate.sha256.slice(0, 12)}), answers from ${r.window.from} to ${r.window.to}`,
+    `compare: ${r.model} as logged (${r.current.map((m) => `version ${m.version}`).join(', ')}) against ${r.candidate.name} version ${r.candidate.version} (${candidateFile}), answers from ${r.window.from} to ${r.window.to}`,
     `rescored ${r.rows} (left out ${r.skipped}); same label ${pct(r.agreement.rate)}; in domain: logged ${pct(r.in_domain.current)}, candidate ${pct(r.in_domain.candidate)}`,
     `with an outcome ${r.labelled}: right, logged ${pct(r.accuracy.current.value)}, candidate ${pct(r.accuracy.candidate.value)}; logged alone right ${r.mcnemar.current_only}, candidate alone right ${r.mcnemar.candidate_only}`,
     ...r.findings.map((f, i) => `${i + 1}. ${f}`),
@@ -60,6 +60,6 @@ export async function compareAction(ctx: CompareContext, io: CliIo): Promise<Com
       throw fileProblem(flag, path, err);
     }
   }
-  io.stdout.write(`${formatCompareSummary(report)}\n`);
+  io.stdout.write(`${formatCompareSummary(report, ctx.candidate)}\n`);
   return report;
 }
