@@ -75,6 +75,8 @@ export interface OutcomesStore {
   record(items: OutcomeInput[], keyLabel: string | null, now?: number): OutcomeVerdict[];
   /** The newest outcome of each of these answers that has one. */
   current(requestIds: readonly string[]): Map<string, CurrentOutcome>;
+  /** Answers of a model (every bundle of it) received in [from, to): all, those with an outcome, those whose label was it. */
+  windowOutcomes(model: string, from: number, to: number): { scored: number; labelled: number; right: number };
   /** Answers of one bundle in [from, to). */
   countScored(sha256: string, from: number, to: number): number;
   /** Answers of one bundle in [from, to) that have an outcome, with the newest, oldest first. */
@@ -105,6 +107,10 @@ export function createOutcomesStore(db: Database): OutcomesStore {
   const head = db.prepare('SELECT seq, chain_hash FROM outcomes ORDER BY seq DESC LIMIT 1');
   const insert = db.prepare('INSERT INTO outcomes (seq, request_id, label, observed_at, source, recorded_at, key_label, replaces, chain_hash) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?)');
   const latest = db.prepare('SELECT sha256 FROM models WHERE name = ? ORDER BY last_loaded_at DESC, rowid DESC LIMIT 1');
+  const windowOutcomes = db.prepare(
+    `SELECT COUNT(*) AS scored, COUNT(actual) AS labelled, COALESCE(SUM(actual = label), 0) AS right FROM
+     (SELECT s.label, (${NEWEST}) AS actual FROM scored_requests AS s WHERE s.model_name = ? AND s.received_at >= ? AND s.received_at < ?)`,
+  );
   const countScored = db.prepare('SELECT COUNT(*) AS n FROM scored_requests WHERE model_sha256 = ? AND received_at >= ? AND received_at < ?');
   const labelled = db.prepare(
     `SELECT * FROM (SELECT s.received_at, s.seq, s.label, s.probabilities, s.margin, s.in_domain, s.review, (${NEWEST}) AS actual
@@ -197,6 +203,7 @@ export function createOutcomesStore(db: Database): OutcomesStore {
       for (const r of rows) out.set(r.request_id, { label: r.label, observed_at: r.observed_at });
       return out;
     },
+    windowOutcomes: (model, from, to) => windowOutcomes.get(model, from, to) as { scored: number; labelled: number; right: number },
     countScored: (sha256, from, to) => (countScored.get(sha256, from, to) as { n: number }).n,
     labelledRows: (sha256, from, to) => labelled.iterate(sha256, from, to) as IterableIterator<LabelledRowView>,
     loggedVectors: (model, from, to, labelledOnly) => (labelledOnly ? labelledVectors : allVectors).iterate(model, from, to) as IterableIterator<LoggedVectorView>,
