@@ -1,6 +1,7 @@
 import type { DriftReport, FeatureDrift } from '../contracts/drift-report.js';
 import { FAULT_HOUR_P, faultHourP } from './findings.js';
 import { COLOURS, esc, fixed, pageStyle, pct, pValue, svg } from './html-parts.js';
+import { outcomeCharts } from './outcomes-html.js';
 
 const bandColour = (band: string | null): string => (band === 'shifted' ? COLOURS.shifted : band === 'watch' ? COLOURS.watch : band === 'stable' ? COLOURS.stable : COLOURS.grey);
 
@@ -92,6 +93,20 @@ function classChart(r: DriftReport): string {
   return svg('classes', 'predicted-class shares of the held-out answers at training and in the window', w, h, `<line x1="6" y1="${h - 30}" x2="${w - 6}" y2="${h - 30}" stroke="${COLOURS.ink}"/>${bars}`);
 }
 
+/** How right the window's answers were, once their outcomes are known: the outcomes report's figures and charts. */
+function outcomesSection(o: NonNullable<DriftReport['outcomes']>): string {
+  const d = o.by_domain;
+  return `<h2 id="outcomes">Outcomes: how right the answers were</h2>
+<div class="tiles">
+<div class="tile">with an outcome<b>${o.labelled}</b>of ${o.scored} (${pct(o.labelled_rate)})</div>
+<div class="tile">right<b>${pct(o.accuracy.value)}</b>95% Wilson ${pct(o.accuracy.ci_low)}–${pct(o.accuracy.ci_high)}</div>
+<div class="tile">in domain, right<b>${pct(d.in_domain.accuracy)}</b>of ${d.in_domain.rows}</div>
+<div class="tile">out of domain, right<b>${pct(d.out_of_domain.accuracy)}</b>of ${d.out_of_domain.rows} · Fisher p ${pValue(d.p_value)}</div>
+</div>
+<ol>${o.findings.map((f) => `<li>${esc(f)}</li>`).join('')}</ol>
+${outcomeCharts(o)}`;
+}
+
 export function renderReportHtml(r: DriftReport): string {
   const verdictColour = r.verdict === 'insufficient data' ? COLOURS.grey : bandColour(r.verdict);
   const o = r.out_of_domain;
@@ -132,7 +147,7 @@ ${psiChart(r.features)}
 ${classChart(r)}
 <h2>Margin</h2>
 <p>Mean margin (top-1 minus top-2 probability) ${fixed(r.margin.mean)} against ${fixed(r.margin.reference_mean)} on the held-out answers at training; KS D ${fixed(r.margin.ks.d)}, p ${pValue(r.margin.ks.p_value)}.</p>
-<footer>PSI: population stability index on the training decile bins (bands, common practice: below 0.1 stable, 0.1–0.25 watch, 0.25 and above shifted). KS: two-sample Kolmogorov-Smirnov against the bundle's reference sample, p-values adjusted across features by Benjamini-Hochberg. W1: Wasserstein-1 distance in training standard deviations. Out-of-domain rate with its Wilson interval, tested (exact one-sided binomial) against the upper end of the 95% Clopper-Pearson interval of the false-alarm rate measured when the flag was calibrated.${r.sample.reservoir ? ` KS and W1 use a seeded uniform sample of ${r.sample.cap} rows.` : ''} This report is decision support, not a safety function.</footer>
+${r.outcomes ? outcomesSection(r.outcomes) : ''}<footer>PSI: population stability index on the training decile bins (bands, common practice: below 0.1 stable, 0.1–0.25 watch, 0.25 and above shifted). KS: two-sample Kolmogorov-Smirnov against the bundle's reference sample, p-values adjusted across features by Benjamini-Hochberg. W1: Wasserstein-1 distance in training standard deviations. Out-of-domain rate with its Wilson interval, tested (exact one-sided binomial) against the upper end of the 95% Clopper-Pearson interval of the false-alarm rate measured when the flag was calibrated.${r.sample.reservoir ? ` KS and W1 use a seeded uniform sample of ${r.sample.cap} rows.` : ''} This report is decision support, not a safety function.</footer>
 </body></html>
 `;
 }

@@ -1,8 +1,11 @@
 import type { OutcomesReport } from '../contracts/outcomes-report.js';
+
+/** The figures of an outcomes report, as the drift report also carries them. */
+export type OutcomeFigures = Omit<OutcomesReport, 'model' | 'window' | 'created_at'>;
 import { COLOURS, esc, fixed, pageStyle, pct, pValue, svg } from './html-parts.js';
 
 /** Rows the actual class, columns the answered one; each cell shaded by its share of its row. */
-function confusionChart(r: OutcomesReport): string {
+function confusionChart(r: OutcomeFigures): string {
   const labels = r.confusion.labels;
   const n = labels.length;
   const cell = Math.max(40, Math.min(72, Math.floor(520 / Math.max(1, n))));
@@ -33,7 +36,7 @@ function confusionChart(r: OutcomesReport): string {
 }
 
 /** Accuracy against mean top probability per bin, with the diagonal a calibrated model would follow. */
-function reliabilityChart(r: OutcomesReport): string {
+function reliabilityChart(r: OutcomeFigures): string {
   const size = 320;
   const left = 44;
   const top = 10;
@@ -57,7 +60,7 @@ function reliabilityChart(r: OutcomesReport): string {
 }
 
 /** Share right per margin band, and in and out of domain, as bars with their row counts. */
-function marginChart(r: OutcomesReport): string {
+function marginChart(r: OutcomeFigures): string {
   const groups = [
     ...r.by_margin.map((b) => ({ name: `margin ${b.low}–${b.high}`, ...b, colour: COLOURS.window })),
     { name: 'in domain', ...r.by_domain.in_domain, colour: COLOURS.stable },
@@ -79,12 +82,26 @@ function marginChart(r: OutcomesReport): string {
   return svg('margin', 'share of answers right per margin band and in and out of domain', w, h, `<line x1="6" y1="${h - bottom}" x2="${w - 6}" y2="${h - bottom}" stroke="${COLOURS.ink}"/>${bars}`);
 }
 
-export function renderOutcomesHtml(r: OutcomesReport): string {
-  const a = r.accuracy;
-  const d = r.by_domain;
+/** The charts and the class table, with their headings: the outcomes page's, and the drift page's outcomes section. */
+export function outcomeCharts(r: OutcomeFigures): string {
   const classRows = r.classes
     .map((c) => `<tr><td>${esc(c.label)}</td><td class="n">${c.rows}</td><td class="n">${fixed(c.precision)}</td><td class="n">${fixed(c.recall)}</td><td class="n">${fixed(c.f1)}</td></tr>`)
     .join('');
+  return `<h2>What the parts were, against what the model answered</h2>
+<div style="max-width:36rem">${confusionChart(r)}</div>
+<table><thead><tr><th>class</th><th class="n">parts</th><th class="n">precision</th><th class="n">recall</th><th class="n">F1</th></tr></thead><tbody>${classRows}</tbody></table>
+<h2>Did the probabilities mean what they said?</h2>
+<p class="key">Bars: share right among the answers whose top probability fell in the bin (darker: more answers); dots: their mean top probability; dashed: a calibrated model.</p>
+<div style="max-width:26rem">${reliabilityChart(r)}</div>
+<h2>Share right by margin and by domain</h2>
+${marginChart(r)}
+<p>Answers marked for review were right ${pct(r.review.accuracy)} of ${r.review.rows}; the others ${pct(r.not_review.accuracy)} of ${r.not_review.rows}.</p>
+`;
+}
+
+export function renderOutcomesHtml(r: OutcomesReport): string {
+  const a = r.accuracy;
+  const d = r.by_domain;
   return `<!doctype html>
 <html lang="en"><head><meta charset="utf-8"><meta name="viewport" content="width=device-width, initial-scale=1">
 <title>Outcomes report: ${esc(r.model.name)} ${esc(r.window.from.slice(0, 10))}</title>
@@ -101,15 +118,7 @@ ${pageStyle(COLOURS.window)}</head><body>
 </div>
 <h2>Findings</h2>
 <ol>${r.findings.map((f) => `<li>${esc(f)}</li>`).join('')}</ol>
-<h2>What the parts were, against what the model answered</h2>
-<div style="max-width:36rem">${confusionChart(r)}</div>
-<table><thead><tr><th>class</th><th class="n">parts</th><th class="n">precision</th><th class="n">recall</th><th class="n">F1</th></tr></thead><tbody>${classRows}</tbody></table>
-<h2>Did the probabilities mean what they said?</h2>
-<p class="key">Bars: share right among the answers whose top probability fell in the bin (darker: more answers); dots: their mean top probability; dashed: a calibrated model.</p>
-<div style="max-width:26rem">${reliabilityChart(r)}</div>
-<h2>Share right by margin and by domain</h2>
-${marginChart(r)}
-<p>Answers marked for review were right ${pct(r.review.accuracy)} of ${r.review.rows}; the others ${pct(r.not_review.accuracy)} of ${r.not_review.rows}.</p>
+${outcomeCharts(r)}
 <footer>Accuracy with its Wilson 95% interval (Newcombe 1998). Precision, recall and F1 per class; a dash where the model never answered a class or no part was of it. Log-loss in nats; Brier score in its multi-class form (0 best, 2 worst). ECE: expected calibration error of the top probability over ${r.ece.bins.length} equal-width bins (Guo et al. 2017). In and out of domain compared by Fisher's exact test, two-sided. Margin: top-1 minus top-2 probability. This report is decision support, not a safety function.</footer>
 </body></html>
 `;

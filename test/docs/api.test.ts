@@ -75,14 +75,15 @@ beforeAll(async () => {
   servers.drift = await startDocServer();
   const app = servers.drift.server.app;
   const replayed = await replayDemoDay(app.scoring, 'moulding-quality', DEMO_DIR, DAY_START);
-  // and the inspection results of every third shot, as `plumbline demo` records them
-  recordDemoOutcomes(app.store.outcomes, 'moulding-quality', replayed.shots);
   const db = app.config.db;
   const io = { stdout: sink(), stderr: sink(), interactive: false };
   const day = await driftAction({ db, model: 'moulding-quality', from: new Date(DAY_START), to: new Date(DAY_START + DAY), minRows: 30, sampleCap: 10_000 }, io);
   await driftAction({ db, model: 'moulding-quality', from: new Date(DAY_START), to: new Date(DAY_START + DAY), minRows: 5000, sampleCap: 10_000 }, io);
   await driftAction({ db, model: 'moulding-quality', from: new Date(DAY_START + 5 * HOUR), to: new Date(DAY_START + 7 * HOUR), minRows: 30, sampleCap: 10_000 }, io);
   seen.set('01a233ef-b780-7000-87a7-cc7d3e73d07b', day.id);
+  // Then the inspection results of every third shot, as `plumbline demo` records them: the
+  // reports above were made before they came, the POST /v1/drift-reports example after.
+  recordDemoOutcomes(app.store.outcomes, 'moulding-quality', replayed.shots);
   servers.metrics = await startDocServer();
 }, 120_000);
 

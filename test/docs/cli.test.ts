@@ -8,7 +8,8 @@ import { createKeyAction } from '../../src/cli/actions/keys.js';
 import { driftAction } from '../../src/cli/actions/drift.js';
 import { configSchema } from '../../src/config/config.js';
 import { recordDemoOutcomes } from '../../src/demo/outcomes.js';
-import { replayDemoDay } from '../../src/demo/replay.js';
+import { type ReplayedShot, replayDemoDay } from '../../src/demo/replay.js';
+import { openStore } from '../../src/store/store.js';
 import { trainAction } from '../../src/cli/actions/train.js';
 import { TRAIN_DEFAULTS } from '../../src/cli/commands/train.js';
 import { startServer } from '../../src/http/server.js';
@@ -61,15 +62,14 @@ function docDates(output: string): string {
   return asOfDocDay(output, output.includes('plumbline demo:') ? 'http://127.0.0.1:18401' : 'http://127.0.0.1:8080');
 }
 
+let demoShots: ReplayedShot[] = [];
 const isAudit = (e: Example) => e.section.startsWith('plumbline audit verify');
 const isKeys = (e: Example) => e.section.startsWith('plumbline keys');
 
 beforeAll(async () => {
   // The demo's audit log, for the drift example: the invented day replayed into a fresh database.
   const demo = await startServer(configSchema.parse({ port: 0, models_dir: join(DEMO_DIR, 'models'), db: tmp.file('demo.db'), logger: { level: 'silent' }, reports: { schedule: 'off' } }), { logger: pino({ level: 'silent' }), timers: false });
-  const replayed = await replayDemoDay(demo.app.scoring, 'moulding-quality', DEMO_DIR, DAY_START);
-  // and its inspection results, as plumbline demo records them (the export and compare examples)
-  recordDemoOutcomes(demo.app.store.outcomes, 'moulding-quality', replayed.shots);
+  demoShots = (await replayDemoDay(demo.app.scoring, 'moulding-quality', DEMO_DIR, DAY_START)).shots;
   await demo.close();
   // The keys examples: an admin key first, then the doc's scorer key (its own example).
   createKeyAction({ db: tmp.file('plumbline.db'), role: 'admin', label: 'ops' }, quiet());
@@ -78,6 +78,12 @@ afterAll(() => tmp.remove());
 
 /** Work the doc describes between its examples. */
 async function before(e: Example): Promise<void> {
+  if (e.command.includes(' export ') && !existsSync(tmp.file('morning.csv'))) {
+    // The inspection results arrive after the drift example, as plumbline demo records them.
+    const store = openStore(tmp.file('demo.db'), { sync: 'normal', flushMs: 0, flushRows: 512, queueRows: 1000, rejectedRows: 1000 });
+    recordDemoOutcomes(store.outcomes, 'moulding-quality', demoShots);
+    store.close();
+  }
   if (e.command.includes(' compare ') && !existsSync(tmp.file('retrained.bundle.json'))) {
     // The train example between export and compare, which this test does not run as a command.
     await trainAction({ ...TRAIN_DEFAULTS, detectors: [...TRAIN_DEFAULTS.detectors], data: tmp.file('morning.csv'), label: 'label', ignore: ['request_id', 'received_at'], featureInfo: join(REPO, 'demo-data/features.json'), name: 'moulding-quality', version: '2', out: tmp.file('retrained.bundle.json'), createdAt: new Date(1796112000 * 1000) }, quiet());

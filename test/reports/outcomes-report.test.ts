@@ -110,3 +110,24 @@ describe('POST /v1/models/{name}/compare on the demo day', () => {
     expect(empty.statusCode).toBe(400);
   });
 });
+
+describe('the drift report of a window whose answers have outcomes', () => {
+  it('carries the outcomes report figures, and its page an outcomes section with the same charts', async () => {
+    const drift = await svc.app.reports.run('moulding-quality', { from: DAY_START, to: DAY_END }, 'request');
+    const { model: _m, window: _w, created_at: _c, ...figures } = report;
+    expect(drift.outcomes).toEqual({ ...figures, findings: expect.any(Array) });
+    const res = await svc.app.inject(`/v1/drift-reports/${drift.id}.html`);
+    expect(res.body).toContain('<h2 id="outcomes">');
+    for (const chart of ['confusion', 'reliability', 'margin']) expect(res.body).toContain(`data-chart="${chart}"`);
+    const errors: string[] = [];
+    parse(res.body, { onParseError: (e) => errors.push(e.code) });
+    expect(errors).toEqual([]);
+  });
+
+  it('has no outcomes section over a window none of whose answers has an outcome', async () => {
+    // the day's first two shots; the third is the first inspected
+    const drift = await svc.app.reports.run('moulding-quality', { from: DAY_START, to: DAY_START + 60_000 }, 'request');
+    expect(drift.counts.scored).toBeGreaterThan(0);
+    expect(drift.outcomes).toBeUndefined();
+  });
+});
