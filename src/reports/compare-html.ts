@@ -14,7 +14,7 @@ export function renderCompareHtml(r: CompareReport): string {
 ${pageStyle(COLOURS.window)}</head><body>
 <p class="meta">plumbline candidate comparison</p>
 <h1>${esc(r.model)}: logged answers against ${esc(r.candidate.name)} <small>version ${esc(r.candidate.version)}</small></h1>
-<p class="meta">answers received ${esc(r.window.from)} to ${esc(r.window.to)} (UTC) · made ${esc(r.created_at)} · candidate ${esc(r.candidate.sha256.slice(0, 12))} · logged by ${r.current.map((m) => `${esc(m.version)} (${esc(m.sha256.slice(0, 12))})`).join(', ')}</p>
+<p class="meta">answers received ${esc(r.window.from)} to ${esc(r.window.to)} (UTC) · made ${esc(r.created_at)} · candidate ${esc(r.candidate.sha256.slice(0, 12))} · logged by ${r.current.map((m) => `version ${esc(m.version)} (${esc(m.sha256.slice(0, 12))})`).join(', ')}</p>
 <div class="tiles">
 <div class="tile">rescored<b>${r.rows}</b>${r.skipped} left out</div>
 <div class="tile">same label<b>${pct(r.agreement.rate)}</b>${r.agreement.rows} of ${r.rows}</div>
