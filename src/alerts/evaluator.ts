@@ -3,6 +3,7 @@ import type { Logger } from 'pino';
 import type { ModelRegistry } from '../bundle/registry.js';
 import { uuidv7 } from '../ids.js';
 import type { AlertRow, AlertsStore, NewDelivery } from '../store/alerts-store.js';
+import type { OutcomesStore } from '../store/outcomes-store.js';
 import { type AlertEventType, type AlertFacts, alertEvent, describeAlert } from './cloudevents.js';
 import { formatDuration } from '../config/durations.js';
 import type { AlertRule } from '../config/alert-rules.js';
@@ -48,7 +49,7 @@ export interface Evaluator {
  * signal hovering at its threshold does not flap. Too few requests (min_requests) neither raise
  * nor clear. Raises and clears are stored with their webhook deliveries in one transaction.
  */
-export function createEvaluator(deps: { rules: AlertRule[]; registry: ModelRegistry; store: AlertsStore; log: Logger; onChange?: (s: AlertState) => void }): Evaluator {
+export function createEvaluator(deps: { rules: AlertRule[]; registry: ModelRegistry; store: AlertsStore; outcomes?: Pick<OutcomesStore, 'windowOutcomes'>; log: Logger; onChange?: (s: AlertState) => void }): Evaluator {
   const { rules, registry, store, log } = deps;
   const tracks = new Map<string, Track>();
   const key = (rule: string, model: string): string => `${rule}\u0000${model}`;
@@ -91,10 +92,11 @@ export function createEvaluator(deps: { rules: AlertRule[]; registry: ModelRegis
     tracks.set(k, t);
     const direction = rule.below !== undefined ? 'below' : 'above';
     const threshold = thresholdFor(rule, model);
-    const signal = await computeSignal(store, rule, model, now);
+    const signal = await computeSignal(store, rule, model, now, deps.outcomes);
     t.requests = signal?.requests ?? 0;
     t.threshold = threshold;
-    const enough = signal !== null && signal.requests >= rule.min_requests && threshold !== null;
+    // For accuracy the count is of answers with an outcome, held to min_labelled.
+    const enough = signal !== null && signal.requests >= (rule.signal === 'accuracy' ? rule.min_labelled : rule.min_requests) && threshold !== null;
     t.value = enough ? signal.value : null;
     if (!enough) {
       if (t.phase === 'holding') t.phase = 'quiet';

@@ -28,6 +28,7 @@ export function startAlerting(deps: { config: Config; registry: ModelRegistry; s
     rules: config.alerts.rules,
     registry: deps.registry,
     store: store.alerts,
+    outcomes: store.outcomes,
     log,
     onChange: (s) => {
       metrics.alertState.set({ rule: s.rule, model: s.model }, ALERT_PHASES[s.phase]);

@@ -1,4 +1,5 @@
 import type { AlertsStore } from '../store/alerts-store.js';
+import type { OutcomesStore } from '../store/outcomes-store.js';
 import type { AlertRule } from '../config/alert-rules.js';
 
 export interface SignalValue {
@@ -11,8 +12,16 @@ export interface SignalValue {
  * A rule's signal for one model over [now - window, now), or null when nothing was logged.
  * max_psi is the largest feature PSI of the model's newest drift report, whatever its window.
  */
-export async function computeSignal(store: AlertsStore, rule: AlertRule, model: string, now: number): Promise<SignalValue | null> {
+export async function computeSignal(store: AlertsStore, rule: AlertRule, model: string, now: number, outcomes?: Pick<OutcomesStore, 'windowOutcomes'>): Promise<SignalValue | null> {
   const from = now - rule.window;
+  if (rule.signal === 'accuracy' || rule.signal === 'labelled_rate') {
+    // Over the answers received in the window and the outcomes recorded for them by now: an
+    // outcome arrives after its answer, so a window that ends now fills in as outcomes come.
+    const o = outcomes?.windowOutcomes(model, from, now);
+    if (!o || o.scored === 0) return null;
+    if (rule.signal === 'labelled_rate') return { value: o.labelled / o.scored, requests: o.scored };
+    return o.labelled > 0 ? { value: o.right / o.labelled, requests: o.labelled } : null;
+  }
   if (rule.signal === 'max_psi') {
     const text = await store.latestReport(model);
     if (!text) return null;

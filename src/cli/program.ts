@@ -7,6 +7,8 @@ import { registerKeys } from './commands/keys.js';
 import { registerMigrateLog } from './commands/migrate-log.js';
 import { registerScore } from './commands/score.js';
 import { registerExplain } from './commands/explain.js';
+import { registerExport } from './commands/export.js';
+import { registerCompare } from './commands/compare.js';
 import { registerServe } from './commands/serve.js';
 import { registerTrain } from './commands/train.js';
 
@@ -23,6 +25,8 @@ export function buildProgram(): Command {
   registerScore(program);
   registerExplain(program);
   registerDrift(program);
+  registerExport(program);
+  registerCompare(program);
   registerDemo(program);
   registerKeys(program);
   registerAudit(program);

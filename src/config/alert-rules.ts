@@ -12,20 +12,22 @@ const duration = (what: string, min = 1, max = 7 * DAY_MS) =>
     .refine((ms) => ms >= min && ms <= max, `${what} must be from ${formatDuration(min)} to ${formatDuration(max)}`);
 
 /** The signals a rule can watch; class_fraction takes a class name after the colon. */
-export const SIGNAL = /^(out_of_domain_rate|rejected_rate|review_rate|mean_margin|max_psi|class_fraction:.+)$/;
+export const SIGNAL = /^(out_of_domain_rate|rejected_rate|review_rate|mean_margin|max_psi|accuracy|labelled_rate|class_fraction:.+)$/;
 
 export const ruleSchema = z
   .strictObject({
     name: z.string().regex(/^[A-Za-z0-9][A-Za-z0-9._-]{0,63}$/, 'must be 1-64 letters, digits, dots, dashes or underscores'),
     /** A model name, or "*" for one alert per loaded model. */
     model: z.string().min(1),
-    signal: z.string().regex(SIGNAL, 'must be out_of_domain_rate, rejected_rate, review_rate, mean_margin, max_psi or class_fraction:<class>'),
+    signal: z.string().regex(SIGNAL, 'must be out_of_domain_rate, rejected_rate, review_rate, mean_margin, max_psi, accuracy, labelled_rate or class_fraction:<class>'),
     window: duration('window', 1000, 31 * DAY_MS).default(15 * 60_000),
     above: z.number().optional(),
     below: z.number().optional(),
     /** A multiple of the bundle's measured false-alarm rate, for out_of_domain_rate: raise above k x that rate. */
     above_expected: z.number().positive().optional(),
     min_requests: z.number().int().min(1).default(30),
+    /** For accuracy: fewer answers with an outcome in the window neither raise nor clear. */
+    min_labelled: z.number().int().min(1).default(30),
     sustain: duration('sustain', 0).default(0),
     notify: z.array(z.string().min(1)).default([]),
   })

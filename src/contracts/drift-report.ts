@@ -1,5 +1,6 @@
 import { z } from 'zod';
 import { modelRefSchema } from './model-ref.js';
+import { outcomesReportSchema } from './outcomes-report.js';
 
 // The drift report (docs/drift.md), declared once: the builder makes it, the routes send it, the
 // page draws it. Reports stored before a field existed lack it, hence the optional ones.
@@ -52,6 +53,10 @@ export const driftReportSchema = z
     margin: z.object({ mean: nullableNumber, reference_mean: z.number(), ks: z.object({ d: nullableNumber, p_value: nullableNumber }), review_rate: nullableNumber }),
     hourly: z.array(z.object({ hour: z.string(), scored: z.number(), out_of_domain: z.number() })),
     sample: z.object({ rows: z.number(), cap: z.number(), reservoir: z.boolean(), seed: z.number() }),
+    outcomes: outcomesReportSchema
+      .omit({ model: true, window: true, created_at: true })
+      .optional()
+      .describe("how right the window's answers were, as the outcomes report says (docs/outcomes.md); present when outcomes of them were recorded by the time the report was made"),
     findings: z.array(z.string()).describe('plain sentences, worst first'),
   })
   .meta({ id: 'DriftReport' });

@@ -19,6 +19,9 @@ import metrics from './routes/metrics.js';
 import reports from './routes/reports.js';
 import explanations from './routes/explanations.js';
 import requests from './routes/requests.js';
+import outcomes from './routes/outcomes.js';
+import outcomesReport from './routes/outcomes-report.js';
+import compare from './routes/compare.js';
 import scoring from './routes/scoring.js';
 
 export interface AppOptions {
@@ -178,6 +181,9 @@ export async function buildApp(runtime: Runtime, options: AppOptions = {}): Prom
       await v1.register(models);
       await v1.register(scoring);
       await v1.register(requests);
+      await v1.register(outcomes);
+      await v1.register(outcomesReport);
+      await v1.register(compare);
       await v1.register(explanations);
       await v1.register(reports);
       await v1.register(alerts);

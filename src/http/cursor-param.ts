@@ -1,12 +1,23 @@
 import { CursorError } from '../cursor.js';
 import { ProblemError } from '../errors.js';
 
-/** Runs fn, turning a cursor that does not decode into a 400 naming the `cursor` parameter. */
+const asProblem = (err: unknown): unknown =>
+  err instanceof CursorError ? new ProblemError('invalid-request', 'the cursor is not valid', [{ parameter: 'cursor', detail: err.message }]) : err;
+
+/**
+ * Runs fn, turning a cursor that does not decode into a 400 naming the `cursor` parameter,
+ * whether fn throws it (SQLite) or its promise rejects with it (PostgreSQL).
+ */
 export function withCursor<T>(fn: () => T): T {
   try {
-    return fn();
+    const out = fn();
+    if (out instanceof Promise) {
+      return out.catch((err: unknown) => {
+        throw asProblem(err);
+      }) as T;
+    }
+    return out;
   } catch (err) {
-    if (err instanceof CursorError) throw new ProblemError('invalid-request', 'the cursor is not valid', [{ parameter: 'cursor', detail: err.message }]);
-    throw err;
+    throw asProblem(err);
   }
 }

@@ -13,14 +13,15 @@ export interface ColumnPlan {
  * Picks the feature columns by name: the given list in its order, or every column but the label.
  * Columns not picked (ids, timestamps, the label when scoring) are ignored.
  */
-export function planColumns(header: string[], file: string, options: { features?: string[]; label?: string }, headerLine = 1): ColumnPlan {
+export function planColumns(header: string[], file: string, options: { features?: string[]; label?: string; ignore?: string[] }, headerLine = 1): ColumnPlan {
   const index = (name: string, role: string): number => {
     const i = header.indexOf(name);
     if (i < 0) throw new DataFileError(file, headerLine, name, `${role} column not found; the header has ${header.map((h) => JSON.stringify(h)).join(', ')}`);
     return i;
   };
   const labelIndex = options.label !== undefined ? index(options.label, 'label') : null;
-  const featureNames = options.features ?? header.filter((_, i) => i !== labelIndex);
+  for (const name of options.ignore ?? []) index(name, 'ignored');
+  const featureNames = options.features ?? header.filter((h, i) => i !== labelIndex && !(options.ignore ?? []).includes(h));
   if (featureNames.length === 0) throw new DataFileError(file, headerLine, null, 'has no feature columns');
   const dup = featureNames.find((f, i) => featureNames.indexOf(f) !== i);
   if (dup !== undefined) throw new DataFileError(file, null, dup, 'feature listed twice');
@@ -69,7 +70,7 @@ export class DataFileErrors extends Error {
  * Reads a whole labelled CSV into memory for training. Every bad row is found and reported
  * (the first MAX_REPORTED in full) before anything is trained; none is silently dropped.
  */
-export async function readLabelledCsv(path: string, options: { label: string; features?: string[] }): Promise<LabelledCsv> {
+export async function readLabelledCsv(path: string, options: { label: string; features?: string[]; ignore?: string[] }): Promise<LabelledCsv> {
   const csv: CsvSource = await openCsv(path);
   const plan = planColumns(csv.header, path, options, csv.headerLine);
   const d = plan.featureNames.length;
@@ -100,7 +101,7 @@ export async function readLabelledCsv(path: string, options: { label: string; fe
   if (bad > 0) {
     // A column that fails on every row is an id or a text column picked up by default.
     const whole = [...badByColumn].filter(([, n]) => n === labels.length + bad).map(([c]) => JSON.stringify(c));
-    const hint = whole.length > 0 && !options.features ? `column ${whole.join(', ')} holds no numbers; list the feature columns with --features to leave ${whole.length === 1 ? 'it' : 'them'} out` : '';
+    const hint = whole.length > 0 && !options.features ? `column ${whole.join(', ')} holds no numbers; name ${whole.length === 1 ? 'it' : 'them'} in --ignore, or list the feature columns with --features, to leave ${whole.length === 1 ? 'it' : 'them'} out` : '';
     throw new DataFileErrors(errors, bad, hint);
   }
   if (labels.length === 0) throw new DataFileError(path, null, null, 'has a header but no data rows');

@@ -1,21 +1,9 @@
 import type { DriftReport, FeatureDrift } from '../contracts/drift-report.js';
 import { FAULT_HOUR_P, faultHourP } from './findings.js';
+import { COLOURS, esc, fixed, pageStyle, pct, pValue, svg } from './html-parts.js';
+import { outcomeCharts } from './outcomes-html.js';
 
-// A self-contained page: inline CSS and SVG, no script, no font or image from anywhere.
-
-// Every string put into the page goes through esc, the formatted numbers included: a p-value
-// written "< 1e-15" is text, and a raw "<" in text is an HTML parse error.
-const esc = (s: string): string => s.replace(/[&<>"']/g, (c) => `&#${c.charCodeAt(0)};`);
-const pct = (v: number | null): string => esc(v === null ? '–' : `${(v * 100).toFixed(v < 0.1 ? 2 : 1)}%`);
-const fixed = (v: number | null, digits = 3): string => esc(v === null ? '–' : v.toFixed(digits));
-const pValue = (p: number | null): string => esc(p === null ? '–' : p < 1e-15 ? '< 1e-15' : p < 0.001 ? p.toExponential(1) : p.toFixed(3));
-
-const COLOURS = { ink: '#1f2a2e', paper: '#fbfaf6', rule: '#d8d2c4', reference: '#8c9aa3', window: '#2f5d62', stable: '#3f7d4e', watch: '#b7791f', shifted: '#a23b2a', grey: '#7a7a7a' };
 const bandColour = (band: string | null): string => (band === 'shifted' ? COLOURS.shifted : band === 'watch' ? COLOURS.watch : band === 'stable' ? COLOURS.stable : COLOURS.grey);
-
-function svg(name: string, label: string, width: number, height: number, body: string): string {
-  return `<svg data-chart="${esc(name)}" role="img" aria-label="${esc(label)}" viewBox="0 0 ${width} ${height}" width="100%" preserveAspectRatio="xMinYMin meet">${body}</svg>`;
-}
 
 /** Out-of-domain share per hour as bars, with the expected rate as a dashed line. */
 function hourlyChart(r: DriftReport): string {
@@ -105,6 +93,20 @@ function classChart(r: DriftReport): string {
   return svg('classes', 'predicted-class shares of the held-out answers at training and in the window', w, h, `<line x1="6" y1="${h - 30}" x2="${w - 6}" y2="${h - 30}" stroke="${COLOURS.ink}"/>${bars}`);
 }
 
+/** How right the window's answers were, once their outcomes are known: the outcomes report's figures and charts. */
+function outcomesSection(o: NonNullable<DriftReport['outcomes']>): string {
+  const d = o.by_domain;
+  return `<h2 id="outcomes">Outcomes: how right the answers were</h2>
+<div class="tiles">
+<div class="tile">with an outcome<b>${o.labelled}</b>of ${o.scored} (${pct(o.labelled_rate)})</div>
+<div class="tile">right<b>${pct(o.accuracy.value)}</b>95% Wilson ${pct(o.accuracy.ci_low)}–${pct(o.accuracy.ci_high)}</div>
+<div class="tile">in domain, right<b>${pct(d.in_domain.accuracy)}</b>of ${d.in_domain.rows}</div>
+<div class="tile">out of domain, right<b>${pct(d.out_of_domain.accuracy)}</b>of ${d.out_of_domain.rows} · Fisher p ${pValue(d.p_value)}</div>
+</div>
+<ol>${o.findings.map((f) => `<li>${esc(f)}</li>`).join('')}</ol>
+${outcomeCharts(o)}`;
+}
+
 export function renderReportHtml(r: DriftReport): string {
   const verdictColour = r.verdict === 'insufficient data' ? COLOURS.grey : bandColour(r.verdict);
   const o = r.out_of_domain;
@@ -118,18 +120,7 @@ export function renderReportHtml(r: DriftReport): string {
   return `<!doctype html>
 <html lang="en"><head><meta charset="utf-8"><meta name="viewport" content="width=device-width, initial-scale=1">
 <title>Drift report: ${esc(r.model.name)} ${esc(r.window.from.slice(0, 10))}</title>
-<style>
-body{font:15px/1.45 system-ui,sans-serif;color:${COLOURS.ink};background:${COLOURS.paper};margin:0 auto;max-width:64rem;padding:1.2rem 1.5rem}
-h1{font-size:1.5rem;margin:.2rem 0}h2{font-size:1.1rem;margin-top:1.8rem;border-bottom:1px solid ${COLOURS.rule};padding-bottom:.2rem}
-.meta{color:#4b5a60;font-size:.9rem}.verdict{display:inline-block;padding:.35rem .9rem;border-radius:4px;color:#fff;font-weight:600;background:${verdictColour};text-transform:uppercase;letter-spacing:.05em}
-.tiles{display:flex;gap:1rem;flex-wrap:wrap;margin:1rem 0}.tile{border:1px solid ${COLOURS.rule};border-radius:4px;padding:.5rem .8rem;min-width:10rem;background:#fff}.tile b{display:block;font-size:1.3rem}
-table{border-collapse:collapse;width:100%;font-size:.85rem}td,th{border-bottom:1px solid ${COLOURS.rule};padding:.25rem .4rem;text-align:left}.n{text-align:right;font-variant-numeric:tabular-nums}
-.dot{display:inline-block;width:.7em;height:.7em;border-radius:50%;margin-right:.3em}
-.grid{display:grid;grid-template-columns:repeat(auto-fill,minmax(15rem,1fr));gap:.8rem}figure{margin:0;background:#fff;border:1px solid ${COLOURS.rule};border-radius:4px;padding:.4rem}figcaption{font-size:.8rem}
-.key span{display:inline-block;width:.8em;height:.8em;margin:0 .3em 0 .8em;vertical-align:middle}
-ol li{margin:.3rem 0}footer{margin-top:2rem;font-size:.8rem;color:#4b5a60}
-@media print{body{background:#fff;max-width:none}.tile,figure{break-inside:avoid}}
-</style></head><body>
+${pageStyle(verdictColour)}</head><body>
 <p class="meta">plumbline drift report ${esc(r.id)}</p>
 <h1>${esc(r.model.name)} <small>version ${esc(r.model.version)}</small></h1>
 <p class="meta">window ${esc(r.window.from)} to ${esc(r.window.to)} (UTC) · made ${esc(r.created_at)} · bundle ${esc(r.model.sha256.slice(0, 12))}</p>
@@ -156,7 +147,7 @@ ${psiChart(r.features)}
 ${classChart(r)}
 <h2>Margin</h2>
 <p>Mean margin (top-1 minus top-2 probability) ${fixed(r.margin.mean)} against ${fixed(r.margin.reference_mean)} on the held-out answers at training; KS D ${fixed(r.margin.ks.d)}, p ${pValue(r.margin.ks.p_value)}.</p>
-<footer>PSI: population stability index on the training decile bins (bands, common practice: below 0.1 stable, 0.1–0.25 watch, 0.25 and above shifted). KS: two-sample Kolmogorov-Smirnov against the bundle's reference sample, p-values adjusted across features by Benjamini-Hochberg. W1: Wasserstein-1 distance in training standard deviations. Out-of-domain rate with its Wilson interval, tested (exact one-sided binomial) against the upper end of the 95% Clopper-Pearson interval of the false-alarm rate measured when the flag was calibrated.${r.sample.reservoir ? ` KS and W1 use a seeded uniform sample of ${r.sample.cap} rows.` : ''} This report is decision support, not a safety function.</footer>
+${r.outcomes ? outcomesSection(r.outcomes) : ''}<footer>PSI: population stability index on the training decile bins (bands, common practice: below 0.1 stable, 0.1–0.25 watch, 0.25 and above shifted). KS: two-sample Kolmogorov-Smirnov against the bundle's reference sample, p-values adjusted across features by Benjamini-Hochberg. W1: Wasserstein-1 distance in training standard deviations. Out-of-domain rate with its Wilson interval, tested (exact one-sided binomial) against the upper end of the 95% Clopper-Pearson interval of the false-alarm rate measured when the flag was calibrated.${r.sample.reservoir ? ` KS and W1 use a seeded uniform sample of ${r.sample.cap} rows.` : ''} This report is decision support, not a safety function.</footer>
 </body></html>
 `;
 }

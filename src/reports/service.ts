@@ -4,6 +4,7 @@ import { parseBundle } from '../bundle/verify.js';
 import { uuidv7 } from '../ids.js';
 import type { Store } from '../store/store.js';
 import { buildDriftReport } from './build-report.js';
+import { buildOutcomesReport } from './outcomes-report.js';
 import type { ReportOptions } from './options.js';
 import type { DriftReport } from '../contracts/drift-report.js';
 import type { WorkerJob } from './worker.js';
@@ -52,6 +53,13 @@ export function createReportService(store: Store, options: ReportOptions & { wor
       const report = options.worker && store.kind === 'sqlite'
         ? await inWorker({ dbFile: store.file, bundleText: stored.text, window, meta: { id: meta.id, createdAt: meta.createdAt.toISOString() }, options })
         : await buildDriftReport(store.drift, parseBundle(stored.text, 'stored bundle'), window, meta, options);
+      // The outcomes recorded by now for the window's answers, when there are any: read here, on
+      // the store's connection, as they are a few rows beside the window's (docs/outcomes.md).
+      const logged = store.outcomes.describeModel(report.model.sha256);
+      if (logged) {
+        const { model: _m, window: _w, created_at: _c, ...figures } = buildOutcomesReport(store.outcomes, logged, window, meta.createdAt);
+        if (figures.labelled > 0) report.outcomes = figures;
+      }
       await store.drift.saveReport({
         id: report.id,
         model_name: report.model.name,

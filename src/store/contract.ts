@@ -4,6 +4,7 @@ import type { ChainAnchor, ChainVerdict } from './audit-verify.js';
 import type { CheckpointerStats } from './checkpointer.js';
 import type { DriftStore } from './drift-store.js';
 import type { KeysStore } from './keys-store.js';
+import type { OutcomesStore } from './outcomes-store.js';
 import type { ModelRecord } from './models-table.js';
 import type { RequestFilter } from './request-query.js';
 import type { RequestLog } from './request-log.js';
@@ -40,6 +41,12 @@ export interface Store {
   readonly alerts: AlertsStore;
   /** API keys, stored as hashes. */
   readonly keys: KeysStore;
+  /**
+   * What the parts turned out to be: recorded in a chain of their own, read by the outcomes
+   * report, export and compare. SQLite only in this version (postgres/outcomes.ts says what the
+   * PostgreSQL store does instead).
+   */
+  readonly outcomes: OutcomesStore;
   /** Prunes old rows, keeping the hash chain verifiable. */
   readonly retention: Retention;
   readonly coordination: Coordination;

@@ -1,6 +1,7 @@
 import BetterSqlite3, { type Database } from 'better-sqlite3';
 import { type AnchorCheck, type ChainAnchor, type ChainVerdict, checkAnchor, verifyChain } from './audit-verify.js';
 import { type DriftStore, createDriftStore } from './drift-store.js';
+import { type OutcomeChainVerdict, verifyOutcomeChain } from './outcomes-store.js';
 
 /**
  * A read-only connection to an audit log another process or thread may be writing (WAL lets it
@@ -14,6 +15,8 @@ export interface AuditReader {
   verifyChain(anchor?: ChainAnchor): ChainVerdict;
   /** Whether the log still holds a head recorded earlier (the head file, or one given). */
   checkAnchor(anchor: ChainAnchor): AnchorCheck;
+  /** Recomputes the outcome chain; null for a log from before outcomes (migration 009). */
+  verifyOutcomes(): OutcomeChainVerdict | null;
   close(): void;
 }
 
@@ -25,6 +28,7 @@ export function openAuditReader(file: string): AuditReader {
     hasChain: () => db.prepare("SELECT 1 FROM pragma_table_info('scored_requests') WHERE name = 'chain_hash'").get() !== undefined,
     verifyChain: (anchor) => verifyChain(db, anchor),
     checkAnchor: (anchor) => checkAnchor(db, anchor),
+    verifyOutcomes: () => (db.prepare("SELECT 1 FROM sqlite_schema WHERE type = 'table' AND name = 'outcomes'").get() === undefined ? null : verifyOutcomeChain(db)),
     close: () => db.close(),
   };
 }

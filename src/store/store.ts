@@ -8,6 +8,7 @@ import { changedIdentity, recordIdentity } from './file-identity.js';
 import { headFilePath, readHeadFile, writeHeadFile } from './head-file.js';
 import { type ServeLock, acquireServeLock } from './serve-lock.js';
 import { type KeysStore, createKeysStore } from './keys-store.js';
+import { type OutcomesStore, createOutcomesStore } from './outcomes-store.js';
 import { type Retention, createRetention } from './retention.js';
 import { createChainHeadReader } from './chain-head.js';
 import { sealPreChainRows } from './seal.js';
@@ -137,6 +138,7 @@ export function openStore(file: string, options: StoreOptions): SqliteStore {
   const drift = createDriftStore(db);
   const alerts = createAlertsStore(db);
   const keys = createKeysStore(db);
+  const outcomes = createOutcomesStore(db);
   const lockProbe = db.prepare('SELECT 1');
   const writeState = (): WriteState => {
     if (closed) return { writable: false, reason: 'the store is closed' };
@@ -161,6 +163,7 @@ export function openStore(file: string, options: StoreOptions): SqliteStore {
     drift,
     alerts,
     keys,
+    outcomes,
     headFile,
     retention: createRetention(db),
     verifyChain: (anchor) => verifyChain(db, anchor),

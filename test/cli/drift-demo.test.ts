@@ -76,6 +76,15 @@ describe('plumbline demo', () => {
       expect(text).toContain('3. the drift report for that day (what the nightly job makes):');
       expect(text).toContain('verdict: shifted');
       expect(text).toContain(`The report, with its charts: ${demo.url}`);
+      // the inspection results of every third shot, and in-domain answers right far more often
+      expect(text).toContain("4. the inspection station's results, for every third shot, 40 minutes after it (as POST /v1/outcomes takes them): 666 recorded");
+      expect(demo.outcomes.labelled).toBe(666);
+      const d = demo.outcomes.by_domain;
+      expect((d.in_domain.accuracy as number) - (d.out_of_domain.accuracy as number)).toBeGreaterThan(0.15);
+      expect(text).toContain(`   1. Out-of-domain answers were right far less often: `);
+      const outcomesPage = await fetch(/How right the answers were, with its charts: (\S+)/.exec(text)?.[1] as string);
+      expect(outcomesPage.status).toBe(200);
+      expect(await outcomesPage.text()).toContain('data-chart="reliability"');
       const page = await fetch(demo.url);
       expect(page.status).toBe(200);
       expect(await page.text()).toContain('data-verdict="shifted"');

@@ -100,7 +100,7 @@ describe('plumbline audit verify', () => {
     const v = auditVerifyAction({ db, json: false }, t);
     expect(v.intact).toBe(true);
     // this store was not a serving one, so no head was kept beside it
-    expect(t.out.text()).toBe(`intact: 5 rows chain from the first row to row 5\nno head file at ${db}.head: rows cut from the end could not be told (serving the database keeps one; or give --head)\nhead 5:${v.head.hash}\n`);
+    expect(t.out.text()).toBe(`intact: 5 rows chain from the first row to row 5\nno head file at ${db}.head: rows cut from the end could not be told (serving the database keeps one; or give --head)\nhead 5:${v.head.hash}\noutcomes intact: none recorded yet\n`);
     const run = cli('audit', 'verify', '--db', db);
     expect(run.status).toBe(0);
     expect(run.stdout).toContain(`head 5:${v.head.hash}`);
@@ -123,6 +123,28 @@ describe('plumbline audit verify', () => {
     expect(changed.status).toBe(1);
     expect(changed.stdout).toMatch(/^NOT intact: changed at row 2 \(request q-1\)/);
     expect(() => parseAnchor('5:abc')).toThrow(/--head must be SEQ:HASH/);
+  });
+
+  it('recomputes the outcome chain too: exit 1 and the outcome named when one was changed', () => {
+    const other = tmp.file('outcomes.db');
+    const store = openStore(other, { sync: 'normal', flushMs: 0, flushRows: 512, queueRows: 1000, rejectedRows: 10 });
+    store.recordModel({ sha256: 'e'.repeat(64), name: 'm', version: '1', features: [{ name: 'a', unit: 'mm' }], classes: ['x', 'y'] });
+    return (async () => {
+      await store.log.append([
+        { requestId: 'o-1', batchId: null, receivedAt: 1_790_000_000_000, model: { sha256: 'e'.repeat(64), name: 'm', version: '1' }, features: [1], tags: null, label: 'x', probabilities: [0.6, 0.4], margin: 0.2, inDomain: true, review: false, domain: { checks: [], outside: [] }, latencyUs: 10 },
+      ]);
+      expect(store.outcomes.record([{ requestId: 'o-1', label: 'y', observedAt: null, source: 'gauge', replace: false }], null, 1_790_000_100_000)).toEqual([{ requestId: 'o-1', status: 'recorded' }]);
+      store.close();
+      const ok = auditVerifyAction({ db: other, json: false }, io());
+      expect(ok.intact).toBe(true);
+      expect(ok.outcomes).toMatchObject({ intact: true, rows: 1, head: { seq: 1 } });
+      const w = new BetterSqlite3(other);
+      w.prepare("UPDATE outcomes SET source = 'customer return' WHERE seq = 1").run();
+      w.close();
+      const run = cli('audit', 'verify', '--db', other);
+      expect(run.status).toBe(1);
+      expect(run.stdout).toContain('outcomes NOT intact: changed at outcome 1 (request o-1)');
+    })();
   });
 
   it('never writes to the database it checks', () => {

@@ -3,6 +3,7 @@ import BetterSqlite3 from 'better-sqlite3';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { driftAction } from '../../src/cli/actions/drift.js';
+import { recordDemoOutcomes } from '../../src/demo/outcomes.js';
 import { replayDemoDay } from '../../src/demo/replay.js';
 import { DEFAULT_VARYING, type Example, carry, dumpOutput, examplesOf, fencedBlocks, quoteProblems, readDoc, runCommand } from '../helpers/doc-examples.js';
 import { type DocServer, startDocServer } from '../helpers/doc-servers.js';
@@ -33,7 +34,7 @@ function serverFor(e: Example): ServerName | null {
   if (e.output.includes('429 Too Many Requests')) return 'limited';
   if (e.output.includes('"status":"not ready"')) return 'empty';
   if (e.output.includes('log-backpressure')) return 'backpressure';
-  if (e.section.includes('drift-reports')) return 'drift';
+  if (e.section.includes('drift-reports') || e.section.includes('outcomes') || e.section.includes('compare')) return 'drift';
   if (e.section === 'Authentication' || e.command.includes('_KEY')) return 'keyed';
   return 'open';
 }
@@ -73,13 +74,16 @@ beforeAll(async () => {
   // command line (the day, the day again with --min-rows 5000, and 05:00 to 07:00).
   servers.drift = await startDocServer();
   const app = servers.drift.server.app;
-  await replayDemoDay(app.scoring, 'moulding-quality', DEMO_DIR, DAY_START);
+  const replayed = await replayDemoDay(app.scoring, 'moulding-quality', DEMO_DIR, DAY_START);
   const db = app.config.db;
   const io = { stdout: sink(), stderr: sink(), interactive: false };
   const day = await driftAction({ db, model: 'moulding-quality', from: new Date(DAY_START), to: new Date(DAY_START + DAY), minRows: 30, sampleCap: 10_000 }, io);
   await driftAction({ db, model: 'moulding-quality', from: new Date(DAY_START), to: new Date(DAY_START + DAY), minRows: 5000, sampleCap: 10_000 }, io);
   await driftAction({ db, model: 'moulding-quality', from: new Date(DAY_START + 5 * HOUR), to: new Date(DAY_START + 7 * HOUR), minRows: 30, sampleCap: 10_000 }, io);
   seen.set('01a233ef-b780-7000-87a7-cc7d3e73d07b', day.id);
+  // Then the inspection results of every third shot, as `plumbline demo` records them: the
+  // reports above were made before they came, the POST /v1/drift-reports example after.
+  recordDemoOutcomes(app.store.outcomes, 'moulding-quality', replayed.shots);
   servers.metrics = await startDocServer();
 }, 120_000);
 

@@ -31,8 +31,12 @@ describe('openapi/openapi.json', () => {
       '/v1/models',
       '/v1/models/reload',
       '/v1/models/{name}',
+      '/v1/models/{name}/compare',
+      '/v1/models/{name}/outcomes-report',
+      '/v1/models/{name}/outcomes-report.html',
       '/v1/models/{name}/score',
       '/v1/models/{name}/score-batch',
+      '/v1/outcomes',
       '/v1/requests',
       '/v1/requests/{id}/explanation',
     ]);

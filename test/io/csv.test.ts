@@ -118,7 +118,10 @@ describe('feature table', () => {
       const message = (err as Error).message;
       expect(message).toMatch(/3 bad rows/);
       expect(message).toMatch(/line 4, column "id": is "A3", not a number/);
-      expect(message).toMatch(/column "id" holds no numbers; list the feature columns with --features/);
+      expect(message).toMatch(/column "id" holds no numbers; name it in --ignore, or list the feature columns with --features, to leave it out/);
+      // with --ignore it is left out, and the other bad rows remain
+      const ignored = await readLabelledCsv(path, { label: 'label', ignore: ['id'] }).catch((e: unknown) => e);
+      expect((ignored as Error).message).toMatch(/^2 bad rows/);
       const picked = await readLabelledCsv(path, { label: 'label', features: ['x', 'y'] }).catch((e: unknown) => e);
       expect((picked as Error).message).toMatch(/^2 bad rows/);
       expect((picked as Error).message).toMatch(/line 3, column "y": is "oops", not a number/);

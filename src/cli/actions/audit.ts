@@ -1,6 +1,7 @@
 import { existsSync } from 'node:fs';
 import type { ChainAnchor, ChainVerdict } from '../../store/audit-verify.js';
 import { headFilePath, readHeadFile } from '../../store/head-file.js';
+import type { OutcomeChainVerdict } from '../../store/outcomes-store.js';
 import { openAuditReader } from '../../store/reader.js';
 import { verifyServerLog } from '../../store/postgres/open.js';
 import { type CliIo, UsageError } from '../io.js';
@@ -25,7 +26,8 @@ export interface HeadFileUse {
   written_at: string | null;
 }
 
-export type AuditVerdict = ChainVerdict & { head_file: HeadFileUse };
+/** The scored rows' chain, the head file, and the outcome chain (null before migration 009). */
+export type AuditVerdict = ChainVerdict & { head_file: HeadFileUse; outcomes: OutcomeChainVerdict | null };
 
 /**
  * `plumbline audit verify`: recomputes the hash chain of the audit log, read-only, and says
@@ -42,7 +44,7 @@ export function auditVerifyAction(ctx: { db: string; head?: ChainAnchor; json: b
   let v: AuditVerdict;
   try {
     if (!reader.hasChain()) throw new UsageError(`${ctx.db} has no hash chain yet: start this version of plumbline on it once, to migrate and seal it`);
-    v = { ...reader.verifyChain(ctx.head), head_file: use };
+    v = { ...reader.verifyChain(ctx.head), head_file: use, outcomes: reader.verifyOutcomes() };
     if (recorded instanceof Error) {
       use.state = 'unreadable';
       if (v.intact) v = { ...v, intact: false, problem: { kind: 'anchor', seq: v.head.seq, request_id: null, detail: `${recorded.message}, so the end of the log cannot be checked against it (--no-head-file verifies without it)` } };
@@ -58,6 +60,10 @@ export function auditVerifyAction(ctx: { db: string; head?: ChainAnchor; json: b
   } finally {
     reader.close();
   }
+  // The outcome rows chain on their own: the log is intact only when both chains are.
+  const outcomesIntact = v.outcomes === null || v.outcomes.intact;
+  if (!outcomesIntact) v = { ...v, intact: false };
+
   return printVerdict(v, ctx, use, io);
 }
 
@@ -68,26 +74,36 @@ export function auditVerifyAction(ctx: { db: string; head?: ChainAnchor; json: b
  */
 export async function auditVerifyServerAction(ctx: { db: string; head?: ChainAnchor; json: boolean }, io: CliIo): Promise<AuditVerdict> {
   const use: HeadFileUse = { path: '', state: 'ignored', seq: null, written_at: null };
-  const v: AuditVerdict = { ...(await verifyServerLog(ctx.db, ctx.head)), head_file: use };
+  // Outcomes are kept on the SQLite store only (store/postgres/outcomes.ts): no outcome chain here.
+  const v: AuditVerdict = { ...(await verifyServerLog(ctx.db, ctx.head)), head_file: use, outcomes: null };
   return printVerdict(v, ctx, use, io);
 }
 
 function printVerdict(v: AuditVerdict, ctx: { head?: ChainAnchor; json: boolean }, use: HeadFileUse, io: CliIo): AuditVerdict {
   if (ctx.json) {
     io.stdout.write(`${JSON.stringify(v, null, 2)}\n`);
-  } else if (v.intact) {
+  } else if (v.intact || v.problem === null) {
     const from = v.from.checkpoint ? `the retention checkpoint after row ${v.from.seq}` : 'the first row';
     const through = v.anchor === 'checked' ? `, through the recorded head ${ctx.head?.seq}` : '';
     io.stdout.write(`intact: ${v.rows} row${v.rows === 1 ? ' chains' : 's chain'} from ${from} to row ${v.head.seq}${through}\n`);
     if (v.anchor === 'pruned') io.stdout.write(`the recorded head ${ctx.head?.seq} lies before the retention checkpoint at ${v.from.seq}: retention removed it, so it was not checked\n`);
     if (use.path !== '') io.stdout.write(`${describeHeadFile(use, v.anchor !== null)}\n`);
     io.stdout.write(`head ${v.head.seq}:${v.head.hash}\n`);
+    if (v.outcomes) io.stdout.write(`${describeOutcomes(v.outcomes)}\n`);
   } else {
     const p = v.problem!;
     io.stdout.write(`NOT intact: ${p.kind} at row ${p.seq}${p.request_id ? ` (request ${p.request_id})` : ''}\n${p.detail}\n`);
     io.stdout.write(`${v.rows} row${v.rows === 1 ? '' : 's'} before it verif${v.rows === 1 ? 'ies' : 'y'}; the chain up to ${v.rows === 1 ? 'it' : 'them'} ends at ${v.head.seq}:${v.head.hash}\n`);
+    if (v.outcomes) io.stdout.write(`${describeOutcomes(v.outcomes)}\n`);
   }
   return v;
+}
+
+function describeOutcomes(o: OutcomeChainVerdict): string {
+  if (o.intact && o.rows === 0) return 'outcomes intact: none recorded yet';
+  if (o.intact) return `outcomes intact: ${o.rows} outcome${o.rows === 1 ? ' chains' : 's chain'} from the first to ${o.head.seq} (head ${o.head.seq}:${o.head.hash})`;
+  const p = o.problem!;
+  return `outcomes NOT intact: ${p.kind} at outcome ${p.seq}${p.request_id ? ` (request ${p.request_id})` : ''}\n${p.detail}`;
 }
 
 function describeHeadFile(u: HeadFileUse, headGiven: boolean): string {

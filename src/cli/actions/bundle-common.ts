@@ -20,8 +20,8 @@ export function checkNameAndVersion(name: string, version: string): void {
 }
 
 /** The labelled CSV as a table, its classes sorted (or in the order given), with names checked. */
-export async function readTable(ctx: { data: string; label: string; features?: string[]; featureInfo?: string; classes?: string[] }, io: CliIo): Promise<{ table: LabelledTable; sha256: string }> {
-  const csv = await readLabelledCsv(ctx.data, { label: ctx.label, ...(ctx.features ? { features: ctx.features } : {}) });
+export async function readTable(ctx: { data: string; label: string; features?: string[]; ignore?: string[]; featureInfo?: string; classes?: string[] }, io: CliIo): Promise<{ table: LabelledTable; sha256: string }> {
+  const csv = await readLabelledCsv(ctx.data, { label: ctx.label, ...(ctx.features ? { features: ctx.features } : {}), ...(ctx.ignore ? { ignore: ctx.ignore } : {}) });
   let indexed: ReturnType<typeof indexLabels>;
   try {
     indexed = indexLabels(csv.labels, ctx.classes);

@@ -4,12 +4,16 @@ import { join } from 'node:path';
 import { pino } from 'pino';
 import { configSchema } from '../../config/config.js';
 import { DEMO_DATA_DIR, DEMO_MODEL } from '../../demo/paths.js';
+import { INSPECTED_EVERY, recordDemoOutcomes } from '../../demo/outcomes.js';
 import { replayDemoDay } from '../../demo/replay.js';
+import { outcomesReportFor } from '../../reports/outcomes-report.js';
+import type { OutcomesReport } from '../../contracts/outcomes-report.js';
 import { type RunningServer, startServer } from '../../http/server.js';
 import type { DriftReport } from '../../contracts/drift-report.js';
 import type { CliIo } from '../io.js';
 import { asListenError } from '../listen-error.js';
 import { formatReportSummary } from './drift.js';
+import { formatOutcomesSummary } from './outcomes-summary.js';
 
 export interface DemoContext {
   host: string;
@@ -23,6 +27,7 @@ export interface DemoContext {
 export interface DemoResult {
   server: RunningServer;
   report: DriftReport;
+  outcomes: OutcomesReport;
   url: string;
   close(): Promise<void>;
 }
@@ -64,9 +69,16 @@ export async function demoAction(ctx: DemoContext, io: CliIo): Promise<DemoResul
   say('3. the drift report for that day (what the nightly job makes):');
   const report = await services.reports.run(DEMO_MODEL, { from: dayStart, to: today }, 'demo');
   for (const line of formatReportSummary(report).split('\n')) say(`   ${line}`);
+  const inspected = recordDemoOutcomes(services.store.outcomes, DEMO_MODEL, replay.shots);
+  say(`4. the inspection station's results, for every ${INSPECTED_EVERY === 3 ? 'third' : `${INSPECTED_EVERY}th`} shot, 40 minutes after it (as POST /v1/outcomes takes them): ${inspected.recorded} recorded`);
+  say('   the outcomes report for that day (how right the answers were):');
+  const outcomes = outcomesReportFor(services.store.outcomes, DEMO_MODEL, { from: dayStart, to: today }) as OutcomesReport;
+  for (const line of formatOutcomesSummary(outcomes).split('\n')) say(`   ${line}`);
   const url = `${server.url}/v1/drift-reports/${report.id}.html`;
+  const window = `from=${new Date(dayStart).toISOString()}&to=${new Date(today).toISOString()}`;
   say();
   say(`The report, with its charts: ${url}`);
+  say(`How right the answers were, with its charts: ${server.url}/v1/models/${DEMO_MODEL}/outcomes-report.html?${window}`);
   say(`What the stuck sensor looked like to the model: ${server.url}/v1/requests?in_domain=false&limit=3`);
   say(`The API: ${server.url}/api.html`);
   if (ctx.exit) {
@@ -75,5 +87,5 @@ export async function demoAction(ctx: DemoContext, io: CliIo): Promise<DemoResul
     say('Serving until Ctrl-C; the temporary database is removed on exit.');
     process.once('exit', () => rmSync(dir, { recursive: true, force: true }));
   }
-  return { server, report, url, close };
+  return { server, report, outcomes, url, close };
 }

@@ -18,7 +18,9 @@ export interface DriftContext {
   sampleCap: number;
 }
 
-/** The summary a person reads at the terminal: verdict, counts, findings. */
+const pct = (v: number | null): string => (v === null ? '–' : `${(v * 100).toFixed(1)}%`);
+
+/** The summary a person reads at the terminal: verdict, counts, findings, and the outcomes when known. */
 export function formatReportSummary(r: DriftReport): string {
   const o = r.out_of_domain;
   return [
@@ -26,6 +28,9 @@ export function formatReportSummary(r: DriftReport): string {
     `verdict: ${r.verdict}`,
     `scored ${r.counts.scored}, refused ${r.counts.rejected}, out of domain ${r.counts.out_of_domain}${o.rate !== null ? ` (${(o.rate * 100).toFixed(2)}%, expected ${(o.expected_rate * 100).toFixed(2)}%)` : ''}`,
     ...r.findings.map((f, i) => `${i + 1}. ${f}`),
+    ...(r.outcomes
+      ? [`outcomes: ${r.outcomes.labelled} of the ${r.outcomes.scored} answers have one; right ${pct(r.outcomes.accuracy.value)}, in domain ${pct(r.outcomes.by_domain.in_domain.accuracy)}, out of domain ${pct(r.outcomes.by_domain.out_of_domain.accuracy)}`]
+      : []),
   ].join('\n');
 }
 

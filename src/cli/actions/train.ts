@@ -11,6 +11,8 @@ export interface TrainContext extends TrainOptions {
   data: string;
   label: string;
   features?: string[];
+  /** Columns that are neither features nor the label (ids, times), when features are not listed. */
+  ignore?: string[];
   featureInfo?: string;
   name: string;
   version: string;

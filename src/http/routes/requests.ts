@@ -52,7 +52,15 @@ const requests: FastifyPluginAsyncZod = async (app) => {
         ...(q.label !== undefined ? { label: q.label } : {}),
         ...(tags.length > 0 ? { tags } : {}),
       };
-      return withCursor(() => app.store.queryRequests(filter, q.limit, q.cursor));
+      const page = await withCursor(() => app.store.queryRequests(filter, q.limit, q.cursor));
+      const outcomes = app.store.outcomes.current(page.items.map((i) => i.request_id));
+      return {
+        items: page.items.map((i) => {
+          const o = outcomes.get(i.request_id);
+          return { ...i, outcome: o ? { label: o.label, observed_at: o.observed_at === null ? null : new Date(o.observed_at).toISOString() } : null };
+        }),
+        next_cursor: page.next_cursor,
+      };
     },
   );
 };

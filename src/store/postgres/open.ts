@@ -1,3 +1,4 @@
+import { serverOutcomesUnsupported } from './outcomes.js';
 import type { Coordination, Store } from '../contract.js';
 import type { KeysStore } from '../keys-store.js';
 import { maskUrl } from '../location.js';
@@ -75,6 +76,7 @@ export async function openServerStore(url: string, options: ServerStoreOptions):
     drift: createServerDriftStore(pool),
     alerts: createServerAlertsStore(pool),
     keys: createServerKeysStore(pool),
+    outcomes: serverOutcomesUnsupported(),
     retention: createServerRetention(pool),
     coordination: serverCoordination(pool),
     verifyChain: (anchor) => verifyServerChain(pool, anchor),

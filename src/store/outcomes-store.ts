@@ -1,0 +1,239 @@
+import type { Database, Statement } from 'better-sqlite3';
+import { OUTCOME_GENESIS, type OutcomeRow, outcomeHash } from './outcome-chain.js';
+import { type ModelRecord, createModelCache } from './models-table.js';
+
+/** One item of POST /v1/outcomes, checked for shape already. */
+export interface OutcomeInput {
+  /** The answer it judges, by request id ... */
+  requestId?: string;
+  /** ... or by the tags the line sent when scoring: every pair must match, exactly one answer. */
+  tag?: Record<string, string>;
+  /** With a tag: only answers of this model. */
+  model?: string;
+  label: string;
+  /** Unix ms. */
+  observedAt: number | null;
+  source: string | null;
+  /** Record a different label over one recorded before. */
+  replace: boolean;
+}
+
+/** Why an item was refused; the route turns each into a problem. */
+export type OutcomeRefusal =
+  | { reason: 'unknown-request'; detail: string }
+  | { reason: 'unknown-tag'; detail: string }
+  | { reason: 'ambiguous-tag'; detail: string }
+  | { reason: 'not-a-class'; detail: string; classes: string[] }
+  | { reason: 'conflict'; detail: string; recorded: string };
+
+export type OutcomeVerdict =
+  | { requestId: string; status: 'recorded' | 'unchanged' }
+  | ({ requestId: string | null; status: 'refused' } & OutcomeRefusal);
+
+/** The outcome of an answer as GET /v1/requests shows it. */
+export interface CurrentOutcome {
+  label: string;
+  /** Unix ms or null. */
+  observed_at: number | null;
+}
+
+/** A labelled answer as the outcomes report reads it. */
+export interface LabelledRowView {
+  received_at: number;
+  label: string;
+  probabilities: Buffer;
+  margin: number;
+  in_domain: number;
+  review: number;
+  actual: string;
+}
+
+/** A logged answer as export and compare read it: the vector still packed, the outcome if any. */
+export interface LoggedVectorView {
+  request_id: string;
+  received_at: number;
+  model_sha256: string;
+  features: Buffer;
+  label: string;
+  in_domain: number;
+  actual: string | null;
+}
+
+export interface OutcomeChainVerdict {
+  intact: boolean;
+  rows: number;
+  head: { seq: number; hash: string };
+  problem: { kind: 'changed' | 'removed' | 'inserted'; seq: number; request_id: string | null; detail: string } | null;
+}
+
+/** Outcomes: recorded in one transaction per batch, read by the requests listing, the report, export and compare. */
+export interface OutcomesStore {
+  /**
+   * Records a batch in one transaction: each item is recorded, unchanged or refused, in order
+   * (a later item sees an earlier one), and a failure of the transaction records none of them.
+   */
+  record(items: OutcomeInput[], keyLabel: string | null, now?: number): OutcomeVerdict[];
+  /** The newest outcome of each of these answers that has one. */
+  current(requestIds: readonly string[]): Map<string, CurrentOutcome>;
+  /** Answers of a model (every bundle of it) received in [from, to): all, those with an outcome, those whose label was it. */
+  windowOutcomes(model: string, from: number, to: number): { scored: number; labelled: number; right: number };
+  /** Answers of one bundle in [from, to). */
+  countScored(sha256: string, from: number, to: number): number;
+  /** Answers of one bundle in [from, to) that have an outcome, with the newest, oldest first. */
+  labelledRows(sha256: string, from: number, to: number): IterableIterator<LabelledRowView>;
+  /** Answers of a model (every bundle of it) in [from, to), oldest first; only labelled ones with `labelledOnly`. */
+  loggedVectors(model: string, from: number, to: number, labelledOnly: boolean): IterableIterator<LoggedVectorView>;
+  /** The bundle of a model loaded last (as the drift reports take it). */
+  latestModel(name: string): ModelRecord | null;
+  /** A bundle the log holds, by its sha256: its features in vector order and classes in probability order. */
+  describeModel(sha256: string): ModelRecord | null;
+  /** Recomputes the outcome chain from the genesis. */
+  verifyChain(): OutcomeChainVerdict;
+}
+
+const NEWEST = 'SELECT label FROM outcomes AS o WHERE o.request_id = s.request_id ORDER BY o.seq DESC LIMIT 1';
+
+export function createOutcomesStore(db: Database): OutcomesStore {
+  const models = createModelCache(db);
+  const byId = db.prepare('SELECT request_id, model_sha256, model_name FROM scored_requests WHERE request_id = ?');
+  // instr() first: a cheap test of the JSON text that spares json_each on most rows.
+  const tagSql = (pairs: number, withModel: boolean): string =>
+    `SELECT request_id, model_sha256, model_name FROM scored_requests WHERE ${withModel ? 'model_name = ? AND ' : ''}tags IS NOT NULL AND ${Array.from(
+      { length: pairs },
+      () => "instr(tags, ?) > 0 AND EXISTS (SELECT 1 FROM json_each(scored_requests.tags) AS t WHERE t.key = ? AND t.value = ? AND t.type = 'text')",
+    ).join(' AND ')} LIMIT 2`;
+  const tagQueries = new Map<string, Statement>();
+  const newest = db.prepare('SELECT seq, label FROM outcomes WHERE request_id = ? ORDER BY seq DESC LIMIT 1');
+  const head = db.prepare('SELECT seq, chain_hash FROM outcomes ORDER BY seq DESC LIMIT 1');
+  const insert = db.prepare('INSERT INTO outcomes (seq, request_id, label, observed_at, source, recorded_at, key_label, replaces, chain_hash) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?)');
+  const latest = db.prepare('SELECT sha256 FROM models WHERE name = ? ORDER BY last_loaded_at DESC, rowid DESC LIMIT 1');
+  const windowOutcomes = db.prepare(
+    `SELECT COUNT(*) AS scored, COUNT(actual) AS labelled, COALESCE(SUM(actual = label), 0) AS right FROM
+     (SELECT s.label, (${NEWEST}) AS actual FROM scored_requests AS s WHERE s.model_name = ? AND s.received_at >= ? AND s.received_at < ?)`,
+  );
+  const countScored = db.prepare('SELECT COUNT(*) AS n FROM scored_requests WHERE model_sha256 = ? AND received_at >= ? AND received_at < ?');
+  const labelled = db.prepare(
+    `SELECT * FROM (SELECT s.received_at, s.seq, s.label, s.probabilities, s.margin, s.in_domain, s.review, (${NEWEST}) AS actual
+     FROM scored_requests AS s WHERE s.model_sha256 = ? AND s.received_at >= ? AND s.received_at < ?) WHERE actual IS NOT NULL ORDER BY received_at, seq`,
+  );
+  const vectors = (labelledOnly: boolean): Statement =>
+    db.prepare(
+      `SELECT * FROM (SELECT s.request_id, s.received_at, s.seq, s.model_sha256, s.features, s.label, s.in_domain, (${NEWEST}) AS actual
+       FROM scored_requests AS s WHERE s.model_name = ? AND s.received_at >= ? AND s.received_at < ?)${labelledOnly ? ' WHERE actual IS NOT NULL' : ''} ORDER BY received_at, seq`,
+    );
+  const allVectors = vectors(false);
+  const labelledVectors = vectors(true);
+
+  type Target = { request_id: string; model_sha256: string; model_name: string };
+  const find = (item: OutcomeInput): Target | OutcomeRefusal => {
+    if (item.requestId !== undefined) {
+      const t = byId.get(item.requestId) as Target | undefined;
+      return t ?? { reason: 'unknown-request', detail: `no logged answer has the request id ${JSON.stringify(item.requestId)}` };
+    }
+    const pairs = Object.entries(item.tag ?? {}).sort(([a], [b]) => (a < b ? -1 : 1));
+    const key = `${pairs.length}:${item.model !== undefined}`;
+    let q = tagQueries.get(key);
+    if (!q) tagQueries.set(key, (q = db.prepare(tagSql(pairs.length, item.model !== undefined))));
+    const args: unknown[] = item.model !== undefined ? [item.model] : [];
+    for (const [k, v] of pairs) args.push(JSON.stringify(v), k, v);
+    const hits = q.all(...args) as Target[];
+    const which = `${pairs.map(([k, v]) => `${k}=${JSON.stringify(v)}`).join(', ')}${item.model !== undefined ? ` of model ${JSON.stringify(item.model)}` : ''}`;
+    if (hits.length === 0) return { reason: 'unknown-tag', detail: `no logged answer carries the tag ${which}` };
+    if (hits.length > 1) return { reason: 'ambiguous-tag', detail: `more than one logged answer carries the tag ${which}; send the request id instead` };
+    return hits[0] as Target;
+  };
+
+  const recordAll = db.transaction((items: OutcomeInput[], keyLabel: string | null, now: number): OutcomeVerdict[] => {
+    const top = head.get() as { seq: number; chain_hash: Buffer } | undefined;
+    let at: { seq: number; hash: Buffer } = { seq: top?.seq ?? 0, hash: top?.chain_hash ?? OUTCOME_GENESIS };
+    return items.map((item): OutcomeVerdict => {
+      const target = find(item);
+      if ('reason' in target) return { requestId: item.requestId ?? null, status: 'refused', ...target };
+      const classes = models(target.model_sha256)?.classes ?? [];
+      if (!classes.includes(item.label)) {
+        return {
+          requestId: target.request_id,
+          status: 'refused',
+          reason: 'not-a-class',
+          detail: `${JSON.stringify(item.label)} is not a class of ${target.model_name}, whose classes are ${classes.join(', ')}`,
+          classes,
+        };
+      }
+      const before = newest.get(target.request_id) as { seq: number; label: string } | undefined;
+      if (before?.label === item.label) return { requestId: target.request_id, status: 'unchanged' };
+      if (before && !item.replace) {
+        return {
+          requestId: target.request_id,
+          status: 'refused',
+          reason: 'conflict',
+          detail: `request ${target.request_id} already has the outcome ${JSON.stringify(before.label)}; send "replace": true to record ${JSON.stringify(item.label)} over it`,
+          recorded: before.label,
+        };
+      }
+      const row: OutcomeRow = {
+        seq: at.seq + 1,
+        request_id: target.request_id,
+        label: item.label,
+        observed_at: item.observedAt,
+        source: item.source,
+        recorded_at: now,
+        key_label: keyLabel,
+        replaces: before?.seq ?? null,
+      };
+      const hash = outcomeHash(at.hash, row);
+      insert.run(row.seq, row.request_id, row.label, row.observed_at, row.source, row.recorded_at, row.key_label, row.replaces, hash);
+      at = { seq: row.seq, hash };
+      return { requestId: target.request_id, status: 'recorded' };
+    });
+  });
+
+  return {
+    // IMMEDIATE: the write lock before the chain head is read, as for the scored rows.
+    record: (items, keyLabel, now = Date.now()) => recordAll.immediate(items, keyLabel, now),
+    current(requestIds) {
+      const out = new Map<string, CurrentOutcome>();
+      if (requestIds.length === 0) return out;
+      // One query per page (at most 1,000 ids, under SQLite's 32,766 parameters).
+      const rows = db
+        .prepare(
+          `SELECT o.request_id, o.label, o.observed_at FROM outcomes AS o
+           WHERE o.request_id IN (${requestIds.map(() => '?').join(',')}) AND o.seq = (SELECT MAX(seq) FROM outcomes AS p WHERE p.request_id = o.request_id)`,
+        )
+        .all(...requestIds) as Array<{ request_id: string; label: string; observed_at: number | null }>;
+      for (const r of rows) out.set(r.request_id, { label: r.label, observed_at: r.observed_at });
+      return out;
+    },
+    windowOutcomes: (model, from, to) => windowOutcomes.get(model, from, to) as { scored: number; labelled: number; right: number },
+    countScored: (sha256, from, to) => (countScored.get(sha256, from, to) as { n: number }).n,
+    labelledRows: (sha256, from, to) => labelled.iterate(sha256, from, to) as IterableIterator<LabelledRowView>,
+    loggedVectors: (model, from, to, labelledOnly) => (labelledOnly ? labelledVectors : allVectors).iterate(model, from, to) as IterableIterator<LoggedVectorView>,
+    latestModel(name) {
+      const m = latest.get(name) as { sha256: string } | undefined;
+      return m ? models(m.sha256) : null;
+    },
+    describeModel: (sha256) => models(sha256),
+    verifyChain: () => verifyOutcomeChain(db),
+  };
+}
+
+/** Recomputes the outcome chain from the genesis and names the first row changed, removed or put in. */
+export function verifyOutcomeChain(db: Database): OutcomeChainVerdict {
+  let prev: Buffer = OUTCOME_GENESIS;
+  let expect = 1;
+  let rows = 0;
+  const verdict = (problem: OutcomeChainVerdict['problem']): OutcomeChainVerdict => ({ intact: problem === null, rows, head: { seq: expect - 1, hash: prev.toString('hex') }, problem });
+  for (const row of db.prepare('SELECT * FROM outcomes ORDER BY seq').iterate() as IterableIterator<OutcomeRow & { chain_hash: Buffer }>) {
+    if (row.seq > expect) {
+      const gap = row.seq - 1 === expect ? `outcome ${expect} is missing` : `outcomes ${expect} to ${row.seq - 1} are missing`;
+      return verdict({ kind: 'removed', seq: expect, request_id: null, detail: `${gap}: the outcome chain goes from ${expect - 1} to ${row.seq}` });
+    }
+    if (row.seq < expect) return verdict({ kind: 'inserted', seq: row.seq, request_id: row.request_id, detail: `outcome ${row.seq} lies before the first outcome` });
+    if (!outcomeHash(prev, row).equals(row.chain_hash)) {
+      return verdict({ kind: 'changed', seq: row.seq, request_id: row.request_id, detail: `outcome ${row.seq} (request ${row.request_id}) does not hash to its stored chain hash: it was changed` });
+    }
+    prev = row.chain_hash;
+    expect++;
+    rows++;
+  }
+  return verdict(null);
+}
