@@ -31,18 +31,18 @@ afterAll(async () => {
 const state = (rule: string) => svc.app.alerting.evaluator.states().find((s) => s.rule === rule);
 
 describe('alert signals on outcomes', () => {
-  it('before any outcome: no accuracy to judge, and a labelled rate of 0 raises its rule', () => {
-    svc.app.alerting.tick(DAY_END);
+  it('before any outcome: no accuracy to judge, and a labelled rate of 0 raises its rule', async () => {
+    await svc.app.alerting.tick(DAY_END);
     expect(state('accuracy-low')).toMatchObject({ phase: 'quiet', value: null, requests: 0 });
     expect(state('few-outcomes')).toMatchObject({ phase: 'raised', value: 0, requests: 1999 });
   });
 
-  it('once a third of the shots have outcomes: accuracy below 0.9 raises, min_labelled holds a thin count back, and the labelled rate is the share with an outcome', () => {
+  it('once a third of the shots have outcomes: accuracy below 0.9 raises, min_labelled holds a thin count back, and the labelled rate is the share with an outcome', async () => {
     recordDemoOutcomes(svc.store.outcomes, 'moulding-quality', day.shots);
     // counted here from the replay's own record of each shot, not from the store
     const inspected = day.shots.filter((_, i) => i % 3 === 2);
     const right = inspected.filter((s) => s.answered === s.outcome).length;
-    svc.app.alerting.tick(DAY_END);
+    await svc.app.alerting.tick(DAY_END);
     expect(state('accuracy-low')).toMatchObject({ phase: 'raised', requests: inspected.length });
     expect(state('accuracy-low')?.value).toBeCloseTo(right / inspected.length, 14);
     expect(state('accuracy-thin')).toMatchObject({ phase: 'quiet', value: null, requests: inspected.length });
