@@ -10,6 +10,23 @@ export interface PathTarget {
 }
 
 /**
+ * exp(z_k / T - max_k z_k / T) of one row of one member's logits into out[at..], the softmax
+ * before its division; returns the shift and the sum the caller divides by.
+ */
+function expsInto(z: Float64Array, off: number, classes: number, invT: number, out: Float64Array, at: number): { zmax: number; sum: number } {
+  let zmax = -Infinity;
+  for (let k = 0; k < classes; k++) if ((z[off + k] as number) > zmax) zmax = z[off + k] as number;
+  zmax *= invT;
+  let sum = 0;
+  for (let k = 0; k < classes; k++) {
+    const e = Math.exp((z[off + k] as number) * invT - zmax);
+    out[at + k] = e;
+    sum += e;
+  }
+  return { zmax, sum };
+}
+
+/**
  * log p_c of the served answer: p = (1/M) sum_m softmax(z_m / T), the mean of the members'
  * calibrated probabilities (src/core/ensemble.ts). Computed in logs throughout, so that a class
  * whose probability underflows at the baseline still has a finite log:
@@ -32,15 +49,7 @@ export function servedLogProbability(classIndex: number, classes: number, temper
     let max = -Infinity;
     for (let m = 0; m < M; m++) {
       const z = outputs[m] as Float64Array;
-      let zmax = -Infinity;
-      for (let k = 0; k < classes; k++) if ((z[off + k] as number) > zmax) zmax = z[off + k] as number;
-      zmax *= invT;
-      let sum = 0;
-      for (let k = 0; k < classes; k++) {
-        const e = Math.exp((z[off + k] as number) * invT - zmax);
-        probs[m * classes + k] = e;
-        sum += e;
-      }
+      const { zmax, sum } = expsInto(z, off, classes, invT, probs, m * classes);
       for (let k = 0; k < classes; k++) probs[m * classes + k] = (probs[m * classes + k] as number) / sum;
       const l = (z[off + classIndex] as number) * invT - zmax - Math.log(sum);
       logP[m] = l;
@@ -80,16 +89,7 @@ export function servedLogProbability(classIndex: number, classes: number, temper
       // where every member's p_c underflows (beyond e^-650) are they taken in logs instead.
       let total = 0;
       for (let m = 0; m < M; m++) {
-        const z = outputs[m] as Float64Array;
-        let zmax = -Infinity;
-        for (let k = 0; k < classes; k++) if ((z[off + k] as number) > zmax) zmax = z[off + k] as number;
-        zmax *= invT;
-        let sum = 0;
-        for (let k = 0; k < classes; k++) {
-          const e = Math.exp((z[off + k] as number) * invT - zmax);
-          probs[m * classes + k] = e;
-          sum += e;
-        }
+        const { sum } = expsInto(outputs[m] as Float64Array, off, classes, invT, probs, m * classes);
         const inv = 1 / sum;
         for (let k = 0; k < classes; k++) probs[m * classes + k] = (probs[m * classes + k] as number) * inv;
         total += probs[m * classes + classIndex] as number;
