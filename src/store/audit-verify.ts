@@ -11,8 +11,8 @@ export interface ChainProblem {
 export interface ChainVerdict {
   intact: boolean;
   rows: number;
-  /** Where verification started: after the genesis, or after a retention checkpoint. */
-  from: { seq: number; checkpoint: boolean };
+  /** Where verification started: after the genesis, or after a retention cut. */
+  from: { seq: number; cut: boolean };
   /** The last row verified, its seq and chain hash (hex): record it elsewhere to anchor the log. */
   head: { seq: number; hash: string };
   /** The head recorded earlier, when given: found and equal, or pruned by retention before this check (not checked). */
@@ -38,7 +38,7 @@ export interface ChainWalk {
 
 /**
  * The checks of verifyChain over rows given one at a time. `cp` is the newest retention
- * checkpoint; `rowAt(seq)` looks one row up, to tell a row put in from one changed (null when
+ * cut; `rowAt(seq)` looks one row up, to tell a row put in from one changed (null when
  * it cannot say, which then reports the row as changed).
  */
 export function startChainWalk(cp: { seq: number; chain_hash: Buffer } | undefined, rowAt: (seq: number) => StoredRow | undefined, anchor?: ChainAnchor): ChainWalk {
@@ -50,7 +50,7 @@ export function startChainWalk(cp: { seq: number; chain_hash: Buffer } | undefin
   const verdict = (problem: ChainProblem | null): ChainVerdict => ({
     intact: problem === null,
     rows,
-    from: { seq: cp?.seq ?? 0, checkpoint: cp !== undefined },
+    from: { seq: cp?.seq ?? 0, cut: cp !== undefined },
     head: { seq: expect - 1, hash: prev.toString('hex') },
     anchor: anchorState,
     problem,
@@ -58,7 +58,7 @@ export function startChainWalk(cp: { seq: number; chain_hash: Buffer } | undefin
   return {
     push(row) {
       if (row.seq < expect) {
-        return verdict({ kind: 'inserted', seq: row.seq, request_id: row.request_id, detail: `row ${row.seq} lies at or before the retention checkpoint at ${expect - 1}, where every row was removed` });
+        return verdict({ kind: 'inserted', seq: row.seq, request_id: row.request_id, detail: `row ${row.seq} lies at or before the retention cut at ${expect - 1}, where every row was removed` });
       }
       if (row.seq > expect) {
         const gap = row.seq - 1 === expect ? `row ${expect} is missing` : `rows ${expect} to ${row.seq - 1} are missing`;
@@ -91,10 +91,10 @@ export function startChainWalk(cp: { seq: number; chain_hash: Buffer } | undefin
         if (anchor.seq >= expect) {
           return verdict({ kind: 'removed', seq: expect, request_id: null, detail: `the log ends at row ${expect - 1}, but row ${anchor.seq} was recorded: rows from ${expect} on were removed` });
         }
-        // The anchored row was pruned by retention: only a checkpoint at exactly that row can be compared.
+        // The anchored row was pruned by retention: only a retention cut at exactly that row can be compared.
         if (cp && anchor.seq === cp.seq) {
           if (cp.chain_hash.toString('hex') !== anchor.hash.toLowerCase()) {
-            return verdict({ kind: 'anchor', seq: anchor.seq, request_id: null, detail: `the checkpoint at row ${anchor.seq} has chain hash ${cp.chain_hash.toString('hex')}, not the ${anchor.hash} recorded` });
+            return verdict({ kind: 'anchor', seq: anchor.seq, request_id: null, detail: `the retention cut at row ${anchor.seq} has chain hash ${cp.chain_hash.toString('hex')}, not the ${anchor.hash} recorded` });
           }
           anchorState = 'checked';
         } else anchorState = 'pruned';
@@ -106,12 +106,12 @@ export function startChainWalk(cp: { seq: number; chain_hash: Buffer } | undefin
 
 /**
  * Recomputes the hash chain of scored_requests from the genesis, or from the newest retention
- * checkpoint, and names the first row that was changed, removed or inserted. Streams the rows.
+ * cut, and names the first row that was changed, removed or inserted. Streams the rows.
  * Without an anchor, rows cut from the end, or a chain rewritten whole, cannot be told from a
  * shorter log: give the head recorded earlier as `anchor` to check for that too.
  */
 export function verifyChain(db: Database, anchor?: ChainAnchor): ChainVerdict {
-  const cp = db.prepare('SELECT seq, chain_hash FROM chain_checkpoints ORDER BY seq DESC LIMIT 1').get() as { seq: number; chain_hash: Buffer } | undefined;
+  const cp = db.prepare('SELECT seq, chain_hash FROM retention_cuts ORDER BY seq DESC LIMIT 1').get() as { seq: number; chain_hash: Buffer } | undefined;
   const bySeq = db.prepare('SELECT * FROM scored_requests WHERE seq = ?');
   const walk = startChainWalk(cp, (seq) => bySeq.get(seq) as StoredRow | undefined, anchor);
   for (const row of db.prepare('SELECT * FROM scored_requests ORDER BY seq').iterate() as IterableIterator<StoredRow>) {
@@ -127,7 +127,7 @@ export type AnchorCheck = { outcome: 'held' | 'pruned' } | { outcome: 'removed' 
 /**
  * Checks one recorded head against the log without walking the chain (the start-up check of the
  * head file, and audit verify's): the row must be there with that hash, or lie behind a retention
- * checkpoint. Whether the rows up to it chain is the walk's business (verifyChain).
+ * cut. Whether the rows up to it chain is the walk's business (verifyChain).
  */
 export function checkAnchor(db: Database, anchor: ChainAnchor): AnchorCheck {
   const want = anchor.hash.toLowerCase();
@@ -136,10 +136,10 @@ export function checkAnchor(db: Database, anchor: ChainAnchor): AnchorCheck {
     const hash = row.chain_hash?.toString('hex') ?? 'none';
     return hash === want ? { outcome: 'held' } : { outcome: 'different', detail: `row ${anchor.seq} has chain hash ${hash}, not the ${anchor.hash} recorded: the log was rewritten up to there` };
   }
-  const cp = db.prepare('SELECT seq, chain_hash FROM chain_checkpoints ORDER BY seq DESC LIMIT 1').get() as { seq: number; chain_hash: Buffer } | undefined;
+  const cp = db.prepare('SELECT seq, chain_hash FROM retention_cuts ORDER BY seq DESC LIMIT 1').get() as { seq: number; chain_hash: Buffer } | undefined;
   if (cp && anchor.seq <= cp.seq) {
     if (anchor.seq === cp.seq && cp.chain_hash.toString('hex') !== want) {
-      return { outcome: 'different', detail: `the retention checkpoint at row ${cp.seq} has chain hash ${cp.chain_hash.toString('hex')}, not the ${anchor.hash} recorded` };
+      return { outcome: 'different', detail: `the retention cut at row ${cp.seq} has chain hash ${cp.chain_hash.toString('hex')}, not the ${anchor.hash} recorded` };
     }
     return { outcome: 'pruned' };
   }

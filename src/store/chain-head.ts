@@ -8,12 +8,12 @@ export interface ChainHead {
 
 /**
  * Reads where the next row joins the chain: after the newest row, else after the newest retention
- * checkpoint (every row was pruned), else at the genesis. Read inside the writing transaction, it
+ * cut (every row was pruned), else at the genesis. Read inside the writing transaction, it
  * is right whatever else wrote or pruned since.
  */
 export function createChainHeadReader(db: Database): () => ChainHead {
   const lastRow = db.prepare('SELECT seq, chain_hash FROM scored_requests ORDER BY seq DESC LIMIT 1');
-  const lastCheckpoint = db.prepare('SELECT seq, chain_hash FROM chain_checkpoints ORDER BY seq DESC LIMIT 1');
+  const lastCheckpoint = db.prepare('SELECT seq, chain_hash FROM retention_cuts ORDER BY seq DESC LIMIT 1');
   return () => {
     const last = lastRow.get() as { seq: number; chain_hash: Buffer | null } | undefined;
     if (last?.chain_hash) return { seq: last.seq, hash: last.chain_hash };

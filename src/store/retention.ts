@@ -12,7 +12,7 @@ export interface Retention {
   /**
    * Removes at most `maxRows` of the oldest rows received before `cutoff` (Unix ms), in one short
    * transaction. Scored rows go only as a prefix in seq order, so that the rows kept still chain
-   * from a checkpoint: a checkpoint row records the chain hash of the last row removed.
+   * from a retention cut: a cut records the chain hash of the last row removed.
    */
   pruneStep(cutoff: number, maxRows: number, now?: number): Awaitable<PruneStep>;
 }
@@ -24,7 +24,7 @@ export function createRetention(db: Database): Sync<Retention> {
     'SELECT seq, chain_hash FROM (SELECT seq, chain_hash FROM scored_requests WHERE seq < ? ORDER BY seq LIMIT ?) ORDER BY seq DESC LIMIT 1',
   );
   const removeScored = db.prepare('DELETE FROM scored_requests WHERE seq <= ?');
-  const checkpoint = db.prepare('INSERT INTO chain_checkpoints (seq, chain_hash, created_at, rows_removed) VALUES (?, ?, ?, ?)');
+  const cut = db.prepare('INSERT INTO retention_cuts (seq, chain_hash, created_at, rows_removed) VALUES (?, ?, ?, ?)');
   const removeRejected = db.prepare('DELETE FROM rejected_requests WHERE seq IN (SELECT seq FROM rejected_requests WHERE received_at < ? ORDER BY seq LIMIT ?)');
   // Only deliveries that are finished; pending ones are kept whatever their age.
   const removeOutbox = db.prepare("DELETE FROM outbox WHERE seq IN (SELECT seq FROM outbox WHERE status <> 'pending' AND created_at < ? LIMIT ?)");
@@ -36,7 +36,7 @@ export function createRetention(db: Database): Sync<Retention> {
     if (last) {
       if (!last.chain_hash) throw new Error(`row ${last.seq} is not sealed into the hash chain; nothing was pruned`);
       scored = removeScored.run(last.seq).changes;
-      checkpoint.run(last.seq, last.chain_hash, now, scored);
+      cut.run(last.seq, last.chain_hash, now, scored);
     }
     const rejected = removeRejected.run(cutoff, maxRows).changes;
     const outbox = removeOutbox.run(cutoff, maxRows).changes;

@@ -43,8 +43,8 @@ describe.skipIf(serverUrl === null)('plumbline migrate-log', () => {
     const url = await freshDatabase();
     const t = io();
     const out = await migrateLogAction({ from: file, to: url }, t);
-    expect(out.rows).toMatchObject({ scored_requests: 2000, chain_checkpoints: 1, api_keys: 1, drift_reports: 1, models: 1 });
-    expect(out.verdict).toMatchObject({ intact: true, rows: 2000, from: { seq: 500, checkpoint: true }, head: before.head });
+    expect(out.rows).toMatchObject({ scored_requests: 2000, retention_cuts: 1, api_keys: 1, drift_reports: 1, models: 1 });
+    expect(out.verdict).toMatchObject({ intact: true, rows: 2000, from: { seq: 500, cut: true }, head: before.head });
     expect(t.stdout.text()).toContain(`head ${before.head.seq}:${before.head.hash}`);
     expect(t.stdout.text()).not.toContain(new URL(url).password || 'no-password');
     // a replica on the URL chains on after the copied head

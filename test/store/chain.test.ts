@@ -104,7 +104,7 @@ describe('hash chain of the audit log', () => {
     }
     expect(rows[0]!.key_label).toBe('line-4 app');
     const v = store.verifyChain();
-    expect(v).toMatchObject({ intact: true, rows: 20, from: { seq: 0, checkpoint: false }, problem: null });
+    expect(v).toMatchObject({ intact: true, rows: 20, from: { seq: 0, cut: false }, problem: null });
     expect(v.head).toEqual({ seq: 20, hash: prev.toString('hex') });
   });
 
@@ -195,13 +195,13 @@ describe('retention', () => {
     expect(pruned).toMatchObject({ scored: 12, steps: 3 });
     const db = new BetterSqlite3(file, { readonly: true });
     expect(db.prepare('SELECT MIN(seq) AS first, COUNT(*) AS n FROM scored_requests').get()).toEqual({ first: 13, n: 8 });
-    expect(db.prepare('SELECT seq, rows_removed FROM chain_checkpoints ORDER BY seq').all()).toEqual([
+    expect(db.prepare('SELECT seq, rows_removed FROM retention_cuts ORDER BY seq').all()).toEqual([
       { seq: 5, rows_removed: 5 },
       { seq: 10, rows_removed: 5 },
       { seq: 12, rows_removed: 2 },
     ]);
     db.close();
-    expect(store.verifyChain(anchor)).toMatchObject({ intact: true, rows: 8, from: { seq: 12, checkpoint: true }, head: anchor, anchor: 'checked' });
+    expect(store.verifyChain(anchor)).toMatchObject({ intact: true, rows: 8, from: { seq: 12, cut: true }, head: anchor, anchor: 'checked' });
     // a head recorded at a row retention has removed cannot be checked, and the verdict says so
     expect(store.verifyChain({ seq: 3, hash: 'ab'.repeat(32) })).toMatchObject({ intact: true, anchor: 'pruned' });
     expect(store.verifyChain({ seq: 12, hash: 'ab'.repeat(32) }).problem).toMatchObject({ kind: 'anchor', seq: 12 });

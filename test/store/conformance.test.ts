@@ -210,10 +210,10 @@ for (const kind of kinds) {
       await s.log.append(Array.from({ length: 10 }, (_, i) => row(i)));
       const step = await s.retention.pruneStep(T0 + 4 * 60_000, 1000, T0 + 1);
       expect(step.scored).toBe(4);
-      expect(await s.verifyChain()).toMatchObject({ intact: true, rows: 6, from: { seq: 4, checkpoint: true } });
+      expect(await s.verifyChain()).toMatchObject({ intact: true, rows: 6, from: { seq: 4, cut: true } });
       await s.retention.pruneStep(T0 + 99 * 60_000, 1000, T0 + 2);
       await s.log.append([row(10), row(11)]);
-      expect(await s.verifyChain()).toMatchObject({ intact: true, rows: 2, from: { seq: 10, checkpoint: true }, head: { seq: 12 } });
+      expect(await s.verifyChain()).toMatchObject({ intact: true, rows: 2, from: { seq: 10, cut: true }, head: { seq: 12 } });
     });
 
     it('says it is writable, and runs exclusive work', async () => {

@@ -65,4 +65,14 @@ describe('migrations', () => {
     expect(() => migrate(db, [{ ...mig(1, 'first', 'SELECT 1;'), sha256: 'changed' }], 'x.db')).toThrow(/migration 001_first was applied, but its file has changed since/);
     db.close();
   });
+  it('keep the retention cuts a log wrote before migration 010 renamed their table', () => {
+    const db = new BetterSqlite3(':memory:');
+    const all = readMigrations();
+    migrate(db, all.filter((m) => m.version < 10), 'old.db');
+    db.prepare('INSERT INTO chain_checkpoints (seq, chain_hash, created_at, rows_removed) VALUES (?, ?, ?, ?)').run(12, Buffer.alloc(32, 7), 1, 12);
+    expect(migrate(db, all, 'old.db').applied).toContain(10);
+    expect(db.prepare('SELECT seq, hex(chain_hash) AS hash, rows_removed FROM retention_cuts').all()).toEqual([{ seq: 12, hash: '07'.repeat(32), rows_removed: 12 }]);
+    expect(db.prepare("SELECT name FROM sqlite_master WHERE name = 'chain_checkpoints'").get()).toBeUndefined();
+    db.close();
+  });
 });

@@ -33,7 +33,7 @@ export type AuditVerdict = ChainVerdict & { head_file: HeadFileUse; outcomes: Ou
  * `plumbline audit verify`: recomputes the hash chain of the audit log, read-only, and says
  * whether it is intact; exit 0 only when it is. Rows cut from the end leave a chain that verifies,
  * so it also checks that the log still holds the head the serving process keeps beside the
- * database (written at each checkpoint), and with --head one recorded elsewhere.
+ * database (written after each WAL checkpoint), and with --head one recorded elsewhere.
  */
 export function auditVerifyAction(ctx: { db: string; head?: ChainAnchor; json: boolean; headFile?: boolean }, io: CliIo): AuditVerdict {
   if (!existsSync(ctx.db)) throw new UsageError(`--db ${ctx.db}: no such file`);
@@ -83,10 +83,10 @@ function printVerdict(v: AuditVerdict, ctx: { head?: ChainAnchor; json: boolean 
   if (ctx.json) {
     io.stdout.write(`${JSON.stringify(v, null, 2)}\n`);
   } else if (v.intact || v.problem === null) {
-    const from = v.from.checkpoint ? `the retention checkpoint after row ${v.from.seq}` : 'the first row';
+    const from = v.from.cut ? `the retention cut after row ${v.from.seq}` : 'the first row';
     const through = v.anchor === 'checked' ? `, through the recorded head ${ctx.head?.seq}` : '';
     io.stdout.write(`intact: ${v.rows} row${v.rows === 1 ? ' chains' : 's chain'} from ${from} to row ${v.head.seq}${through}\n`);
-    if (v.anchor === 'pruned') io.stdout.write(`the recorded head ${ctx.head?.seq} lies before the retention checkpoint at ${v.from.seq}: retention removed it, so it was not checked\n`);
+    if (v.anchor === 'pruned') io.stdout.write(`the recorded head ${ctx.head?.seq} lies before the retention cut at ${v.from.seq}: retention removed it, so it was not checked\n`);
     if (use.path !== '') io.stdout.write(`${describeHeadFile(use, v.anchor !== null)}\n`);
     io.stdout.write(`head ${v.head.seq}:${v.head.hash}\n`);
     if (v.outcomes) io.stdout.write(`${describeOutcomes(v.outcomes)}\n`);
@@ -108,7 +108,7 @@ function describeOutcomes(o: OutcomeChainVerdict): string {
 
 function describeHeadFile(u: HeadFileUse, headGiven: boolean): string {
   if (u.state === 'held') return `the log holds the head kept in ${u.path} (row ${u.seq}, written ${u.written_at})`;
-  if (u.state === 'pruned') return `the head kept in ${u.path} (row ${u.seq}) lies before the retention checkpoint: retention removed it, so it was not compared`;
+  if (u.state === 'pruned') return `the head kept in ${u.path} (row ${u.seq}) lies before the retention cut: retention removed it, so it was not compared`;
   if (u.state === 'ignored') return `the head file ${u.path} was not read (--no-head-file)`;
   if (headGiven) return `no head file at ${u.path}; the --head given stands in for it`;
   return `no head file at ${u.path}: rows cut from the end could not be told (serving the database keeps one; or give --head)`;

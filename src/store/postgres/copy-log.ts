@@ -27,7 +27,7 @@ export interface CopyOutcome {
 const CHUNK = 1000;
 
 /** The tables copied as they are, in an order their references allow; scored_requests apart. */
-const TABLES = ['models', 'api_keys', 'chain_checkpoints', 'rejected_requests', 'drift_reports', 'alerts', 'outbox'] as const;
+const TABLES = ['models', 'api_keys', 'retention_cuts', 'rejected_requests', 'drift_reports', 'alerts', 'outbox'] as const;
 /** Tables whose seq the server numbers from a sequence: it goes on after the rows copied. */
 const SEQUENCED = ['rejected_requests', 'drift_reports', 'alerts', 'outbox'] as const;
 
@@ -95,7 +95,7 @@ export async function copySqliteLog(file: string, url: string, onProgress: (scor
           } else rows[table] = await insertRows(client, table, present, source);
         }
         // The scored rows, in seq order, each checked against the chain before it is written.
-        const cp = db.prepare('SELECT seq, chain_hash FROM chain_checkpoints ORDER BY seq DESC LIMIT 1').get() as { seq: number; chain_hash: Buffer } | undefined;
+        const cp = db.prepare('SELECT seq, chain_hash FROM retention_cuts ORDER BY seq DESC LIMIT 1').get() as { seq: number; chain_hash: Buffer } | undefined;
         const bySeq = db.prepare('SELECT * FROM scored_requests WHERE seq = ?');
         const walk = startChainWalk(cp, (seq) => bySeq.get(seq) as StoredRow | undefined);
         const columns = [...(await serverColumns(client, 'scored_requests'))];

@@ -5,10 +5,10 @@ import type { Pool } from './pool.js';
 /**
  * audit verify on the server: the same walk and the same verdicts as on SQLite (audit-verify.ts),
  * over the rows read in seq order from a server-side cursor. The one chain of every replica is
- * checked from the genesis, or from the newest retention checkpoint, to the newest row.
+ * checked from the genesis, or from the newest retention cut, to the newest row.
  */
 export async function verifyServerChain(pool: Pool, anchor?: ChainAnchor): Promise<ChainVerdict> {
-  const cp = (await pool.query<{ seq: number; chain_hash: Buffer }>('SELECT seq, chain_hash FROM chain_checkpoints ORDER BY seq DESC LIMIT 1')).rows[0];
+  const cp = (await pool.query<{ seq: number; chain_hash: Buffer }>('SELECT seq, chain_hash FROM retention_cuts ORDER BY seq DESC LIMIT 1')).rows[0];
   let page: StoredRow[] = [];
   let index = 0;
   let lookahead: StoredRow | undefined;
