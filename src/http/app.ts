@@ -4,6 +4,7 @@ import { type ZodTypeProvider, jsonSchemaTransform, jsonSchemaTransformObject, s
 import { ProblemError } from '../errors.js';
 import { uuidv7 } from '../ids.js';
 import { parseJsonBody } from './json-body.js';
+import { lazyRequestLogger } from './request-logger.js';
 import { VERSION } from '../version.js';
 import auth from './plugins/auth.js';
 import guards from './plugins/guards.js';
@@ -75,6 +76,8 @@ export async function buildApp(runtime: Runtime, options: AppOptions = {}): Prom
     requestIdHeader: false,
     // One line per request from the onResponse hook below, not fastify's two.
     logController: new LogController({ disableRequestLogging: true, requestIdLogLabel: 'req_id' }),
+    // Each request's logger is made when it first writes a line (request-logger.ts).
+    ...(logger ? { childLoggerFactory: lazyRequestLogger } : {}),
     requestTimeout: 30_000,
     // Model names are at most 64 characters; a longer parameter is a 404 from our handler.
     routerOptions: { maxParamLength: 256 },
