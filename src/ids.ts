@@ -3,8 +3,8 @@ import { randomFillSync } from 'node:crypto';
 let lastMs = -1;
 let counter = 0;
 
-// Random bytes are drawn from the CSPRNG 4 KiB at a time and handed out 10 or 2 at a time: one
-// call per ~400 ids instead of one per id.
+// Random bytes are drawn from the CSPRNG 4 KiB at a time and handed out 8 or 2 at a time: one
+// call per ~500 ids instead of one per id.
 const POOL = new Uint8Array(4096);
 let poolAt = POOL.length;
 function randomBytes(n: number): Uint8Array {
@@ -48,20 +48,16 @@ export function uuidv7At(ms: number): string {
   return format(Math.round(ms), (((r[0] as number) << 8) | (r[1] as number)) & 0xfff);
 }
 
+const HEX = Array.from({ length: 256 }, (_, i) => i.toString(16).padStart(2, '0'));
+
+/** The id's text from its fields, two hex digits a byte from a table: no byte array, no Buffer. */
 function format(ms: number, randA: number): string {
-  const random = randomBytes(10);
-  const b = new Uint8Array(16);
-  let t = ms;
-  for (let i = 5; i >= 0; i--) {
-    b[i] = t % 256;
-    t = Math.floor(t / 256);
-  }
-  b[6] = 0x70 | (randA >>> 8);
-  b[7] = randA & 0xff;
-  b[8] = 0x80 | ((random[0] as number) & 0x3f);
-  b.set(random.subarray(1, 8), 9);
-  const hex = Buffer.from(b).toString('hex');
-  return `${hex.slice(0, 8)}-${hex.slice(8, 12)}-${hex.slice(12, 16)}-${hex.slice(16, 20)}-${hex.slice(20)}`;
+  const r = randomBytes(8);
+  const t = ms.toString(16).padStart(12, '0');
+  const h = (i: number): string => HEX[r[i] as number] as string;
+  // version 7 in the high nibble of byte 6, then the 12 bits of rand_a; the variant (0b10) in the
+  // high bits of byte 8, then 62 random bits
+  return `${t.slice(0, 8)}-${t.slice(8)}-7${randA.toString(16).padStart(3, '0')}-${HEX[0x80 | ((r[0] as number) & 0x3f)]}${h(1)}-${h(2)}${h(3)}${h(4)}${h(5)}${h(6)}${h(7)}`;
 }
 
 export const UUID_V7 = /^[0-9a-f]{8}-[0-9a-f]{4}-7[0-9a-f]{3}-[89ab][0-9a-f]{3}-[0-9a-f]{12}$/;

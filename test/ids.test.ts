@@ -30,4 +30,18 @@ describe('UUID version 7 (RFC 9562)', () => {
     expect(msOf(old)).toBe(Date.parse('2026-11-30T06:00:00Z'));
     expect(after > before).toBe(true);
   });
+
+  it('counts ids of one millisecond in rand_a, one apart, under version 7 and variant 0b10 (RFC 9562, 5.7 and 6.2 method 1)', () => {
+    const now = Date.now() + 20_000;
+    const ids = Array.from({ length: 300 }, () => uuidv7(now));
+    const randA = ids.map((id) => Number.parseInt(id.slice(15, 18), 16));
+    for (let i = 1; i < randA.length; i++) expect(randA[i]).toBe((randA[i - 1] as number) + 1);
+    for (const id of ids) {
+      expect(msOf(id)).toBe(now);
+      expect(id[14]).toBe('7');
+      expect(Number.parseInt(id[19] as string, 16) >> 2).toBe(0b10);
+    }
+    // the 62 random bits differ from id to id
+    expect(new Set(ids.map((id) => id.slice(19))).size).toBe(ids.length);
+  });
 });
