@@ -2,7 +2,7 @@ import { isUtf8 } from 'node:buffer';
 import type { FastifyRequest } from 'fastify';
 import sjson from 'secure-json-parse';
 import { ProblemError, pointer } from '../errors.js';
-import { NOT_WELL_FORMED, firstInvalidUtf8, scanJson } from './json-scan.js';
+import { NOT_WELL_FORMED, firstInvalidUtf8, mayNeedScan, scanJson } from './json-scan.js';
 
 /** Scoring routes say that a refused body scored nothing; the others need not. */
 const scores = (req: FastifyRequest): boolean => /\/score(-batch)?$/.test(req.routeOptions.url ?? '');
@@ -35,7 +35,8 @@ export function checkTransferCoding(req: FastifyRequest): ProblemError | null {
  */
 export function parseJsonBody(req: FastifyRequest, body: string | Buffer, done: (err: Error | null, value?: unknown) => void): void {
   // JSON is UTF-8 (RFC 8259, section 8.1); a body declared otherwise would be read wrong.
-  const charset = /;\s*charset\s*=\s*"?([^";\s]+)/i.exec(req.headers['content-type'] ?? '')?.[1]?.toLowerCase();
+  const type = req.headers['content-type'];
+  const charset = type === 'application/json' ? undefined : /;\s*charset\s*=\s*"?([^";\s]+)/i.exec(type ?? '')?.[1]?.toLowerCase();
   if (charset !== undefined && charset !== 'utf-8' && charset !== 'utf8') {
     done(new ProblemError('unsupported-media-type', `the body must be UTF-8 JSON, not charset=${charset}`, [{ header: 'content-type', detail: 'charset must be utf-8 when given' }]));
     return;
@@ -72,7 +73,8 @@ export function parseJsonBody(req: FastifyRequest, body: string | Buffer, done: 
     done(new ProblemError('invalid-json', `the body is not valid JSON: ${reason}`));
     return;
   }
-  const finding = scanJson(text);
+  // The full walk only when a quick count cannot rule out what it looks for (json-scan.ts).
+  const finding = mayNeedScan(text, value) ? scanJson(text) : null;
   if (finding?.kind === 'duplicate') {
     done(oneProblem(req, finding.path, 'appears twice in one object; JSON names should be unique (RFC 8259, section 4), and which value counts would be a guess'));
     return;

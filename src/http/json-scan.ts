@@ -147,6 +147,49 @@ export function scanJson(text: string, locate?: number): ScanFinding | null {
   return null;
 }
 
+/**
+ * False when `text`, which parsed to `value`, surely holds neither a name given twice nor a lone
+ * surrogate escape, so that scanJson need not walk it; true when it might. Every name in JSON text
+ * is a string closed by a quote that whitespace and a colon follow, so the text holds at least as
+ * many such quote-colons as names, and a name given twice leaves the parsed value with fewer names
+ * than the text: when the two counts are equal no name was given twice. A quote-colon inside a
+ * string value only makes the count larger, and sends the text to the full scan.
+ */
+export function mayNeedScan(text: string, value: unknown): boolean {
+  if (SURROGATE_ESCAPE.test(text)) return true;
+  return quoteColons(text) !== namesIn(value);
+}
+
+function quoteColons(text: string): number {
+  let count = 0;
+  for (let at = text.indexOf(':'); at >= 0; at = text.indexOf(':', at + 1)) {
+    let k = at - 1;
+    for (let c = text.charCodeAt(k); c === 0x20 || c === 0x09 || c === 0x0a || c === 0x0d; c = text.charCodeAt(--k));
+    if (text.charCodeAt(k) === QUOTE) count++;
+  }
+  return count;
+}
+
+/** The names of every object in a parsed value, walked without recursion (a body may nest deep). */
+function namesIn(value: unknown): number {
+  let count = 0;
+  const stack: unknown[] = [value];
+  while (stack.length > 0) {
+    const v = stack.pop();
+    if (typeof v !== 'object' || v === null) continue;
+    if (Array.isArray(v)) {
+      for (const x of v) if (typeof x === 'object' && x !== null) stack.push(x);
+      continue;
+    }
+    for (const k in v) {
+      count++;
+      const x = (v as Record<string, unknown>)[k];
+      if (typeof x === 'object' && x !== null) stack.push(x);
+    }
+  }
+  return count;
+}
+
 /** Where UTF-8 stops being valid in `bytes` (RFC 3629, section 4), or -1 when it is valid throughout. */
 export function firstInvalidUtf8(bytes: Uint8Array): number {
   const n = bytes.length;

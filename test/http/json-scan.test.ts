@@ -1,6 +1,6 @@
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
-import { firstInvalidUtf8, scanJson } from '../../src/http/json-scan.js';
+import { firstInvalidUtf8, mayNeedScan, scanJson } from '../../src/http/json-scan.js';
 
 // The scanner behind the JSON body checks (src/http/json-scan.ts), against what it must agree with:
 // JSON.stringify never writes a name twice, so any such text scans clean; a name written again
@@ -55,6 +55,45 @@ describe('scanJson', () => {
     expect(scanJson('{"a":["x","\\ud83d\\ude00"],"b":{"c":"\\ud800"}}')).toEqual({ kind: 'lone-surrogate', path: ['b', 'c'] });
     expect(scanJson('[1,{"\\udfff":2}]')).toEqual({ kind: 'lone-surrogate', path: [1, '\uFFFD'] });
     expect(scanJson('{"a":"\\ud83d\\ude00"}')).toBeNull();
+  });
+});
+
+describe('mayNeedScan, the quick count before the full walk', () => {
+  /** The text of `v` with the first name of one of its objects written again, and a random indent. */
+  const withDuplicate = (v: unknown, pick: number, indent: number): string | null => {
+    const withNames = objects(v).filter((o) => Object.keys(o.obj).length > 0);
+    if (withNames.length === 0) return null;
+    const target = withNames[pick % withNames.length]!;
+    const name = Object.keys(target.obj)[0]!;
+    const marker = '\u0000MARK\u0000';
+    target.obj[marker] = 0;
+    const text = JSON.stringify(v, null, indent).replace(`${JSON.stringify(marker)}: 0`, `${JSON.stringify(name)} : 1`).replace(`${JSON.stringify(marker)}:0`, `${JSON.stringify(name)}:1`);
+    delete target.obj[marker];
+    return text;
+  };
+
+  it('never lets pass a text in which scanJson finds something', () => {
+    fc.assert(
+      fc.property(value, fc.nat(), fc.nat({ max: 3 }), (v, pick, indent) => {
+        const text = withDuplicate(v, pick, indent);
+        fc.pre(text !== null);
+        expect(scanJson(text as string)).not.toBeNull();
+        expect(mayNeedScan(text as string, JSON.parse(text as string))).toBe(true);
+      }),
+      { numRuns: 300 },
+    );
+    for (const text of ['{"a":"\\ud800"}', '{"a":{"b":1,"b":2}}', '[{"x":1},{"y":{"z":[1,{"z":0,"z":1}]}}]', '{"a" \n :1, "a"\t:2}']) {
+      expect(scanJson(text)).not.toBeNull();
+      expect(mayNeedScan(text, JSON.parse(text))).toBe(true);
+    }
+  });
+
+  it('lets a scoring body pass without the walk, and sends a value holding a quote-colon to it', () => {
+    const body = { features: [232.1, 53.8, 923, 478, 3.48, 14.18, 102, 5.4, 23.7, 47.93], tags: { line: '3', station: 'moulding-3' } };
+    for (const text of [JSON.stringify(body), JSON.stringify(body, null, 2), JSON.stringify({ items: [body, body, body] })]) expect(mayNeedScan(text, JSON.parse(text))).toBe(false);
+    const tricky = JSON.stringify({ tags: { note: 'a": b' } });
+    expect(mayNeedScan(tricky, JSON.parse(tricky))).toBe(true);
+    expect(scanJson(tricky)).toBeNull();
   });
 });
 
