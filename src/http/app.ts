@@ -150,17 +150,8 @@ export async function buildApp(runtime: Runtime, options: AppOptions = {}): Prom
     },
   });
 
-  // Node would answer a missing Host with a bare 400; we answer it as problem+json instead.
+  // Node would answer a missing Host with a bare 400; the guards plugin answers it as problem+json.
   (app.server as { requireHostHeader?: boolean }).requireHostHeader = false;
-  // Hooks that do not wait for anything are written in the callback form: an async hook costs a
-  // promise and a turn of the microtask queue on every request.
-  app.addHook('onRequest', (req, _reply, done) => {
-    if (req.raw.httpVersion === '1.1' && req.headers.host === undefined) {
-      done(new ProblemError('invalid-request', 'an HTTP/1.1 request must carry a Host header (RFC 9112, section 3.2)', [{ header: 'host', detail: 'is missing' }]));
-      return;
-    }
-    done();
-  });
   await app.register(auth, { mode: runtime.config.auth, keys: runtime.store.keys });
   // While shutting down, every answer asks the client to close its connection, so that keep-alive
   // sockets neither hold the process open nor carry further requests (the listener is closed).
@@ -170,11 +161,14 @@ export async function buildApp(runtime: Runtime, options: AppOptions = {}): Prom
   });
   await app.register(guards, { requestsPerMinute: runtime.config.limits.requests_per_minute, eventLoopDelayMs: runtime.config.limits.event_loop_delay_ms, closing: () => closing });
 
-  app.addHook('onResponse', (request, reply, done) => {
-    // Method, route and outcome only: feature values are never logged at info level.
-    if (LOGS_INFO.has(request.log.level)) request.log.info({ method: request.method, route: request.routeOptions.url ?? null, status: reply.statusCode, ms: Number(reply.elapsedTime.toFixed(3)) }, 'answered');
-    done();
-  });
+  // One line per answer at info level: method, route and outcome only, feature values are never
+  // logged. No hook at all when the service logs above info (its level is set once, at start).
+  if (LOGS_INFO.has(app.log.level)) {
+    app.addHook('onResponse', (request, reply, done) => {
+      request.log.info({ method: request.method, route: request.routeOptions.url ?? null, status: reply.statusCode, ms: Number(reply.elapsedTime.toFixed(3)) }, 'answered');
+      done();
+    });
+  }
 
   await app.register(health);
   await app.register(metrics);

@@ -3,6 +3,9 @@ import Fastify, { type FastifyBaseLogger } from 'fastify';
 import { pino } from 'pino';
 import { describe, expect, it } from 'vitest';
 import { lazyRequestLogger } from '../../src/http/request-logger.js';
+import { UUID_V7 } from '../../src/ids.js';
+import { SETOSA, startTestService } from '../helpers/service.js';
+import { capturedLogger } from '../helpers/sink.js';
 
 /** A pino logger writing its lines into an array, and a count of the children made from it. */
 function recorder(level: string) {
@@ -76,5 +79,28 @@ describe('the request logger made on first use', () => {
     await app.inject({ url: '/loud' });
     expect(r.lines.map((l) => [l.msg, l.reqId])).toEqual([['handled', 'id-42']]);
     await app.close();
+  });
+
+  it('gives the service one line per answer at info level, without feature values, and none above it', async () => {
+    for (const level of ['info', 'warn']) {
+      const { logger, lines } = capturedLogger(level);
+      const svc = await startTestService({ logger });
+      try {
+        const res = await svc.app.inject({ method: 'POST', url: '/v1/models/iris/score', payload: { features: SETOSA } });
+        expect(res.statusCode).toBe(200);
+        const answered = lines.map((l) => JSON.parse(l) as Record<string, unknown>).filter((l) => l.msg === 'answered');
+        if (level === 'warn') {
+          expect(answered).toEqual([]);
+          continue;
+        }
+        expect(answered).toHaveLength(1);
+        expect(answered[0]).toMatchObject({ level: 30, method: 'POST', route: '/v1/models/:name/score', status: 200 });
+        expect(answered[0]?.req_id).toMatch(UUID_V7);
+        expect(answered[0]?.req_id).toBe(res.json().request_id);
+        expect(JSON.stringify(answered[0])).not.toContain(String(SETOSA.sepal_length));
+      } finally {
+        await svc.close();
+      }
+    }
   });
 });

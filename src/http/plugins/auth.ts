@@ -22,6 +22,14 @@ declare module 'fastify' {
     /** The key the request came with; null when keys are not in use. */
     apiKey: ApiKeyIdentity | null;
   }
+  interface FastifyInstance {
+    /**
+     * Checks the request's key against its route's access, setting `req.apiKey`; throws (or
+     * rejects, when the keys store answers with a promise) the 401 or 403 problem. Run on
+     * onRequest by the guards plugin's one hook, before the body is read.
+     */
+    checkKey(req: FastifyRequest): void | Promise<void>;
+  }
 }
 
 export interface AuthOptions {
@@ -46,7 +54,8 @@ function allowed(role: Role, access: Role): boolean {
 /**
  * API keys (Authorization: Bearer). Once a key exists in the database (even revoked), every route but
  * the public ones needs a key whose role the route accepts: 401 without a valid key, 403 with
- * a key of the wrong role. Runs on onRequest, before the body is read.
+ * a key of the wrong role. The check is `app.checkKey`, which the guards plugin runs on onRequest,
+ * before the body is read.
  */
 async function auth(app: FastifyInstance, options: AuthOptions): Promise<void> {
   const now = options.now ?? Date.now;
@@ -96,9 +105,8 @@ async function auth(app: FastifyInstance, options: AuthOptions): Promise<void> {
 
   app.decorateRequest('apiKey', null);
   const check = (req: FastifyRequest): void | Promise<void> => {
-    const path = req.url.split('?')[0] ?? '';
     // A route says what it needs; a path no route has is treated as needing a reader key.
-    const access: Access = req.routeOptions.config.access ?? (path.startsWith('/v1/') ? 'reader' : 'public');
+    const access: Access = req.routeOptions.config.access ?? (req.url.startsWith('/v1/') ? 'reader' : 'public');
     if (access === 'public') return;
     const on = enforced();
     if (on instanceof Promise) return on.then((yes) => (yes ? checkKey(req, access) : undefined));
@@ -144,18 +152,7 @@ async function auth(app: FastifyInstance, options: AuthOptions): Promise<void> {
       }
     }
   };
-  // The callback form: nothing here waits, and an async hook costs a promise on every request.
-  app.addHook('onRequest', (req, _reply, done) => {
-    let pending: void | Promise<void>;
-    try {
-      pending = check(req);
-    } catch (err) {
-      done(err as Error);
-      return;
-    }
-    if (pending instanceof Promise) pending.then(() => done(), (err: Error) => done(err));
-    else done();
-  });
+  app.decorate('checkKey', check);
 }
 
 export default fp(auth, { name: 'auth', fastify: '5.x' });

@@ -44,28 +44,29 @@ async function guards(app: FastifyInstance, options: GuardOptions): Promise<void
             ),
     });
   }
-  if (options.requestsPerMinute > 0) {
-    // Per key when keys are in use (auth runs first, on onRequest), else per client address.
-    const window = createRateWindow(options.requestsPerMinute, 60_000);
-    app.addHook('onRequest', (req, reply, done) => {
-      if (isPublic(req)) {
-        done();
-        return;
-      }
-      const v = window.take(req.apiKey ? `key:${req.apiKey.id}` : `ip:${req.ip}`, Date.now());
-      const reset = Math.max(1, Math.ceil(v.resetMs / 1000));
-      reply.headers({ 'x-ratelimit-limit': v.limit, 'x-ratelimit-remaining': v.remaining, 'x-ratelimit-reset': reset });
-      if (v.allowed) {
-        done();
-        return;
-      }
-      done(
-        new ProblemError('rate-limited', `more than ${v.limit} requests a minute came from this ${req.apiKey ? 'key' : 'address'} (limits.requests_per_minute); retry in ${reset} s`, undefined, {
-          'retry-after': String(reset),
-        }),
-      );
-    });
-  }
+  // One onRequest hook for every request's gate, in this order: the Host header, the key
+  // (auth.ts), the rate limit. The callback form: an async hook costs a promise and a turn of the
+  // microtask queue on every request, and each further hook a step of fastify's hook runner.
+  const limit = options.requestsPerMinute > 0 ? rateLimit(options.requestsPerMinute) : null;
+  app.addHook('onRequest', (req, reply, done) => {
+    // Node would answer a missing Host with a bare 400 (app.ts lets it through); problem+json here.
+    if (req.headers.host === undefined && req.raw.httpVersion === '1.1') {
+      done(new ProblemError('invalid-request', 'an HTTP/1.1 request must carry a Host header (RFC 9112, section 3.2)', [{ header: 'host', detail: 'is missing' }]));
+      return;
+    }
+    let pending: void | Promise<void>;
+    try {
+      pending = app.checkKey(req);
+    } catch (err) {
+      done(err as Error);
+      return;
+    }
+    if (limit === null) {
+      if (pending instanceof Promise) pending.then(() => done(), (err: Error) => done(err));
+      else done();
+    } else if (pending instanceof Promise) pending.then(() => done(limit(req, reply)), (err: Error) => done(err));
+    else done(limit(req, reply));
+  });
   const closing = options.closing ?? (() => false);
   app.addHook('onSend', (_req, reply, payload, done) => {
     reply.headers(SECURITY_HEADERS);
@@ -74,6 +75,25 @@ async function guards(app: FastifyInstance, options: GuardOptions): Promise<void
     if (closing()) reply.header('connection', 'close');
     done(null, payload);
   });
+}
+
+/**
+ * Requests a minute per key when keys are in use (the key is checked first), else per client
+ * address (rate-window.ts): sets the x-ratelimit headers and gives the 429 problem once the
+ * window is spent, undefined while it is not.
+ */
+function rateLimit(requestsPerMinute: number): (req: FastifyRequest, reply: FastifyReply) => ProblemError | undefined {
+  const window = createRateWindow(requestsPerMinute, 60_000);
+  return (req, reply) => {
+    if (isPublic(req)) return undefined;
+    const v = window.take(req.apiKey ? `key:${req.apiKey.id}` : `ip:${req.ip}`, Date.now());
+    const reset = Math.max(1, Math.ceil(v.resetMs / 1000));
+    reply.header('x-ratelimit-limit', v.limit).header('x-ratelimit-remaining', v.remaining).header('x-ratelimit-reset', reset);
+    if (v.allowed) return undefined;
+    return new ProblemError('rate-limited', `more than ${v.limit} requests a minute came from this ${req.apiKey ? 'key' : 'address'} (limits.requests_per_minute); retry in ${reset} s`, undefined, {
+      'retry-after': String(reset),
+    });
+  };
 }
 
 export default fp(guards, { name: 'guards', fastify: '5.x', dependencies: ['auth'] });
