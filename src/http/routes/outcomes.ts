@@ -111,7 +111,7 @@ const outcomes: FastifyPluginAsyncZod = async (app) => {
       });
       let verdicts;
       try {
-        verdicts = app.store.outcomes.record(
+        verdicts = await app.store.outcomes.record(
           inputs.map((x) => x.input),
           req.apiKey?.label ?? null,
         );
