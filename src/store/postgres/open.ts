@@ -78,7 +78,7 @@ export async function openServerStore(url: string, options: ServerStoreOptions):
     drift: createServerDriftStore(pool),
     alerts: createServerAlertsStore(pool),
     keys: createServerKeysStore(pool),
-    outcomes: createServerOutcomesStore(pool),
+    outcomes: createServerOutcomesStore(pool, url),
     retention: createServerRetention(pool),
     coordination: serverCoordination(pool),
     verifyChain: (anchor) => verifyServerChain(pool, anchor),

@@ -17,7 +17,7 @@ import {
   tagWhich,
 } from '../outcomes-store.js';
 import { cursorPages } from './drift.js';
-import type { Pool, PoolClient } from './pool.js';
+import { type Pool, type PoolClient, ServerError } from './pool.js';
 
 /** Outcome rows per INSERT statement: 9 parameters a row, under the protocol's 65,535. */
 const ROWS_PER_INSERT = 2000;
@@ -128,12 +128,15 @@ function insertStatement(rows: Array<OutcomeRow & { chain_hash: Buffer }>, head:
  * the batches of every replica join one chain in commit order and each sees the outcomes the
  * batches before it recorded; the head moves in the statement that inserts the rows.
  */
-export function createServerOutcomesStore(pool: Pool): OutcomesStore {
+export function createServerOutcomesStore(pool: Pool, url: string): OutcomesStore {
   const models = modelCache();
   const one = async <T>(sql: string, values: unknown[]): Promise<T | undefined> => (await pool.query(sql, values)).rows[0] as T | undefined;
 
   const record = async (items: OutcomeInput[], keyLabel: string | null, now: number): Promise<OutcomeVerdict[]> => {
-    const client = await pool.connect();
+    // The server's errors with the URL's password masked, wherever the driver quoted it.
+    const client = await pool.connect().catch((err: unknown) => {
+      throw new ServerError(url, err);
+    });
     let broken: Error | undefined;
     try {
       const [, headResult] = (await client.query('BEGIN; SELECT seq, hash FROM outcome_chain_head WHERE id = 1 FOR UPDATE')) as unknown as [unknown, { rows: Array<{ seq: number; hash: Buffer }> }];
@@ -198,7 +201,7 @@ export function createServerOutcomesStore(pool: Pool): OutcomesStore {
     } catch (err) {
       broken = err as Error;
       await client.query('ROLLBACK').catch(() => undefined);
-      throw err;
+      throw new ServerError(url, err);
     } finally {
       // A connection whose transaction failed is not reused.
       client.release(broken);
