@@ -17,7 +17,7 @@ export async function computeSignal(store: AlertsStore, rule: AlertRule, model: 
   if (rule.signal === 'accuracy' || rule.signal === 'labelled_rate') {
     // Over the answers received in the window and the outcomes recorded for them by now: an
     // outcome arrives after its answer, so a window that ends now fills in as outcomes come.
-    const o = outcomes?.windowOutcomes(model, from, now);
+    const o = outcomes ? await outcomes.windowOutcomes(model, from, now) : undefined;
     if (!o || o.scored === 0) return null;
     if (rule.signal === 'labelled_rate') return { value: o.labelled / o.scored, requests: o.scored };
     return o.labelled > 0 ? { value: o.right / o.labelled, requests: o.labelled } : null;

@@ -13,12 +13,12 @@ export const INSPECTION_DELAY_MS = 40 * MINUTE;
  * invented data says the part was, named by the shot tag the line scored it with, as the line's
  * app would send them to POST /v1/outcomes (in batches of 500).
  */
-export function recordDemoOutcomes(outcomes: Pick<OutcomesStore, 'record'>, model: string, shots: readonly ReplayedShot[]): { sent: number; recorded: number; refused: number } {
+export async function recordDemoOutcomes(outcomes: Pick<OutcomesStore, 'record'>, model: string, shots: readonly ReplayedShot[]): Promise<{ sent: number; recorded: number; refused: number }> {
   const inspected = shots.filter((_, i) => i % INSPECTED_EVERY === INSPECTED_EVERY - 1);
   const verdicts: OutcomeVerdict[] = [];
   for (let i = 0; i < inspected.length; i += 500) {
     const batch = inspected.slice(i, i + 500).map((s) => ({ tag: { shot: s.shot }, model, label: s.outcome, observedAt: s.receivedAt + INSPECTION_DELAY_MS, source: 'inspection station, cell 3', replace: false }));
-    verdicts.push(...outcomes.record(batch, null));
+    verdicts.push(...(await outcomes.record(batch, null)));
   }
   return { sent: inspected.length, recorded: verdicts.filter((v) => v.status === 'recorded').length, refused: verdicts.filter((v) => v.status === 'refused').length };
 }

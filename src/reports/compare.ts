@@ -4,7 +4,9 @@ import { mcnemarExact } from '../core/stats/exact-tests.js';
 import { wilsonInterval } from '../core/stats/proportion.js';
 import type { CompareReport } from '../contracts/compare-report.js';
 import type { ModelRef } from '../contracts/model-ref.js';
-import type { OutcomesStore } from '../store/outcomes-store.js';
+import { type Awaitable, forEachRow } from '../store/awaitable.js';
+import type { ModelRecord } from '../store/models-table.js';
+import type { LoggedVectorView, OutcomesStore } from '../store/outcomes-store.js';
 import { formatP } from './findings.js';
 
 /** Rows rescored together: one forward pass of every member per batch. */
@@ -32,13 +34,13 @@ function accuracy(right: number, n: number): CompareReport['accuracy']['current'
  * the rows where exactly one of them was right (McNemar 1947). Vectors are matched to the
  * candidate's features by name; the logged answers stand for the bundles that gave them.
  */
-export function compareCandidate(
+export async function compareCandidate(
   store: Pick<OutcomesStore, 'loggedVectors' | 'describeModel'>,
   model: string,
   candidate: LoadedBundle,
   window: { from: number; to: number },
   createdAt = new Date(),
-): CompareReport {
+): Promise<CompareReport> {
   const scorer = createScorer(candidate);
   const cFile = candidate.file;
   const d = cFile.features.length;
@@ -47,9 +49,7 @@ export function compareCandidate(
   const currentLabels: string[] = [];
   // Per logged bundle: where each candidate feature sits in its vector (null: it lacks one).
   const plans = new Map<string, number[] | null>();
-  const planOf = (sha256: string): number[] | null => {
-    if (plans.has(sha256)) return plans.get(sha256) ?? null;
-    const m = store.describeModel(sha256);
+  const learn = (sha256: string, m: ModelRecord | null): void => {
     let plan: number[] | null = null;
     if (m) {
       current.push({ name: m.name, version: m.version, sha256: m.sha256 });
@@ -59,7 +59,6 @@ export function compareCandidate(
       plan = idx.every((j) => j >= 0) ? idx : null;
     }
     plans.set(sha256, plan);
-    return plan;
   };
 
   const counts = new Map<string, number>();
@@ -114,17 +113,31 @@ export function compareCandidate(
     batch = [];
   };
 
-  for (const row of store.loggedVectors(model, window.from, window.to, false)) {
-    const plan = planOf(row.model_sha256);
+  const take = (row: LoggedVectorView): void => {
+    const plan = plans.get(row.model_sha256) ?? null;
     if (!plan) {
       skipped++;
-      continue;
+      return;
     }
     const at = batch.length * d;
     for (let j = 0; j < d; j++) x[at + j] = row.features.readDoubleLE((plan[j] as number) * 8);
     batch.push({ label: row.label, inDomain: row.in_domain === 1, actual: row.actual });
     if (batch.length === BATCH) flush();
-  }
+  };
+  // A bundle met for the first time is looked up: at once on SQLite, whose rows come from an
+  // open iterator; awaited on a server, between two pages' rows.
+  await forEachRow(store.loggedVectors(model, window.from, window.to, false), (row): Awaitable<void> => {
+    if (plans.has(row.model_sha256)) return take(row);
+    const m = store.describeModel(row.model_sha256);
+    if (m instanceof Promise) {
+      return m.then((r) => {
+        learn(row.model_sha256, r);
+        take(row);
+      });
+    }
+    learn(row.model_sha256, m);
+    take(row);
+  });
   flush();
   if (rows === 0 && skipped > 0) {
     throw new IncompatibleBundleError(`the candidate takes features (${cFile.features.map((f) => f.name).join(', ')}) that the logged answers of ${model} in the window do not all have`);

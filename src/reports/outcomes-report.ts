@@ -1,6 +1,7 @@
 import { summariseOutcomes } from '../core/outcome-metrics.js';
 import type { OutcomesReport } from '../contracts/outcomes-report.js';
-import type { OutcomesStore } from '../store/outcomes-store.js';
+import { forEachRow } from '../store/awaitable.js';
+import type { LabelledRowView, OutcomesStore } from '../store/outcomes-store.js';
 import { writeOutcomeFindings } from './outcome-findings.js';
 
 /** What the report needs of the bundle: who it is and its classes in probability order. */
@@ -19,12 +20,12 @@ export const MIN_LABELLED = 30;
  * store into plain arrays, and the statistics of core/outcome-metrics.ts over them. Memory grows
  * with the labelled rows (a few dozen bytes each, plus the probabilities).
  */
-export function buildOutcomesReport(
+export async function buildOutcomesReport(
   store: Pick<OutcomesStore, 'countScored' | 'labelledRows'>,
   model: ReportedModel,
   window: { from: number; to: number },
   createdAt: Date,
-): OutcomesReport {
+): Promise<OutcomesReport> {
   const K = model.classes.length;
   const index = new Map(model.classes.map((c, k) => [c, k]));
   const actual: number[] = [];
@@ -33,19 +34,19 @@ export function buildOutcomesReport(
   const margin: number[] = [];
   const inDomain: boolean[] = [];
   const review: boolean[] = [];
-  for (const row of store.labelledRows(model.sha256, window.from, window.to)) {
+  await forEachRow(store.labelledRows(model.sha256, window.from, window.to), (row: LabelledRowView) => {
     const a = index.get(row.actual);
     const p = index.get(row.label);
     // Outcomes are checked against the classes when recorded; a row that does not fit is skipped.
-    if (a === undefined || p === undefined || row.probabilities.length !== K * 8) continue;
+    if (a === undefined || p === undefined || row.probabilities.length !== K * 8) return;
     actual.push(a);
     predicted.push(p);
     for (let k = 0; k < K; k++) probabilities.push(row.probabilities.readDoubleLE(k * 8));
     margin.push(row.margin);
     inDomain.push(row.in_domain === 1);
     review.push(row.review === 1);
-  }
-  const scored = store.countScored(model.sha256, window.from, window.to);
+  });
+  const scored = await store.countScored(model.sha256, window.from, window.to);
   const m = summariseOutcomes({ classes: K, actual, predicted, probabilities, margin, inDomain, review });
   const report: OutcomesReport = {
     model: { name: model.name, version: model.version, sha256: model.sha256 },
@@ -71,7 +72,7 @@ export function buildOutcomesReport(
 }
 
 /** The outcomes report of a model by name: its bundle loaded last; null when the log holds no bundle of that name. */
-export function outcomesReportFor(store: Pick<OutcomesStore, 'countScored' | 'labelledRows' | 'latestModel'>, name: string, window: { from: number; to: number }, now = new Date()): OutcomesReport | null {
-  const model = store.latestModel(name);
+export async function outcomesReportFor(store: Pick<OutcomesStore, 'countScored' | 'labelledRows' | 'latestModel'>, name: string, window: { from: number; to: number }, now = new Date()): Promise<OutcomesReport | null> {
+  const model = await store.latestModel(name);
   return model ? buildOutcomesReport(store, model, window, now) : null;
 }

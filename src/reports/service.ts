@@ -55,9 +55,9 @@ export function createReportService(store: Store, options: ReportOptions & { wor
         : await buildDriftReport(store.drift, parseBundle(stored.text, 'stored bundle'), window, meta, options);
       // The outcomes recorded by now for the window's answers, when there are any: read here, on
       // the store's connection, as they are a few rows beside the window's (docs/outcomes.md).
-      const logged = store.outcomes.describeModel(report.model.sha256);
+      const logged = await store.outcomes.describeModel(report.model.sha256);
       if (logged) {
-        const { model: _m, window: _w, created_at: _c, ...figures } = buildOutcomesReport(store.outcomes, logged, window, meta.createdAt);
+        const { model: _m, window: _w, created_at: _c, ...figures } = await buildOutcomesReport(store.outcomes, logged, window, meta.createdAt);
         if (figures.labelled > 0) report.outcomes = figures;
       }
       await store.drift.saveReport({

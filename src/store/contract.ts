@@ -42,9 +42,9 @@ export interface Store {
   /** API keys, stored as hashes. */
   readonly keys: KeysStore;
   /**
-   * What the parts turned out to be: recorded in a chain of their own, read by the outcomes
-   * report, export and compare. SQLite only in this version (postgres/outcomes.ts says what the
-   * PostgreSQL store does instead).
+   * What the parts turned out to be: recorded in a chain of their own (one across replicas on
+   * PostgreSQL), read by the requests listing, the outcomes report, the drift report's outcome
+   * figures, the alert signals, export and compare.
    */
   readonly outcomes: OutcomesStore;
   /** Prunes old rows, keeping the hash chain verifiable. */

@@ -1,4 +1,5 @@
 import type { Database, Statement } from 'better-sqlite3';
+import type { Awaitable, Sync } from './awaitable.js';
 import { OUTCOME_GENESIS, type OutcomeRow, outcomeHash } from './outcome-chain.js';
 import { type ModelRecord, createModelCache } from './models-table.js';
 
@@ -66,34 +67,66 @@ export interface OutcomeChainVerdict {
   problem: { kind: 'changed' | 'removed' | 'inserted'; seq: number; request_id: string | null; detail: string } | null;
 }
 
-/** Outcomes: recorded in one transaction per batch, read by the requests listing, the report, export and compare. */
+/**
+ * Outcomes: recorded in one transaction per batch, read by the requests listing, the report,
+ * export and compare. SQLite answers at once; a server (postgres/outcomes.ts) with promises, and
+ * streams its rows in pages from a server-side cursor.
+ */
 export interface OutcomesStore {
   /**
    * Records a batch in one transaction: each item is recorded, unchanged or refused, in order
    * (a later item sees an earlier one), and a failure of the transaction records none of them.
    */
-  record(items: OutcomeInput[], keyLabel: string | null, now?: number): OutcomeVerdict[];
+  record(items: OutcomeInput[], keyLabel: string | null, now?: number): Awaitable<OutcomeVerdict[]>;
   /** The newest outcome of each of these answers that has one. */
-  current(requestIds: readonly string[]): Map<string, CurrentOutcome>;
+  current(requestIds: readonly string[]): Awaitable<Map<string, CurrentOutcome>>;
   /** Answers of a model (every bundle of it) received in [from, to): all, those with an outcome, those whose label was it. */
-  windowOutcomes(model: string, from: number, to: number): { scored: number; labelled: number; right: number };
+  windowOutcomes(model: string, from: number, to: number): Awaitable<{ scored: number; labelled: number; right: number }>;
   /** Answers of one bundle in [from, to). */
-  countScored(sha256: string, from: number, to: number): number;
-  /** Answers of one bundle in [from, to) that have an outcome, with the newest, oldest first. */
-  labelledRows(sha256: string, from: number, to: number): IterableIterator<LabelledRowView>;
+  countScored(sha256: string, from: number, to: number): Awaitable<number>;
+  /** Answers of one bundle in [from, to) that have an outcome, with the newest, oldest first: one at a time (SQLite) or in pages (a server). */
+  labelledRows(sha256: string, from: number, to: number): Iterable<LabelledRowView> | AsyncIterable<LabelledRowView[]>;
   /** Answers of a model (every bundle of it) in [from, to), oldest first; only labelled ones with `labelledOnly`. */
-  loggedVectors(model: string, from: number, to: number, labelledOnly: boolean): IterableIterator<LoggedVectorView>;
+  loggedVectors(model: string, from: number, to: number, labelledOnly: boolean): Iterable<LoggedVectorView> | AsyncIterable<LoggedVectorView[]>;
   /** The bundle of a model loaded last (as the drift reports take it). */
-  latestModel(name: string): ModelRecord | null;
+  latestModel(name: string): Awaitable<ModelRecord | null>;
   /** A bundle the log holds, by its sha256: its features in vector order and classes in probability order. */
-  describeModel(sha256: string): ModelRecord | null;
+  describeModel(sha256: string): Awaitable<ModelRecord | null>;
   /** Recomputes the outcome chain from the genesis. */
-  verifyChain(): OutcomeChainVerdict;
+  verifyChain(): Awaitable<OutcomeChainVerdict>;
 }
+
+/** The SQLite outcomes store: the same contract answered synchronously, rows one at a time. */
+export type SqliteOutcomesStore = Sync<OutcomesStore> & {
+  labelledRows(sha256: string, from: number, to: number): IterableIterator<LabelledRowView>;
+  loggedVectors(model: string, from: number, to: number, labelledOnly: boolean): IterableIterator<LoggedVectorView>;
+};
+
+/** The text of a refused conflict, the same on either store. */
+export const conflictDetail = (requestId: string, recorded: string, label: string): string =>
+  `request ${requestId} already has the outcome ${JSON.stringify(recorded)}; send "replace": true to record ${JSON.stringify(label)} over it`;
+
+/** The text of a label that is not a class of the answer's model. */
+export const notAClassDetail = (label: string, model: string, classes: readonly string[]): string =>
+  `${JSON.stringify(label)} is not a class of ${model}, whose classes are ${classes.join(', ')}`;
+
+/** How a tag item names what it looked for, in the refusals. */
+export const tagWhich = (pairs: ReadonlyArray<readonly [string, string]>, model: string | undefined): string =>
+  `${pairs.map(([k, v]) => `${k}=${JSON.stringify(v)}`).join(', ')}${model !== undefined ? ` of model ${JSON.stringify(model)}` : ''}`;
+
+/** The refusals of a lookup by request id or by tag, the same on either store. */
+export const lookupRefusal = {
+  unknownRequest: (id: string): OutcomeRefusal => ({ reason: 'unknown-request', detail: `no logged answer has the request id ${JSON.stringify(id)}` }),
+  unknownTag: (which: string): OutcomeRefusal => ({ reason: 'unknown-tag', detail: `no logged answer carries the tag ${which}` }),
+  ambiguousTag: (which: string): OutcomeRefusal => ({ reason: 'ambiguous-tag', detail: `more than one logged answer carries the tag ${which}; send the request id instead` }),
+};
+
+/** A tag's pairs in key order, as both stores look them up. */
+export const tagPairs = (tag: Record<string, string> | undefined): Array<[string, string]> => Object.entries(tag ?? {}).sort(([a], [b]) => (a < b ? -1 : 1));
 
 const NEWEST = 'SELECT label FROM outcomes AS o WHERE o.request_id = s.request_id ORDER BY o.seq DESC LIMIT 1';
 
-export function createOutcomesStore(db: Database): OutcomesStore {
+export function createOutcomesStore(db: Database): SqliteOutcomesStore {
   const models = createModelCache(db);
   const byId = db.prepare('SELECT request_id, model_sha256, model_name FROM scored_requests WHERE request_id = ?');
   // instr() first: a cheap test of the JSON text that spares json_each on most rows.
@@ -128,18 +161,18 @@ export function createOutcomesStore(db: Database): OutcomesStore {
   const find = (item: OutcomeInput): Target | OutcomeRefusal => {
     if (item.requestId !== undefined) {
       const t = byId.get(item.requestId) as Target | undefined;
-      return t ?? { reason: 'unknown-request', detail: `no logged answer has the request id ${JSON.stringify(item.requestId)}` };
+      return t ?? lookupRefusal.unknownRequest(item.requestId);
     }
-    const pairs = Object.entries(item.tag ?? {}).sort(([a], [b]) => (a < b ? -1 : 1));
+    const pairs = tagPairs(item.tag);
     const key = `${pairs.length}:${item.model !== undefined}`;
     let q = tagQueries.get(key);
     if (!q) tagQueries.set(key, (q = db.prepare(tagSql(pairs.length, item.model !== undefined))));
     const args: unknown[] = item.model !== undefined ? [item.model] : [];
     for (const [k, v] of pairs) args.push(JSON.stringify(v), k, v);
     const hits = q.all(...args) as Target[];
-    const which = `${pairs.map(([k, v]) => `${k}=${JSON.stringify(v)}`).join(', ')}${item.model !== undefined ? ` of model ${JSON.stringify(item.model)}` : ''}`;
-    if (hits.length === 0) return { reason: 'unknown-tag', detail: `no logged answer carries the tag ${which}` };
-    if (hits.length > 1) return { reason: 'ambiguous-tag', detail: `more than one logged answer carries the tag ${which}; send the request id instead` };
+    const which = tagWhich(pairs, item.model);
+    if (hits.length === 0) return lookupRefusal.unknownTag(which);
+    if (hits.length > 1) return lookupRefusal.ambiguousTag(which);
     return hits[0] as Target;
   };
 
@@ -155,7 +188,7 @@ export function createOutcomesStore(db: Database): OutcomesStore {
           requestId: target.request_id,
           status: 'refused',
           reason: 'not-a-class',
-          detail: `${JSON.stringify(item.label)} is not a class of ${target.model_name}, whose classes are ${classes.join(', ')}`,
+          detail: notAClassDetail(item.label, target.model_name, classes),
           classes,
         };
       }
@@ -166,7 +199,7 @@ export function createOutcomesStore(db: Database): OutcomesStore {
           requestId: target.request_id,
           status: 'refused',
           reason: 'conflict',
-          detail: `request ${target.request_id} already has the outcome ${JSON.stringify(before.label)}; send "replace": true to record ${JSON.stringify(item.label)} over it`,
+          detail: conflictDetail(target.request_id, before.label, item.label),
           recorded: before.label,
         };
       }
@@ -216,24 +249,45 @@ export function createOutcomesStore(db: Database): OutcomesStore {
   };
 }
 
-/** Recomputes the outcome chain from the genesis and names the first row changed, removed or put in. */
-export function verifyOutcomeChain(db: Database): OutcomeChainVerdict {
+/** The walk of the outcome chain, row by row in seq order, whatever the rows are read from. */
+export interface OutcomeChainWalk {
+  /** The next row; a verdict when the walk stops at it, else null. */
+  push(row: OutcomeRow & { chain_hash: Buffer }): OutcomeChainVerdict | null;
+  /** After the last row. */
+  finish(): OutcomeChainVerdict;
+}
+
+/** Recomputes the outcome chain from the genesis, naming the first row changed, removed or put in. */
+export function startOutcomeWalk(): OutcomeChainWalk {
   let prev: Buffer = OUTCOME_GENESIS;
   let expect = 1;
   let rows = 0;
   const verdict = (problem: OutcomeChainVerdict['problem']): OutcomeChainVerdict => ({ intact: problem === null, rows, head: { seq: expect - 1, hash: prev.toString('hex') }, problem });
+  return {
+    push(row) {
+      if (row.seq > expect) {
+        const gap = row.seq - 1 === expect ? `outcome ${expect} is missing` : `outcomes ${expect} to ${row.seq - 1} are missing`;
+        return verdict({ kind: 'removed', seq: expect, request_id: null, detail: `${gap}: the outcome chain goes from ${expect - 1} to ${row.seq}` });
+      }
+      if (row.seq < expect) return verdict({ kind: 'inserted', seq: row.seq, request_id: row.request_id, detail: `outcome ${row.seq} lies before the first outcome` });
+      if (!outcomeHash(prev, row).equals(row.chain_hash)) {
+        return verdict({ kind: 'changed', seq: row.seq, request_id: row.request_id, detail: `outcome ${row.seq} (request ${row.request_id}) does not hash to its stored chain hash: it was changed` });
+      }
+      prev = row.chain_hash;
+      expect++;
+      rows++;
+      return null;
+    },
+    finish: () => verdict(null),
+  };
+}
+
+/** Recomputes the outcome chain of a SQLite log from the genesis. */
+export function verifyOutcomeChain(db: Database): OutcomeChainVerdict {
+  const walk = startOutcomeWalk();
   for (const row of db.prepare('SELECT * FROM outcomes ORDER BY seq').iterate() as IterableIterator<OutcomeRow & { chain_hash: Buffer }>) {
-    if (row.seq > expect) {
-      const gap = row.seq - 1 === expect ? `outcome ${expect} is missing` : `outcomes ${expect} to ${row.seq - 1} are missing`;
-      return verdict({ kind: 'removed', seq: expect, request_id: null, detail: `${gap}: the outcome chain goes from ${expect - 1} to ${row.seq}` });
-    }
-    if (row.seq < expect) return verdict({ kind: 'inserted', seq: row.seq, request_id: row.request_id, detail: `outcome ${row.seq} lies before the first outcome` });
-    if (!outcomeHash(prev, row).equals(row.chain_hash)) {
-      return verdict({ kind: 'changed', seq: row.seq, request_id: row.request_id, detail: `outcome ${row.seq} (request ${row.request_id}) does not hash to its stored chain hash: it was changed` });
-    }
-    prev = row.chain_hash;
-    expect++;
-    rows++;
+    const stop = walk.push(row);
+    if (stop) return stop;
   }
-  return verdict(null);
+  return walk.finish();
 }

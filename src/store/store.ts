@@ -8,7 +8,7 @@ import { changedIdentity, recordIdentity } from './file-identity.js';
 import { headFilePath, readHeadFile, writeHeadFile } from './head-file.js';
 import { type ServeLock, acquireServeLock } from './serve-lock.js';
 import { type KeysStore, createKeysStore } from './keys-store.js';
-import { type OutcomesStore, createOutcomesStore } from './outcomes-store.js';
+import { createOutcomesStore } from './outcomes-store.js';
 import { type Retention, createRetention } from './retention.js';
 import { createChainHeadReader } from './chain-head.js';
 import { sealPreChainRows } from './seal.js';
@@ -24,11 +24,12 @@ import { type WriteState, createWriteHealth } from './write-health.js';
 export type { Store } from './contract.js';
 
 /** The SQLite store: the contract of contract.ts, answered synchronously. */
-export interface SqliteStore extends Omit<Sync<Store>, 'drift' | 'alerts' | 'keys' | 'retention'> {
+export interface SqliteStore extends Omit<Sync<Store>, 'drift' | 'alerts' | 'keys' | 'outcomes' | 'retention'> {
   readonly kind: 'sqlite';
   readonly drift: ReturnType<typeof createDriftStore>;
   readonly alerts: Sync<AlertsStore>;
   readonly keys: Sync<KeysStore>;
+  readonly outcomes: ReturnType<typeof createOutcomesStore>;
   readonly retention: Sync<Retention>;
   /** writeState().writable. */
   isWritable(): boolean;

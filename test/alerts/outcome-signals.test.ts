@@ -38,7 +38,7 @@ describe('alert signals on outcomes', () => {
   });
 
   it('once a third of the shots have outcomes: accuracy below 0.9 raises, min_labelled holds a thin count back, and the labelled rate is the share with an outcome', async () => {
-    recordDemoOutcomes(svc.store.outcomes, 'moulding-quality', day.shots);
+    await recordDemoOutcomes(svc.store.outcomes, 'moulding-quality', day.shots);
     // counted here from the replay's own record of each shot, not from the store
     const inspected = day.shots.filter((_, i) => i % 3 === 2);
     const right = inspected.filter((s) => s.answered === s.outcome).length;

@@ -83,7 +83,7 @@ beforeAll(async () => {
   seen.set('01a233ef-b780-7000-87a7-cc7d3e73d07b', day.id);
   // Then the inspection results of every third shot, as `plumbline demo` records them: the
   // reports above were made before they came, the POST /v1/drift-reports example after.
-  recordDemoOutcomes(app.store.outcomes, 'moulding-quality', replayed.shots);
+  await recordDemoOutcomes(app.store.outcomes, 'moulding-quality', replayed.shots);
   servers.metrics = await startDocServer();
 }, 120_000);
 

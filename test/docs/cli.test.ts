@@ -81,7 +81,7 @@ async function before(e: Example): Promise<void> {
   if (e.command.includes(' export ') && !existsSync(tmp.file('morning.csv'))) {
     // The inspection results arrive after the drift example, as plumbline demo records them.
     const store = openStore(tmp.file('demo.db'), { sync: 'normal', flushMs: 0, flushRows: 512, queueRows: 1000, rejectedRows: 1000 });
-    recordDemoOutcomes(store.outcomes, 'moulding-quality', demoShots);
+    await recordDemoOutcomes(store.outcomes, 'moulding-quality', demoShots);
     store.close();
   }
   if (e.command.includes(' compare ') && !existsSync(tmp.file('retrained.bundle.json'))) {

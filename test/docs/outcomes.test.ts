@@ -17,8 +17,8 @@ let report: OutcomesReport;
 beforeAll(async () => {
   svc = await startTestService({ bundles: [demoBundle()] });
   const day = await replayDemoDay(svc.app.scoring, 'moulding-quality', DEMO_DIR, DAY_START);
-  recordDemoOutcomes(svc.store.outcomes, 'moulding-quality', day.shots);
-  report = outcomesReportFor(svc.store.outcomes, 'moulding-quality', { from: DAY_START, to: DAY_END }) as OutcomesReport;
+  await recordDemoOutcomes(svc.store.outcomes, 'moulding-quality', day.shots);
+  report = (await outcomesReportFor(svc.store.outcomes, 'moulding-quality', { from: DAY_START, to: DAY_END })) as OutcomesReport;
 }, 60_000);
 afterAll(async () => {
   await svc.close();

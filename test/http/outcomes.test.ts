@@ -103,6 +103,17 @@ describe('POST /v1/outcomes', () => {
     expect(listed.items[0]?.outcome.label).toBe('virginica');
   });
 
+  it('refuses a source holding the NUL character, naming its field, as the PostgreSQL store must (its text cannot hold one)', async () => {
+    const a = await score(svc, SETOSA);
+    const res = await post(svc, [
+      { request_id: a.request_id, label: 'setosa', source: 'gauge\u0000 7' },
+      { request_id: a.request_id, label: 'setosa', source: 'gauge 7' },
+    ]);
+    expect(res.json().items.map((i: { status: string }) => i.status)).toEqual(['refused', 'recorded']);
+    expect(res.json().items[0].problem.errors).toEqual([{ pointer: '#/items/0/source', detail: 'must not contain the NUL character (U+0000)' }]);
+    expect(outcomeRows(svc)).toEqual([{ seq: 1, request_id: a.request_id, label: 'setosa', observed_at: null, source: 'gauge 7', replaces: null }]);
+  });
+
   it('refuses a body that is not a batch of 1 to limits.batch_items items as a whole, recording nothing', async () => {
     expect((await post(svc, [])).statusCode).toBe(400);
     expect((await svc.app.inject({ method: 'POST', url: '/v1/outcomes', payload: { outcomes: [] } })).statusCode).toBe(400);

@@ -47,6 +47,11 @@ describe.skipIf(serverUrl === null || 'missing' in found)('the service while Pos
     expect(JSON.stringify(down.json())).not.toContain(server.password);
     const batch = await app.inject({ method: 'POST', url: '/v1/models/moulding-quality/score-batch', payload: { items: [{ features: SHOT }, { features: SHOT }] } });
     expect(batch.statusCode).toBe(503);
+    // an outcome is not recorded either, and the answer says so, with the password masked
+    const outcome = await app.inject({ method: 'POST', url: '/v1/outcomes', payload: { items: [{ request_id: ok.json().request_id, label: ok.json().label }] } });
+    expect(outcome.statusCode).toBe(503);
+    expect(outcome.json()).toMatchObject({ status: 503, type: expect.stringMatching(/outcomes-unavailable$/) });
+    expect(JSON.stringify(outcome.json())).not.toContain(server.password);
     await until(async () => (await app!.inject({ url: '/readyz' })).statusCode === 503, 10_000);
     const ready = (await app.inject({ url: '/readyz' })).json();
     expect(ready).toMatchObject({ status: 'not ready', database: 'not writable' });
@@ -62,5 +67,9 @@ describe.skipIf(serverUrl === null || 'missing' in found)('the service while Pos
     expect(ids).toContain(ok.json().request_id);
     expect(ids).toContain(after.json().request_id);
     expect(await runtime.store.verifyChain()).toMatchObject({ intact: true, rows: ids.length });
+    // and outcomes are recorded again
+    const outcome2 = await app.inject({ method: 'POST', url: '/v1/outcomes', payload: { items: [{ request_id: ok.json().request_id, label: ok.json().label }] } });
+    expect(outcome2.json()).toMatchObject({ recorded: 1 });
+    expect(await runtime.store.outcomes.verifyChain()).toMatchObject({ intact: true, rows: 1 });
   }, 120_000);
 });

@@ -18,7 +18,7 @@ let report: OutcomesReport;
 beforeAll(async () => {
   svc = await startTestService({ bundles: [demoBundle()] });
   const day = await replayDemoDay(svc.app.scoring, 'moulding-quality', DEMO_DIR, DAY_START);
-  expect(recordDemoOutcomes(svc.store.outcomes, 'moulding-quality', day.shots)).toEqual({ sent: 666, recorded: 666, refused: 0 });
+  expect(await recordDemoOutcomes(svc.store.outcomes, 'moulding-quality', day.shots)).toEqual({ sent: 666, recorded: 666, refused: 0 });
   const res = await svc.app.inject(`/v1/models/moulding-quality/outcomes-report?${WINDOW}`);
   expect(res.statusCode).toBe(200);
   report = res.json();

@@ -3,6 +3,7 @@
 // (test/helpers/postgres-global.ts; skipped, with one line saying why, where there is none).
 import { afterAll, afterEach, describe, expect, it } from 'vitest';
 import type { Store } from '../../src/store/contract.js';
+import type { OutcomeInput } from '../../src/store/outcomes-store.js';
 import { LogWriteError, type ScoredRow } from '../../src/store/request-log.js';
 import { openStoreAt } from '../../src/store/open.js';
 import { tempDir } from '../helpers/datasets.js';
@@ -42,6 +43,10 @@ interface Kind {
   open(): Promise<{ store: Store; location: string }>;
   /** The chain hashes as stored, in seq order (hex). */
   hashes(location: string): Promise<string[]>;
+  /** The outcome chain's hashes as stored, in seq order (hex). */
+  outcomeHashes(location: string): Promise<string[]>;
+  /** One statement on the database behind the store's back (a tampering, for the verifier to find). */
+  exec(location: string, statement: string): Promise<void>;
 }
 
 const kinds: Array<Kind & { skip: boolean }> = [
@@ -59,6 +64,19 @@ const kinds: Array<Kind & { skip: boolean }> = [
       db.close();
       return out;
     },
+    async outcomeHashes(location) {
+      const { default: BetterSqlite3 } = await import('better-sqlite3');
+      const db = new BetterSqlite3(location, { readonly: true });
+      const out = (db.prepare('SELECT chain_hash FROM outcomes ORDER BY seq').all() as Array<{ chain_hash: Buffer }>).map((r) => r.chain_hash.toString('hex'));
+      db.close();
+      return out;
+    },
+    async exec(location, statement) {
+      const { default: BetterSqlite3 } = await import('better-sqlite3');
+      const db = new BetterSqlite3(location);
+      db.exec(statement);
+      db.close();
+    },
   },
   {
     name: 'postgres',
@@ -69,6 +87,12 @@ const kinds: Array<Kind & { skip: boolean }> = [
     },
     async hashes(location) {
       return (await sql<{ chain_hash: Buffer }>(location, 'SELECT chain_hash FROM scored_requests ORDER BY seq')).map((r) => r.chain_hash.toString('hex'));
+    },
+    async outcomeHashes(location) {
+      return (await sql<{ chain_hash: Buffer }>(location, 'SELECT chain_hash FROM outcomes ORDER BY seq')).map((r) => r.chain_hash.toString('hex'));
+    },
+    async exec(location, statement) {
+      await sql(location, statement);
     },
   },
 ];
@@ -83,6 +107,30 @@ async function allRows<T>(source: Iterable<T> | AsyncIterable<T[]>): Promise<T[]
 
 /** The chain hashes the SQLite store gives the series of rows: the reference both must match. */
 let reference: string[] | null = null;
+/** Likewise for the outcome chain of the batch below. */
+let outcomeReference: string[] | null = null;
+
+// Tags for the outcome lookups: a serial each, one with a quote and an escaped NUL in its JSON
+// text (which a cast to jsonb on PostgreSQL refuses), two answers sharing line L1 alone.
+const TAGGED: Array<Record<string, string>> = [{ serial: 'S-0', line: 'L1' }, { serial: 'nul\u0000"x', line: 'L2' }, { line: 'L1' }, { serial: 'S-3', shift: 'night' }];
+const outcomeRow = (i: number): ScoredRow => ({ ...row(i), tags: TAGGED[i] ?? { serial: `S-${i}` } });
+const item = (o: Partial<OutcomeInput> & { label: string }): OutcomeInput => ({ observedAt: null, source: null, replace: false, ...o });
+/** One batch with every kind of verdict; a later item sees an earlier one. */
+const OUTCOME_BATCH: OutcomeInput[] = [
+  item({ requestId: 'r0', label: 'ok', observedAt: T0 + 5, source: 'gauge 2' }),
+  item({ tag: { serial: 'nul\u0000"x' }, label: 'crack' }),
+  item({ tag: { serial: 'S-0' }, model: 'press', label: 'ok' }),
+  item({ requestId: 'r2', label: 'bent' }),
+  item({ requestId: 'nope', label: 'ok' }),
+  item({ requestId: 'a\u0000b', label: 'ok' }),
+  item({ tag: { line: 'L1' }, label: 'ok' }),
+  item({ tag: { serial: 'S-0' }, model: 'other', label: 'ok' }),
+  item({ tag: { serial: 'S' }, label: 'ok' }),
+  item({ tag: { serial: 'S-3', shift: 'day' }, label: 'ok' }),
+  item({ requestId: 'r0', label: 'crack' }),
+  item({ requestId: 'r0', label: 'crack', replace: true }),
+  item({ tag: { shift: 'night', serial: 'S-3' }, label: 'crack' }),
+];
 
 for (const kind of kinds) {
   describe.skipIf(kind.skip)(`the ${kind.name} store`, () => {
@@ -214,6 +262,83 @@ for (const kind of kinds) {
       await s.retention.pruneStep(T0 + 99 * 60_000, 1000, T0 + 2);
       await s.log.append([row(10), row(11)]);
       expect(await s.verifyChain()).toMatchObject({ intact: true, rows: 2, from: { seq: 10, cut: true }, head: { seq: 12 } });
+    });
+
+    it('records a batch of outcomes in order, by request id and by tag, refusing what it must, and chains them to the same hashes on either store', async () => {
+      const { store: s, location } = await open();
+      await s.log.append(Array.from({ length: 8 }, (_, i) => outcomeRow(i)));
+      const verdicts = await s.outcomes.record(OUTCOME_BATCH, 'qa app', T0 + 3_600_000);
+      expect(verdicts.map((v) => [v.requestId, v.status, 'reason' in v ? v.reason : null])).toEqual([
+        ['r0', 'recorded', null],
+        ['r1', 'recorded', null],
+        ['r0', 'unchanged', null],
+        ['r2', 'refused', 'not-a-class'],
+        ['nope', 'refused', 'unknown-request'],
+        ['a\u0000b', 'refused', 'unknown-request'],
+        [null, 'refused', 'ambiguous-tag'],
+        [null, 'refused', 'unknown-tag'],
+        [null, 'refused', 'unknown-tag'],
+        [null, 'refused', 'unknown-tag'],
+        ['r0', 'refused', 'conflict'],
+        ['r0', 'recorded', null],
+        ['r3', 'recorded', null],
+      ]);
+      expect(verdicts[10]).toMatchObject({ recorded: 'ok', detail: 'request r0 already has the outcome "ok"; send "replace": true to record "crack" over it' });
+      expect(verdicts[3]).toMatchObject({ classes: ['ok', 'crack'] });
+      // Again: the same labels are unchanged now, and nothing new joins the chain.
+      expect((await s.outcomes.record([item({ requestId: 'r1', label: 'crack' })], null, T0)).map((v) => v.status)).toEqual(['unchanged']);
+      const v = await s.outcomes.verifyChain();
+      expect(v).toMatchObject({ intact: true, rows: 4, head: { seq: 4 }, problem: null });
+      const hashes = await kind.outcomeHashes(location);
+      expect(hashes.at(-1)).toBe(v.head.hash);
+      if (kind.name === 'sqlite') outcomeReference = hashes;
+      else if (outcomeReference !== null) expect(hashes).toEqual(outcomeReference);
+
+      const current = await s.outcomes.current(['r0', 'r1', 'r2', 'zz']);
+      expect([...current.entries()].sort()).toEqual([
+        ['r0', { label: 'crack', observed_at: null }],
+        ['r1', { label: 'crack', observed_at: null }],
+      ]);
+      // r0 and r1 were answered ok, r3 crack: one of the three labelled answers was right.
+      expect(await s.outcomes.windowOutcomes('press', T0, T0 + 3_600_000)).toEqual({ scored: 8, labelled: 3, right: 1 });
+      expect(await s.outcomes.windowOutcomes('press', T0 + 2 * 60_000, T0 + 3_600_000)).toEqual({ scored: 6, labelled: 1, right: 1 });
+      expect(await s.outcomes.countScored(MODEL.sha256, T0, T0 + 3 * 60_000)).toBe(3);
+      const labelled = await allRows(s.outcomes.labelledRows(MODEL.sha256, T0, T0 + 3_600_000));
+      expect(labelled.map((r) => [r.received_at, r.label, r.actual, r.in_domain, r.review])).toEqual([
+        [T0, 'ok', 'crack', 1, 0],
+        [T0 + 60_000, 'ok', 'crack', 1, 0],
+        [T0 + 3 * 60_000, 'crack', 'crack', 1, 0],
+      ]);
+      expect(Buffer.from(labelled[2]!.probabilities).readDoubleLE(8)).toBe(0.13);
+      const vectors = await allRows(s.outcomes.loggedVectors('press', T0, T0 + 3_600_000, false));
+      expect(vectors.map((r) => [r.request_id, r.actual])).toEqual([['r0', 'crack'], ['r1', 'crack'], ['r2', null], ['r3', 'crack'], ['r4', null], ['r5', null], ['r6', null], ['r7', null]]);
+      expect(Buffer.from(vectors[4]!.features).readDoubleLE(0)).toBe(104.125);
+      expect((await allRows(s.outcomes.loggedVectors('press', T0, T0 + 3_600_000, true))).map((r) => r.request_id)).toEqual(['r0', 'r1', 'r3']);
+      expect(await s.outcomes.latestModel('press')).toMatchObject({ sha256: MODEL.sha256, classes: ['ok', 'crack'], features: RECORD.features });
+      expect(await s.outcomes.latestModel('other')).toBeNull();
+      expect(await s.outcomes.describeModel(MODEL.sha256)).toMatchObject({ name: 'press', version: '2' });
+      expect(await s.outcomes.describeModel('f'.repeat(64))).toBeNull();
+
+      // A label changed behind the store's back is found, at its row.
+      await kind.exec(location, "UPDATE outcomes SET label = 'ok' WHERE seq = 2");
+      expect(await s.outcomes.verifyChain()).toMatchObject({ intact: false, rows: 1, problem: { kind: 'changed', seq: 2, request_id: 'r1' } });
+    });
+
+    it('records none of a batch whose transaction fails in its middle', async () => {
+      const { store: s, location } = await open();
+      await s.log.append([outcomeRow(0), outcomeRow(1)]);
+      await kind.exec(
+        location,
+        kind.name === 'sqlite'
+          ? "CREATE TRIGGER fail_second BEFORE INSERT ON outcomes WHEN NEW.seq = 2 BEGIN SELECT RAISE(ABORT, 'disk I/O error'); END"
+          : "CREATE FUNCTION fail_second() RETURNS trigger LANGUAGE plpgsql AS $$ BEGIN IF NEW.seq = 2 THEN RAISE EXCEPTION 'disk I/O error'; END IF; RETURN NEW; END $$; CREATE TRIGGER fail_second BEFORE INSERT ON outcomes FOR EACH ROW EXECUTE FUNCTION fail_second()",
+      );
+      const batch = [item({ requestId: 'r0', label: 'ok' }), item({ requestId: 'r1', label: 'crack' })];
+      await expect(Promise.resolve().then(() => s.outcomes.record(batch, null, T0))).rejects.toThrow(/disk I\/O error/);
+      expect(await s.outcomes.verifyChain()).toMatchObject({ intact: true, rows: 0 });
+      await kind.exec(location, 'DROP TRIGGER fail_second' + (kind.name === 'sqlite' ? '' : ' ON outcomes'));
+      expect((await s.outcomes.record(batch, null, T0)).map((v) => v.status)).toEqual(['recorded', 'recorded']);
+      expect(await s.outcomes.verifyChain()).toMatchObject({ intact: true, rows: 2, head: { seq: 2 } });
     });
 
     it('says it is writable, and runs exclusive work', async () => {

@@ -3,7 +3,7 @@ import type { ChainAnchor, ChainVerdict } from '../../store/audit-verify.js';
 import { headFilePath, readHeadFile } from '../../store/head-file.js';
 import type { OutcomeChainVerdict } from '../../store/outcomes-store.js';
 import { openAuditReader } from '../../store/reader.js';
-import { verifyServerLog } from '../../store/postgres/open.js';
+import { verifyServerAudit } from '../../store/postgres/open.js';
 import { type CliIo, UsageError } from '../io.js';
 
 /** seq:hash, as `audit verify` prints the head. */
@@ -74,8 +74,9 @@ export function auditVerifyAction(ctx: { db: string; head?: ChainAnchor; json: b
  */
 export async function auditVerifyServerAction(ctx: { db: string; head?: ChainAnchor; json: boolean }, io: CliIo): Promise<AuditVerdict> {
   const use: HeadFileUse = { path: '', state: 'ignored', seq: null, written_at: null };
-  // Outcomes are kept on the SQLite store only (store/postgres/outcomes.ts): no outcome chain here.
-  const v: AuditVerdict = { ...(await verifyServerLog(ctx.db, ctx.head)), head_file: use, outcomes: null };
+  const { chain, outcomes } = await verifyServerAudit(ctx.db, ctx.head);
+  // The outcome rows chain on their own: the log is intact only when both chains are.
+  const v: AuditVerdict = { ...chain, intact: chain.intact && outcomes.intact, head_file: use, outcomes };
   return printVerdict(v, ctx, use, io);
 }
 

@@ -7,7 +7,7 @@ import { IncompatibleBundleError, compareCandidate } from '../../reports/compare
 import { renderCompareHtml } from '../../reports/compare-html.js';
 import { openRuntime } from '../../runtime.js';
 import { type CliIo, UsageError, fileProblem } from '../io.js';
-import { auditLogFile } from './store-location.js';
+import { auditLogAt } from './store-location.js';
 
 export interface CompareContext {
   db: string;
@@ -33,7 +33,7 @@ export function formatCompareSummary(r: CompareReport, candidateFile: string): s
 
 /** `plumbline compare`: a candidate bundle rescoring the logged vectors of a model, offline. */
 export async function compareAction(ctx: CompareContext, io: CliIo): Promise<CompareReport> {
-  const db = auditLogFile(ctx.db);
+  const db = auditLogAt(ctx.db);
   if (!(ctx.from.getTime() < ctx.to.getTime())) throw new UsageError(`--from ${ctx.from.toISOString()} must be before --to ${ctx.to.toISOString()}`);
   let candidate: LoadedBundle;
   try {
@@ -44,8 +44,8 @@ export async function compareAction(ctx: CompareContext, io: CliIo): Promise<Com
   const runtime = await openRuntime(configSchema.parse({ db }), { models: false });
   let report: CompareReport;
   try {
-    if (!runtime.store.outcomes.latestModel(ctx.model)) throw new UsageError(`${ctx.db}: the audit log holds no bundle for a model named ${JSON.stringify(ctx.model)}`);
-    report = compareCandidate(runtime.store.outcomes, ctx.model, candidate, { from: ctx.from.getTime(), to: ctx.to.getTime() });
+    if (!(await runtime.store.outcomes.latestModel(ctx.model))) throw new UsageError(`${ctx.db}: the audit log holds no bundle for a model named ${JSON.stringify(ctx.model)}`);
+    report = await compareCandidate(runtime.store.outcomes, ctx.model, candidate, { from: ctx.from.getTime(), to: ctx.to.getTime() });
   } catch (err) {
     if (err instanceof IncompatibleBundleError) throw new UsageError(`--candidate ${ctx.candidate}: ${err.message}`);
     throw err;

@@ -69,10 +69,10 @@ export async function demoAction(ctx: DemoContext, io: CliIo): Promise<DemoResul
   say('3. the drift report for that day (what the nightly job makes):');
   const report = await services.reports.run(DEMO_MODEL, { from: dayStart, to: today }, 'demo');
   for (const line of formatReportSummary(report).split('\n')) say(`   ${line}`);
-  const inspected = recordDemoOutcomes(services.store.outcomes, DEMO_MODEL, replay.shots);
+  const inspected = await recordDemoOutcomes(services.store.outcomes, DEMO_MODEL, replay.shots);
   say(`4. the inspection station's results, for every ${INSPECTED_EVERY === 3 ? 'third' : `${INSPECTED_EVERY}th`} shot, 40 minutes after it (as POST /v1/outcomes takes them): ${inspected.recorded} recorded`);
   say('   the outcomes report for that day (how right the answers were):');
-  const outcomes = outcomesReportFor(services.store.outcomes, DEMO_MODEL, { from: dayStart, to: today }) as OutcomesReport;
+  const outcomes = (await outcomesReportFor(services.store.outcomes, DEMO_MODEL, { from: dayStart, to: today })) as OutcomesReport;
   for (const line of formatOutcomesSummary(outcomes).split('\n')) say(`   ${line}`);
   const url = `${server.url}/v1/drift-reports/${report.id}.html`;
   const window = `from=${new Date(dayStart).toISOString()}&to=${new Date(today).toISOString()}`;

@@ -3,9 +3,10 @@ import { once } from 'node:events';
 import { configSchema } from '../../config/config.js';
 import { openRuntime } from '../../runtime.js';
 import { fromFloat64Blob } from '../../store/float64-blob.js';
-import type { ModelRecord } from '../../store/models-table.js';
+import { forEachRow } from '../../store/awaitable.js';
+import type { LoggedVectorView } from '../../store/outcomes-store.js';
 import { type CliIo, UsageError, fileProblem } from '../io.js';
-import { auditLogFile } from './store-location.js';
+import { auditLogAt } from './store-location.js';
 
 export interface ExportContext {
   db: string;
@@ -35,19 +36,19 @@ const field = (s: string): string => (/[",\r\n]/.test(s) ? `"${s.replaceAll('"',
  * shortest decimal that reads back to the same float64, so nothing is lost on the way.
  */
 export async function exportAction(ctx: ExportContext, io: CliIo): Promise<ExportSummary> {
-  const db = auditLogFile(ctx.db);
+  const db = auditLogAt(ctx.db);
   if (!(ctx.from.getTime() < ctx.to.getTime())) throw new UsageError(`--from ${ctx.from.toISOString()} must be before --to ${ctx.to.toISOString()}`);
   const runtime = await openRuntime(configSchema.parse({ db }), { models: false });
   try {
     const outcomes = runtime.store.outcomes;
-    const latest = outcomes.latestModel(ctx.model);
+    const latest = await outcomes.latestModel(ctx.model);
     if (!latest) throw new UsageError(`${ctx.db}: the audit log holds no bundle for a model named ${JSON.stringify(ctx.model)}`);
     const names = latest.features.map((f) => f.name);
     const same = new Map<string, boolean>();
-    const fits = (sha256: string): boolean => {
+    const fits = async (sha256: string): Promise<boolean> => {
       let ok = same.get(sha256);
       if (ok === undefined) {
-        const m: ModelRecord | null = outcomes.describeModel(sha256);
+        const m = await outcomes.describeModel(sha256);
         ok = m !== null && m.features.length === names.length && m.features.every((f, j) => f.name === names[j]);
         same.set(sha256, ok);
       }
@@ -64,16 +65,17 @@ export async function exportAction(ctx: ExportContext, io: CliIo): Promise<Expor
     };
     try {
       await write(`${['request_id', 'received_at', ...names, 'label'].map(field).join(',')}\n`);
-      for (const row of outcomes.loggedVectors(ctx.model, ctx.from.getTime(), ctx.to.getTime(), ctx.outcomes === 'only')) {
-        if (!fits(row.model_sha256)) {
+      // The CLI's own connection: nothing else reads or writes on it while the rows stream.
+      await forEachRow(outcomes.loggedVectors(ctx.model, ctx.from.getTime(), ctx.to.getTime(), ctx.outcomes === 'only'), async (row: LoggedVectorView) => {
+        if (!(await fits(row.model_sha256))) {
           summary.otherFeatures++;
-          continue;
+          return;
         }
         const x = fromFloat64Blob(row.features);
         await write(`${row.request_id},${new Date(row.received_at).toISOString()},${Array.from(x, (v) => String(v)).join(',')},${field(row.actual ?? '')}\n`);
         summary.rows++;
         if (row.actual !== null) summary.labelled++;
-      }
+      });
     } finally {
       out.end();
       await once(out, 'close');

@@ -5,8 +5,9 @@ import { type CliIo, UsageError } from '../io.js';
 
 /**
  * `plumbline migrate-log --from FILE --to URL`: copies a SQLite audit log into an empty
- * PostgreSQL database, the chain unchanged and checked row by row, then verifies it on the server
- * and prints the head, which is the head `audit verify --db FILE` printed.
+ * PostgreSQL database, both chains (the scored rows' and the outcomes') unchanged and checked row
+ * by row, then verifies them on the server and prints the heads, which are the heads `audit
+ * verify --db FILE` printed.
  */
 export async function migrateLogAction(ctx: { from: string; to: string }, io: CliIo): Promise<CopyOutcome> {
   if (!existsSync(ctx.from)) throw new UsageError(`--from ${ctx.from}: no such file`);
@@ -29,6 +30,14 @@ export async function migrateLogAction(ctx: { from: string; to: string }, io: Cl
   if (out.duplicateNightlyReports > 0) io.stdout.write(`${out.duplicateNightlyReports} nightly report(s) of a model and day already copied were left out (one per model and day)\n`);
   const v = out.verdict;
   io.stdout.write(v.intact ? `intact on the server: ${v.rows} rows chain to row ${v.head.seq}\nhead ${v.head.seq}:${v.head.hash}\n` : `NOT intact on the server: ${v.problem?.detail}\n`);
-  if (!v.intact) process.exitCode = 1;
+  const o = out.outcomes;
+  io.stdout.write(
+    !o.intact
+      ? `outcomes NOT intact on the server: ${o.problem?.detail}\n`
+      : o.rows === 0
+        ? 'outcomes: none recorded\n'
+        : `outcomes intact on the server: ${o.rows} outcome${o.rows === 1 ? ' chains' : 's chain'} to ${o.head.seq} (head ${o.head.seq}:${o.head.hash})\n`,
+  );
+  if (!v.intact || !o.intact) process.exitCode = 1;
   return out;
 }

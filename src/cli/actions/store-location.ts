@@ -1,12 +1,13 @@
 import { existsSync } from 'node:fs';
+import { isServerUrl } from '../../store/location.js';
 import { UsageError } from '../io.js';
 
 /**
- * The --db of the commands that read the audit log: a SQLite file that must exist. A
- * postgres:// URL is the other store (issue 16), which this version cannot open yet.
+ * The --db of the commands that read the audit log: a postgres:// or postgresql:// URL (the
+ * store several replicas share), or a SQLite file that must exist.
  */
-export function auditLogFile(db: string): string {
-  if (/^postgres(ql)?:\/\//i.test(db)) throw new UsageError(`--db ${db.replace(/\/\/[^@/]*@/, '//***@')}: this version of plumbline reads the audit log from a SQLite file only`);
+export function auditLogAt(db: string): string {
+  if (isServerUrl(db)) return db;
   if (!existsSync(db)) throw new UsageError(`--db ${db}: no such file`);
   return db;
 }

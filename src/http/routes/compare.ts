@@ -46,7 +46,7 @@ const compare: FastifyPluginAsyncZod = async (app) => {
       if (!(from < to)) throw new ProblemError('invalid-request', 'the window is empty', [{ parameter: req.query.to !== undefined ? 'to' : 'from', detail: 'must be later than from' }]);
       if (to - from > MAX_WINDOW_MS) throw new ProblemError('invalid-request', 'the window is too long', [{ parameter: 'from', detail: 'the window may span at most 366 days' }]);
       const name = req.params.name;
-      if (!app.store.outcomes.latestModel(name)) throw new ProblemError('unlogged-model', `the audit log holds no bundle for a model named ${JSON.stringify(name)}`);
+      if (!(await app.store.outcomes.latestModel(name))) throw new ProblemError('unlogged-model', `the audit log holds no bundle for a model named ${JSON.stringify(name)}`);
       let candidate: LoadedBundle;
       try {
         candidate = parseBundle(JSON.stringify(req.body), 'the body');
@@ -55,7 +55,7 @@ const compare: FastifyPluginAsyncZod = async (app) => {
         throw err;
       }
       try {
-        return compareCandidate(app.store.outcomes, name, candidate, { from, to });
+        return await compareCandidate(app.store.outcomes, name, candidate, { from, to });
       } catch (err) {
         if (err instanceof IncompatibleBundleError) throw new ProblemError('incompatible-bundle', err.message);
         throw err;

@@ -18,12 +18,12 @@ export const outcomesReportQuerySchema = z.strictObject({
 });
 
 const outcomesReport: FastifyPluginAsyncZod = async (app) => {
-  const build = (name: string, q: { from?: string | undefined; to?: string | undefined }): OutcomesReport => {
+  const build = async (name: string, q: { from?: string | undefined; to?: string | undefined }): Promise<OutcomesReport> => {
     const to = q.to !== undefined ? Date.parse(q.to) : Date.now();
     const from = q.from !== undefined ? Date.parse(q.from) : to - DAY;
     if (!(from < to)) throw new ProblemError('invalid-request', 'the window is empty', [{ parameter: q.to !== undefined ? 'to' : 'from', detail: 'must be later than from' }]);
     if (to - from > MAX_WINDOW_MS) throw new ProblemError('invalid-request', 'the window is too long', [{ parameter: 'from', detail: 'the window may span at most 366 days' }]);
-    const report = outcomesReportFor(app.store.outcomes, name, { from, to });
+    const report = await outcomesReportFor(app.store.outcomes, name, { from, to });
     if (!report) throw new ProblemError('unlogged-model', `the audit log holds no bundle for a model named ${JSON.stringify(name)}`);
     return report;
   };
@@ -44,7 +44,7 @@ const outcomesReport: FastifyPluginAsyncZod = async (app) => {
       },
     },
     async (req, reply) => {
-      const report = build(req.params.name, req.query);
+      const report = await build(req.params.name, req.query);
       if (req.query.format === 'html') return reply.type('text/html; charset=utf-8').serializer((s: unknown) => s as string).send(renderOutcomesHtml(report));
       return report;
     },
@@ -62,7 +62,7 @@ const outcomesReport: FastifyPluginAsyncZod = async (app) => {
         response: { 200: { description: 'the page', content: { 'text/html': { schema: z.string() } } }, ...errors },
       },
     },
-    async (req, reply) => reply.type('text/html; charset=utf-8').send(renderOutcomesHtml(build(req.params.name, req.query))),
+    async (req, reply) => reply.type('text/html; charset=utf-8').send(renderOutcomesHtml(await build(req.params.name, req.query))),
   );
 };
 

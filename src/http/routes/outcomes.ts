@@ -21,7 +21,13 @@ export function outcomeSchemas(limits: Config['limits']) {
       model: z.string().min(1).max(64).optional().describe('with tag: look only among the answers of this model'),
       label: z.string().min(1).max(64).describe("what the part turned out to be: a class of the answer's model"),
       observed_at: isoTime.optional().describe('when the line found it'),
-      source: z.string().max(256).optional().describe('where the truth came from: a station, a gauge, a customer return'),
+      // PostgreSQL's text cannot hold NUL; refused on either store, so that both give the same answer.
+      source: z
+        .string()
+        .max(256)
+        .refine((v) => !v.includes('\u0000'), 'must not contain the NUL character (U+0000)')
+        .optional()
+        .describe('where the truth came from: a station, a gauge, a customer return'),
       replace: z.boolean().optional().describe('true: record this label over a different one recorded before'),
     })
     .refine((i) => (i.request_id === undefined) !== (i.tag === undefined), { message: 'give exactly one of request_id and tag', path: ['request_id'] })
@@ -111,7 +117,7 @@ const outcomes: FastifyPluginAsyncZod = async (app) => {
       });
       let verdicts;
       try {
-        verdicts = app.store.outcomes.record(
+        verdicts = await app.store.outcomes.record(
           inputs.map((x) => x.input),
           req.apiKey?.label ?? null,
         );

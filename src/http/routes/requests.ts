@@ -53,7 +53,7 @@ const requests: FastifyPluginAsyncZod = async (app) => {
         ...(tags.length > 0 ? { tags } : {}),
       };
       const page = await withCursor(() => app.store.queryRequests(filter, q.limit, q.cursor));
-      const outcomes = app.store.outcomes.current(page.items.map((i) => i.request_id));
+      const outcomes = await app.store.outcomes.current(page.items.map((i) => i.request_id));
       return {
         items: page.items.map((i) => {
           const o = outcomes.get(i.request_id);

@@ -2,8 +2,11 @@ import BetterSqlite3, { type Database } from 'better-sqlite3';
 import { type ChainVerdict, type StoredRow, startChainWalk } from '../audit-verify.js';
 import { maskUrl } from '../location.js';
 import { readMigrations } from '../migrate.js';
+import type { OutcomeRow } from '../outcome-chain.js';
+import { type OutcomeChainVerdict, startOutcomeWalk } from '../outcomes-store.js';
 import { type PoolClient, ServerError } from './pool.js';
 import { connectServer } from './open.js';
+import { verifyServerOutcomes } from './outcomes.js';
 import { verifyServerChain } from './verify.js';
 
 /** Why a log cannot be copied: said to the person running migrate-log. */
@@ -21,12 +24,14 @@ export interface CopyOutcome {
   duplicateNightlyReports: number;
   /** The chain as audit verify reads it from the server after the copy. */
   verdict: ChainVerdict;
+  /** The outcome chain, likewise. */
+  outcomes: OutcomeChainVerdict;
 }
 
 /** Scored rows read and written per statement. */
 const CHUNK = 1000;
 
-/** The tables copied as they are, in an order their references allow; scored_requests apart. */
+/** The tables copied as they are, in an order their references allow; scored_requests and outcomes apart. */
 const TABLES = ['models', 'api_keys', 'retention_cuts', 'rejected_requests', 'drift_reports', 'alerts', 'outbox'] as const;
 /** Tables whose seq the server numbers from a sequence: it goes on after the rows copied. */
 const SEQUENCED = ['rejected_requests', 'drift_reports', 'alerts', 'outbox'] as const;
@@ -64,10 +69,11 @@ function checkSource(db: Database, file: string): void {
 
 /**
  * Copies an audit log from a SQLite file into an empty PostgreSQL database, in one transaction:
- * every table, scored rows with their seq and chain hash unchanged. Each scored row's hash is
- * recomputed as it is copied (the walk of audit-verify.ts), and the copy is refused, with
- * nothing written, when the file's chain is not intact or the server already holds a log. The
- * server's chain head is set to the last row, so that the replicas chain on from it.
+ * every table, scored rows and outcomes with their seq and chain hash unchanged. Each row's hash
+ * is recomputed as it is copied (the walks of audit-verify.ts and outcomes-store.ts), and the
+ * copy is refused, with nothing written, when either chain of the file is not intact or the
+ * server already holds a log. The server's chain heads are set to the last rows, so that the
+ * replicas chain on from them.
  */
 export async function copySqliteLog(file: string, url: string, onProgress: (scored: number) => void = () => undefined): Promise<CopyOutcome> {
   const db = new BetterSqlite3(file, { readonly: true, fileMustExist: true });
@@ -84,6 +90,10 @@ export async function copySqliteLog(file: string, url: string, onProgress: (scor
         const head = (await client.query<{ seq: number }>('SELECT seq FROM chain_head WHERE id = 1 FOR UPDATE')).rows[0];
         const held = (await client.query<{ n: number }>('SELECT COUNT(*) AS n FROM scored_requests')).rows[0]?.n ?? 0;
         if ((head?.seq ?? 0) !== 0 || held > 0) throw new CopyRefusedError(`${maskUrl(url)} already holds an audit log (chain head at row ${head?.seq ?? 0}); copy into an empty database`);
+        // Nor may a replica record outcomes meanwhile.
+        const outcomeHead = (await client.query<{ seq: number }>('SELECT seq FROM outcome_chain_head WHERE id = 1 FOR UPDATE')).rows[0];
+        const heldOutcomes = (await client.query<{ n: number }>('SELECT COUNT(*) AS n FROM outcomes')).rows[0]?.n ?? 0;
+        if ((outcomeHead?.seq ?? 0) !== 0 || heldOutcomes > 0) throw new CopyRefusedError(`${maskUrl(url)} already holds outcomes (outcome chain head at ${outcomeHead?.seq ?? 0}); copy into an empty database`);
         for (const table of TABLES) {
           const columns = [...(await serverColumns(client, table))];
           const source = db.prepare(`SELECT * FROM ${table}`).all() as Array<Record<string, unknown>>;
@@ -122,6 +132,24 @@ export async function copySqliteLog(file: string, url: string, onProgress: (scor
         const end = walk.finish();
         rows.scored_requests = copied;
         await client.query('UPDATE chain_head SET seq = $1, hash = $2 WHERE id = 1', [end.head.seq, Buffer.from(end.head.hash, 'hex')]);
+        // The outcomes, in seq order, each checked against their own chain before it is written.
+        const outcomeWalk = startOutcomeWalk();
+        const outcomeColumns = [...(await serverColumns(client, 'outcomes'))];
+        let outcomesCopied = 0;
+        let afterOutcome = 0;
+        for (;;) {
+          const page = db.prepare('SELECT * FROM outcomes WHERE seq > ? ORDER BY seq LIMIT ?').all(afterOutcome, CHUNK) as Array<OutcomeRow & { chain_hash: Buffer }>;
+          if (page.length === 0) break;
+          for (const row of page) {
+            const stop = outcomeWalk.push(row);
+            if (stop) throw new CopyRefusedError(`${file}: the outcome chain is not intact (${stop.problem?.kind} at outcome ${stop.problem?.seq}: ${stop.problem?.detail}); nothing was copied. plumbline audit verify --db ${file} says more`);
+          }
+          outcomesCopied += await insertRows(client, 'outcomes', outcomeColumns, page as unknown as Array<Record<string, unknown>>);
+          afterOutcome = (page[page.length - 1] as OutcomeRow).seq;
+        }
+        rows.outcomes = outcomesCopied;
+        const outcomeEnd = outcomeWalk.finish();
+        await client.query('UPDATE outcome_chain_head SET seq = $1, hash = $2 WHERE id = 1', [outcomeEnd.head.seq, Buffer.from(outcomeEnd.head.hash, 'hex')]);
         for (const table of SEQUENCED) {
           await client.query(`SELECT setval(pg_get_serial_sequence('${table}', 'seq'), COALESCE((SELECT MAX(seq) FROM ${table}), 0) + 1, false)`);
         }
@@ -133,7 +161,7 @@ export async function copySqliteLog(file: string, url: string, onProgress: (scor
         throw new ServerError(url, err);
       }
       client.release();
-      return { rows, duplicateNightlyReports, verdict: await verifyServerChain(pool) };
+      return { rows, duplicateNightlyReports, verdict: await verifyServerChain(pool), outcomes: await verifyServerOutcomes(pool) };
     } finally {
       await pool.end();
     }

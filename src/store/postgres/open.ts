@@ -1,5 +1,6 @@
-import { serverOutcomesUnsupported } from './outcomes.js';
+import type { ChainVerdict } from '../audit-verify.js';
 import type { Coordination, Store } from '../contract.js';
+import type { OutcomeChainVerdict } from '../outcomes-store.js';
 import type { KeysStore } from '../keys-store.js';
 import { maskUrl } from '../location.js';
 import { MigrationError } from '../migrate.js';
@@ -9,6 +10,7 @@ import { createServerDriftStore } from './drift.js';
 import { createServerHealth } from './health.js';
 import { createServerKeysStore } from './keys.js';
 import { migrateServer } from './migrate.js';
+import { createServerOutcomesStore, verifyServerOutcomes } from './outcomes.js';
 import { type Pool, SERVER_DEFAULTS, ServerError, type ServerOptions, createPool, lockKey } from './pool.js';
 import { createServerLog } from './request-log.js';
 import { createServerRequestQuery, recordServerModel } from './requests.js';
@@ -76,7 +78,7 @@ export async function openServerStore(url: string, options: ServerStoreOptions):
     drift: createServerDriftStore(pool),
     alerts: createServerAlertsStore(pool),
     keys: createServerKeysStore(pool),
-    outcomes: serverOutcomesUnsupported(),
+    outcomes: createServerOutcomesStore(pool, url),
     retention: createServerRetention(pool),
     coordination: serverCoordination(pool),
     verifyChain: (anchor) => verifyServerChain(pool, anchor),
@@ -111,6 +113,16 @@ export async function verifyServerLog(url: string, anchor?: Parameters<typeof ve
   const pool = await connectServer(url, { poolSize: 2 });
   try {
     return await verifyServerChain(pool, anchor);
+  } finally {
+    await pool.end();
+  }
+}
+
+/** audit verify --db URL: the scored rows' chain and the outcome chain, read from the server. */
+export async function verifyServerAudit(url: string, anchor?: Parameters<typeof verifyServerChain>[1]): Promise<{ chain: ChainVerdict; outcomes: OutcomeChainVerdict }> {
+  const pool = await connectServer(url, { poolSize: 2 });
+  try {
+    return { chain: await verifyServerChain(pool, anchor), outcomes: await verifyServerOutcomes(pool) };
   } finally {
     await pool.end();
   }

@@ -46,6 +46,7 @@ describe.skipIf(serverUrl === null)('replicas on one PostgreSQL database', () =>
     expect(await sql(url, 'SELECT version, name FROM schema_migrations ORDER BY version')).toEqual([
       { version: 1, name: 'initial' },
       { version: 2, name: 'retention_cuts' },
+      { version: 3, name: 'outcomes' },
     ]);
   });
 
@@ -63,6 +64,35 @@ describe.skipIf(serverUrl === null)('replicas on one PostgreSQL database', () =>
     expect(await sql(url, 'SELECT seq::int AS seq FROM chain_head')).toEqual([{ seq: 330 }]);
     // the one chain, read from another replica, says the same
     expect((await c!.verifyChain()).head).toEqual(v.head);
+  });
+
+  it('chain the outcomes recorded through every replica into one chain, in commit order', async () => {
+    const { url, stores: [a, b, c] } = await replicas(3);
+    await a!.log.append(Array.from({ length: 90 }, (_, i) => row(`o${i}`, i)));
+    // 30 batches of 3 at once, spread over the replicas; each answer is named twice, so that a
+    // batch must see what another replica's batch recorded before it (unchanged, not twice).
+    const batches = Array.from({ length: 30 }, (_, k) => [0, 1, 2].map((j) => ({ requestId: `o${(k * 3 + j * 7) % 90}`, label: (k + j) % 2 ? 'bad' : 'ok', observedAt: null, source: null, replace: true })));
+    const verdicts = (await Promise.all(batches.map((batch, k) => ([a, b, c][k % 3] as Store).outcomes.record(batch, `replica ${k % 3}`)))).flat();
+    const recorded = verdicts.filter((v) => v.status === 'recorded').length;
+    expect(recorded + verdicts.filter((v) => v.status === 'unchanged').length).toBe(90);
+    const v = await b!.outcomes.verifyChain();
+    expect(v).toMatchObject({ intact: true, rows: recorded, head: { seq: recorded }, problem: null });
+    expect(await sql(url, 'SELECT COUNT(DISTINCT seq)::int AS n, MIN(seq)::int AS lo, MAX(seq)::int AS hi FROM outcomes')).toEqual([{ n: recorded, lo: 1, hi: recorded }]);
+    expect(await sql(url, 'SELECT seq::int AS seq FROM outcome_chain_head')).toEqual([{ seq: recorded }]);
+    // every replica reads the same newest outcome of each answer
+    const ids = Array.from({ length: 90 }, (_, i) => `o${i}`);
+    const seen = await Promise.all([a, c].map(async (s) => [...(await s!.outcomes.current(ids)).entries()].sort()));
+    expect(seen[0]).toEqual(seen[1]);
+    // each row names as replaced the row of its answer just before it (none for the first), with another label
+    const misnamed = await sql<{ n: number }>(
+      url,
+      `SELECT COUNT(*)::int AS n FROM outcomes o WHERE o.replaces IS DISTINCT FROM (SELECT MAX(p.seq) FROM outcomes p WHERE p.request_id = o.request_id AND p.seq < o.seq)
+         OR EXISTS (SELECT 1 FROM outcomes p WHERE p.seq = o.replaces AND p.label = o.label)`,
+    );
+    expect(misnamed).toEqual([{ n: 0 }]);
+    // an outcome cut from the end is told by the head row, which every batch moved
+    await sql(url, `DELETE FROM outcomes WHERE seq = ${recorded}`);
+    expect(await a!.outcomes.verifyChain()).toMatchObject({ intact: false, rows: recorded - 1, problem: { kind: 'removed', seq: recorded } });
   });
 
   it('store one nightly report per model and day, whoever saves it', async () => {
