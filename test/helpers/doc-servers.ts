@@ -44,7 +44,10 @@ export async function startDocServer(options: { config?: Record<string, unknown>
     mkdirSync(models);
     if (options.models === 'copy') copyFileSync(new URL('../../demo-data/models/moulding-quality.bundle.json', import.meta.url), join(models, 'moulding-quality.bundle.json'));
   }
-  const config = configSchema.parse({ port: 0, models_dir: models, db, logger: { level: 'silent' }, reports: { schedule: 'off' }, ...options.config });
+  // No load shedding unless asked for: these servers share the test's event loop, which the
+  // examples' own work (replaying the demo day, drift reports) lags on a loaded machine.
+  const limits = { event_loop_delay_ms: 0, ...(options.config?.limits as Record<string, unknown> | undefined) };
+  const config = configSchema.parse({ port: 0, models_dir: models, db, logger: { level: 'silent' }, reports: { schedule: 'off' }, ...options.config, limits });
   const server = await startServer(config, { logger: pino({ level: 'silent' }), timers: false });
   return {
     server,

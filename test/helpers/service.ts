@@ -40,7 +40,10 @@ export async function startTestService(options: { bundles?: AnyBundleFile[]; con
   mkdirSync(modelsDir);
   for (const b of options.bundles ?? [iris()]) await writeBundle(join(modelsDir, `${b.name}.bundle.json`), b);
   const dbFile = options.dbFile ?? join(tmp.dir, 'audit.db');
-  const config = configSchema.parse({ models_dir: modelsDir, db: dbFile, ...options.config });
+  // No load shedding unless a test asks for it: the app shares its event loop with the test's own
+  // work (training, replaying a day), which on a loaded machine lags it past the service's limit.
+  const limits = { event_loop_delay_ms: 0, ...(options.config?.limits as Record<string, unknown> | undefined) };
+  const config = configSchema.parse({ models_dir: modelsDir, db: dbFile, ...options.config, limits });
   const runtime = await openRuntime(config, options.logger ? { log: options.logger } : {});
   const { registry } = runtime;
   // A file path: the SQLite store, whose parts answer synchronously.
