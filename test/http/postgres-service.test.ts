@@ -62,4 +62,43 @@ describe.skipIf(serverUrl === null)('the service on PostgreSQL', () => {
     const verdict = await auditVerifyServerAction({ db, json: false }, quiet());
     expect(verdict).toMatchObject({ intact: true, rows: 7, head: { seq: 7 } });
   }, 60_000);
+
+  it('finds rows by tag when another row holds a NUL in a tag value or the pair inside a key', async () => {
+    const db = await freshDatabase();
+    const runtime = await openRuntime(configSchema.parse({ db, models_dir: 'demo-data/models', reports: { schedule: 'off' } }));
+    const own = await buildApp(runtime);
+    try {
+      await own.ready();
+      const score = async (tags: Record<string, string>): Promise<string> => {
+        const r = await own.inject({ method: 'POST', url: '/v1/models/moulding-quality/score', payload: { features: SHOT, tags } });
+        expect(r.statusCode).toBe(200);
+        return r.json().request_id as string;
+      };
+      const a = await score({ line: '3' });
+      // jsonb cannot hold this value: a cast of its row would fail every tag query
+      const c = await score({ line: '3', note: 'a\u0000b' });
+      // its text holds "line":"3" (after the escaped quote of the key), yet it has no tag line
+      await score({ 'xx"line': '3' });
+      const d = await score({ line: '3' });
+      const page = (url: string) => own.inject({ url }).then((r) => {
+        expect(r.statusCode).toBe(200);
+        return r.json() as { items: Array<{ request_id: string; tags: Record<string, string> }>; next_cursor: string | null };
+      });
+      const all = await page('/v1/requests?tag=line:3');
+      expect(all.items.map((i) => i.request_id)).toEqual([d, c, a]);
+      expect(all.items[1]?.tags.note).toBe('a\u0000b');
+      // one a page: the row that only looks like a match is passed over, not counted
+      const ids: string[] = [];
+      let cursor: string | null = null;
+      do {
+        const p = await page(`/v1/requests?tag=line:3&limit=1${cursor ? `&cursor=${cursor}` : ''}`);
+        ids.push(...p.items.map((i) => i.request_id));
+        cursor = p.next_cursor;
+      } while (cursor !== null);
+      expect(ids).toEqual([d, c, a]);
+      expect((await page(`/v1/requests?tag=${encodeURIComponent('xx"line:3')}`)).items).toHaveLength(1);
+    } finally {
+      await own.close();
+    }
+  }, 60_000);
 });

@@ -18,6 +18,7 @@ import {
 } from '../outcomes-store.js';
 import { cursorPages } from './drift.js';
 import { type Pool, type PoolClient, ServerError } from './pool.js';
+import { carries, pairText } from './tag-match.js';
 
 /** Outcome rows per INSERT statement: 9 parameters a row, under the protocol's 65,535. */
 const ROWS_PER_INSERT = 2000;
@@ -54,23 +55,6 @@ function modelCache(): (q: Queryable, sha256: string) => Promise<ModelRecord | n
 }
 
 /**
- * Whether stored tags (the JSON text written when scoring) carry every pair, each as a string:
- * what SQLite's json_each test says, decided here in Node rather than with a cast to jsonb, which
- * refuses the text of a value holding an escaped NUL (\u0000).
- */
-function carries(tags: string, pairs: ReadonlyArray<readonly [string, string]>): boolean {
-  let parsed: unknown;
-  try {
-    parsed = JSON.parse(tags);
-  } catch {
-    return false;
-  }
-  if (parsed === null || typeof parsed !== 'object' || Array.isArray(parsed)) return false;
-  const t = parsed as Record<string, unknown>;
-  return pairs.every(([k, v]) => Object.hasOwn(t, k) && t[k] === v);
-}
-
-/**
  * The answer an item names, read on the server: by request id, or by tag, where the JSON text
  * of each pair (as JSON.stringify wrote the tags) narrows the rows in SQL and the parsed tags
  * decide; pages in seq order until two answers carry it (then it is ambiguous).
@@ -88,7 +72,7 @@ async function findTarget(client: PoolClient, item: OutcomeInput): Promise<Targe
   const arg = (v: unknown): string => `$${args.push(v)}`;
   const where = ['tags IS NOT NULL'];
   if (item.model !== undefined) where.push(`model_name = ${arg(item.model)}`);
-  for (const [k, v] of pairs) where.push(`strpos(tags, ${arg(`${JSON.stringify(k)}:${JSON.stringify(v)}`)}) > 0`);
+  for (const [k, v] of pairs) where.push(`strpos(tags, ${arg(pairText(k, v))}) > 0`);
   const after = arg(0);
   const sql = `SELECT seq, request_id, model_sha256, model_name, tags FROM scored_requests WHERE ${where.join(' AND ')} AND seq > ${after} ORDER BY seq LIMIT ${TAG_PAGE}`;
   const hits: Target[] = [];

@@ -3,6 +3,7 @@ import type { ChainedRow } from '../chain.js';
 import type { ModelRecord } from '../models-table.js';
 import { type RequestFilter, requestCursor, toItem } from '../request-query.js';
 import type { Pool } from './pool.js';
+import { carries, pairText } from './tag-match.js';
 
 /** Records a bundle when loaded, as models-table.ts does on SQLite. */
 export async function recordServerModel(pool: Pool, m: ModelRecord, now = Date.now()): Promise<void> {
@@ -36,21 +37,33 @@ export function createServerRequestQuery(pool: Pool): {
   const model = serverModelCache(pool);
   return {
     async query(filter, limit, cursor) {
+      // PostgreSQL text holds no NUL: a model or label with one names no row (and would be refused).
+      if ([filter.model, filter.label].some((s) => s?.includes('\u0000'))) return { items: [], next_cursor: null };
+      const pairs = filter.tags ?? [];
       const where: string[] = [];
       const args: unknown[] = [];
       const arg = (v: unknown): string => `$${args.push(v)}`;
-      if (cursor !== undefined) where.push(`seq < ${arg(requestCursor.decode(cursor))}`);
       if (filter.model !== undefined) where.push(`model_name = ${arg(filter.model)}`);
       if (filter.from !== undefined) where.push(`received_at >= ${arg(filter.from)}`);
       if (filter.to !== undefined) where.push(`received_at < ${arg(filter.to)}`);
       if (filter.inDomain !== undefined) where.push(`in_domain = ${arg(filter.inDomain ? 1 : 0)}`);
       if (filter.label !== undefined) where.push(`label = ${arg(filter.label)}`);
-      // Tags are stored as the JSON text written; jsonb only to look inside it.
-      for (const [k, v] of filter.tags ?? []) where.push(`(tags::jsonb -> ${arg(k)}) = to_jsonb(${arg(v)}::text)`);
-      const sql = `SELECT * FROM scored_requests ${where.length ? `WHERE ${where.join(' AND ')}` : ''} ORDER BY seq DESC LIMIT ${arg(limit + 1)}`;
-      const rows = (await pool.query(sql, args)).rows as ChainedRow[];
-      const more = rows.length > limit;
-      const page = more ? rows.slice(0, limit) : rows;
+      // Tags: narrowed by the pair's JSON text, decided on the parsed tags (tag-match.ts).
+      for (const [k, v] of pairs) where.push(`strpos(tags, ${arg(pairText(k, v))}) > 0`);
+      const before = arg(cursor === undefined ? null : requestCursor.decode(cursor));
+      where.push(`(${before}::bigint IS NULL OR seq < ${before}::bigint)`);
+      // Without tags every row read is kept; with them a page of rows may keep fewer, so read on.
+      const size = pairs.length === 0 ? limit + 1 : Math.max(limit + 1, 200);
+      const sql = `SELECT * FROM scored_requests WHERE ${where.join(' AND ')} ORDER BY seq DESC LIMIT ${arg(size)}`;
+      const kept: ChainedRow[] = [];
+      for (;;) {
+        const rows = (await pool.query(sql, args)).rows as ChainedRow[];
+        for (const r of rows) if (pairs.length === 0 || carries(r.tags, pairs)) kept.push(r);
+        if (kept.length > limit || rows.length < size) break;
+        args[Number(before.slice(1)) - 1] = (rows[rows.length - 1] as ChainedRow).seq;
+      }
+      const more = kept.length > limit;
+      const page = more ? kept.slice(0, limit) : kept;
       const items: LoggedRequest[] = [];
       for (const r of page) items.push(toItem(r, await model(r.model_sha256)));
       return { items, next_cursor: more ? requestCursor.encode((page[page.length - 1] as ChainedRow).seq) : null };
