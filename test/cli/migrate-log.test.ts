@@ -92,4 +92,17 @@ describe.skipIf(serverUrl === null)('plumbline migrate-log', () => {
     await migrateLogAction({ from: good, to: url }, io());
     await expect(migrateLogAction({ from: good, to: url }, io())).rejects.toThrow(/already holds an audit log \(chain head at row 2500\)/);
   });
+
+  it('refuses a file whose text holds a NUL that PostgreSQL cannot keep, naming table, row and column, writing nothing', async () => {
+    const file = await sqliteLog('nul.db');
+    // an outcome recorded before the service refused a NUL in source: chained, so verify passes
+    const s = openStore(file, OPTIONS);
+    s.outcomes.record([{ requestId: 'm2400', label: 'bad', observedAt: null, source: 'gauge\u00007', replace: true }], 'qa', T0 + 3);
+    s.close();
+    expect((await auditVerifyAction({ db: file, json: false }, io())).outcomes).toMatchObject({ intact: true, rows: 301 });
+    const url = await freshDatabase();
+    await expect(migrateLogAction({ from: file, to: url }, io())).rejects.toThrow(/nul\.db: outcomes row 301 holds a NUL character in source, which PostgreSQL text cannot hold; nothing was copied/);
+    expect(await sql(url, 'SELECT COUNT(*)::int AS n FROM scored_requests')).toEqual([{ n: 0 }]);
+    expect(await sql(url, 'SELECT COUNT(*)::int AS n FROM outcomes')).toEqual([{ n: 0 }]);
+  });
 });

@@ -36,7 +36,7 @@ const TABLES = ['models', 'api_keys', 'retention_cuts', 'rejected_requests', 'dr
 /** Tables whose seq the server numbers from a sequence: it goes on after the rows copied. */
 const SEQUENCED = ['rejected_requests', 'drift_reports', 'alerts', 'outbox'] as const;
 
-async function insertRows(client: PoolClient, table: string, columns: string[], rows: Array<Record<string, unknown>>, suffix = ''): Promise<number> {
+async function insertRows(client: PoolClient, file: string, table: string, columns: string[], rows: Array<Record<string, unknown>>, suffix = ''): Promise<number> {
   let written = 0;
   const per = Math.max(1, Math.floor(30_000 / columns.length));
   for (let at = 0; at < rows.length; at += per) {
@@ -44,7 +44,14 @@ async function insertRows(client: PoolClient, table: string, columns: string[], 
     const tuples: string[] = [];
     for (const r of rows.slice(at, at + per)) {
       const base = values.length;
-      for (const c of columns) values.push(r[c] ?? null);
+      for (const c of columns) {
+        const v = r[c];
+        // SQLite text may hold a NUL (an old log's outcome source, say); PostgreSQL text cannot.
+        if (typeof v === 'string' && v.includes('\u0000')) {
+          throw new CopyRefusedError(`${file}: ${table} ${r.seq !== undefined ? `row ${String(r.seq)}` : 'a row'} holds a NUL character in ${c}, which PostgreSQL text cannot hold; nothing was copied. Change that value in the file (it is part of the chain: audit verify will then name the row) or leave the log on SQLite`);
+        }
+        values.push(v ?? null);
+      }
       tuples.push(`(${columns.map((_, i) => `$${base + i + 1}`).join(', ')})`);
     }
     const res = await client.query(`INSERT INTO ${table} (${columns.join(', ')}) VALUES ${tuples.join(', ')} ${suffix}`, values);
@@ -99,10 +106,10 @@ export async function copySqliteLog(file: string, url: string, onProgress: (scor
           const source = db.prepare(`SELECT * FROM ${table}`).all() as Array<Record<string, unknown>>;
           const present = columns.filter((c) => source.length === 0 || c in (source[0] as object));
           if (table === 'drift_reports') {
-            const n = await insertRows(client, table, present, source, 'ON CONFLICT DO NOTHING');
+            const n = await insertRows(client, file, table, present, source, 'ON CONFLICT DO NOTHING');
             duplicateNightlyReports = source.length - n;
             rows[table] = n;
-          } else rows[table] = await insertRows(client, table, present, source);
+          } else rows[table] = await insertRows(client, file, table, present, source);
         }
         // The scored rows, in seq order, each checked against the chain before it is written.
         const cp = db.prepare('SELECT seq, chain_hash FROM retention_cuts ORDER BY seq DESC LIMIT 1').get() as { seq: number; chain_hash: Buffer } | undefined;
@@ -112,7 +119,7 @@ export async function copySqliteLog(file: string, url: string, onProgress: (scor
         let chunk: StoredRow[] = [];
         let copied = 0;
         const flush = async (): Promise<void> => {
-          copied += await insertRows(client, 'scored_requests', columns, chunk as unknown as Array<Record<string, unknown>>);
+          copied += await insertRows(client, file, 'scored_requests', columns, chunk as unknown as Array<Record<string, unknown>>);
           chunk = [];
           onProgress(copied);
         };
@@ -144,7 +151,7 @@ export async function copySqliteLog(file: string, url: string, onProgress: (scor
             const stop = outcomeWalk.push(row);
             if (stop) throw new CopyRefusedError(`${file}: the outcome chain is not intact (${stop.problem?.kind} at outcome ${stop.problem?.seq}: ${stop.problem?.detail}); nothing was copied. plumbline audit verify --db ${file} says more`);
           }
-          outcomesCopied += await insertRows(client, 'outcomes', outcomeColumns, page as unknown as Array<Record<string, unknown>>);
+          outcomesCopied += await insertRows(client, file, 'outcomes', outcomeColumns, page as unknown as Array<Record<string, unknown>>);
           afterOutcome = (page[page.length - 1] as OutcomeRow).seq;
         }
         rows.outcomes = outcomesCopied;
