@@ -39,6 +39,8 @@ export interface Sink {
   busy(): boolean;
   /** Returns once nothing is in flight, every outcome handled; blocks the event loop meanwhile. */
   drain(): void;
+  /** Resolves once no batch is in flight (every outcome handled), without blocking. */
+  idle(): Promise<void>;
   autocheckpoint(on: boolean): void;
   close(): void;
 }
@@ -49,6 +51,8 @@ export function loopSink(committer: Committer): Sink {
     send: (requests, rejected, done) => done(committer.commit(requests, rejected)),
     busy: () => false,
     drain: () => undefined,
+    // Each batch is committed and answered within send(): nothing is ever in flight.
+    idle: () => Promise.resolve(),
     autocheckpoint: (on) => committer.setInline(on),
     close: () => undefined,
   };
@@ -76,6 +80,14 @@ export function threadSink(thread: WriterThreadOptions, options: CommitLimits, o
   let state: 'starting' | 'ready' | 'failed' | 'stopped' = 'starting';
   const inFlight = new Map<number, { requests: number; done: (o: CommitOutcome) => void }>();
   let nextId = 1;
+  /** Those waiting for the last batch in flight to be answered (idle()). */
+  let idlers: Array<() => void> = [];
+  const wake = (): void => {
+    if (inFlight.size > 0 || idlers.length === 0) return;
+    const now = idlers;
+    idlers = [];
+    for (const resolve of now) resolve();
+  };
   const fail = (reason: string): void => {
     if (state === 'failed' || state === 'stopped') return;
     state = 'failed';
@@ -84,6 +96,7 @@ export function threadSink(thread: WriterThreadOptions, options: CommitLimits, o
     const batches = [...inFlight.values()];
     inFlight.clear();
     for (const b of batches) b.done({ failed: Array.from({ length: b.requests }, (_, index) => ({ index, message: reason })), transactions: 0, failedTransactions: 1, lastError: reason, storageError: null, walBytes: 0 });
+    wake();
     onFail(reason);
   };
   const handle = (m: WriterAnswer): void => {
@@ -96,6 +109,7 @@ export function threadSink(thread: WriterThreadOptions, options: CommitLimits, o
       const batch = inFlight.get(m.id);
       inFlight.delete(m.id);
       batch?.done(m.outcome);
+      wake();
     }
     onAnswer();
   };
@@ -112,6 +126,7 @@ export function threadSink(thread: WriterThreadOptions, options: CommitLimits, o
       post({ type: 'commit', id, requests, rejected });
     },
     busy: () => state === 'starting' || inFlight.size >= IN_FLIGHT,
+    idle: () => (inFlight.size === 0 ? Promise.resolve() : new Promise<void>((resolve) => idlers.push(resolve))),
     drain() {
       const deadline = Date.now() + DRAIN_LIMIT_MS;
       while (state === 'starting' || inFlight.size > 0) {

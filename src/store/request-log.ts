@@ -87,9 +87,11 @@ export interface LogHooks {
   onStorage?(error: string | null): void;
   /**
    * The WAL's size after a commit; a promise returned holds the next commit until it settles
-   * (wal-bound.ts createWalGate). Given only while a checkpoint thread runs.
+   * (wal-bound.ts createWalGate). `settled` resolves once the batches already on their way to the
+   * writer thread are committed: the checkpoint waits for them, or it would race their appends.
+   * Given only while a checkpoint thread runs.
    */
-  walGate?(walBytes: number): Promise<void> | null;
+  walGate?(walBytes: number, settled: () => Promise<void>): Promise<void> | null;
 }
 
 /**
@@ -174,7 +176,7 @@ export function createRequestLog(db: Database, options: WriterOptions, thread?: 
       if (o.storageError !== null) hooks.onStorage?.(o.storageError);
       else if (o.transactions > 0) hooks.onStorage?.(null);
       if (o.walBytes > 0 && held === null && !closed) {
-        const hold = hooks.walGate?.(o.walBytes) ?? null;
+        const hold = hooks.walGate?.(o.walBytes, () => sink.idle()) ?? null;
         if (hold !== null) {
           held = hold;
           void hold.finally(() => {

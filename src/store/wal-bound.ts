@@ -61,21 +61,23 @@ export function createWalWatch(db: Database, file: string, maxBytes: number, inl
 
 /**
  * On the request log's side: given the WAL size after a commit, says whether to hold the next
- * commit until `finish()` (the checkpoint thread's full pass) resolves. If a reader keeps the
+ * commit until `finish()` (the checkpoint thread's full pass, run once `settled` resolves) resolves. If a reader keeps the
  * WAL from restarting, it holds again only after another eighth of the bound, not after every
  * commit.
  */
-export function createWalGate(maxBytes: number, finish: () => Promise<void>): (walBytes: number) => Promise<void> | null {
+export function createWalGate(maxBytes: number, finish: () => Promise<void>): (walBytes: number, settled?: () => Promise<void>) => Promise<void> | null {
   const trigger = walTrigger(maxBytes);
   const step = Math.max(1, Math.floor(maxBytes / 8));
   let next = trigger;
-  return (walBytes) => {
+  return (walBytes, settled) => {
     if (walBytes < trigger) {
       next = trigger;
       return null;
     }
     if (walBytes < next) return null;
     next = walBytes + step;
-    return finish();
+    // Commits already posted to the writer thread (up to four batches) go in first: a checkpoint
+    // that ran beside them could not copy everything, and the WAL would not start again.
+    return settled ? settled().then(finish) : finish();
   };
 }

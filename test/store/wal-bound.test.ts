@@ -43,4 +43,38 @@ describe.each([
     expect(check.pragma('integrity_check', { simple: true })).toBe('ok');
     check.close();
   });
+
+  it('stays under it with many requests at once, while several batches are on their way to the writer', async () => {
+    const file = tmp.file(`wal-concurrent-${writerThread ? 'thread' : 'loop'}.db`);
+    const store = openStore(file, { sync: 'normal', flushMs: 0, flushRows: 512, queueRows: 100_000, rejectedRows: 10, backgroundCheckpoints: true, writerThread, walMaxBytes: BOUND });
+    store.recordModel({ ...MODEL, features: [{ name: 'a', unit: '' }, { name: 'b', unit: '' }, { name: 'c', unit: '' }], classes: ['x', 'y'] });
+    // Requests arriving while earlier ones wait, as on the service's connections: on the writer
+    // thread up to four batches are posted before the first is answered, and the checkpoint that
+    // holds the log must wait for them.
+    let largest = 0;
+    let rows = 0;
+    const sampler = setInterval(() => (largest = Math.max(largest, walSize(file))), 5);
+    // A new request every turn of the event loop, up to 64 unanswered: each turn's rows are a batch
+    // of their own, posted while the batches before are still being committed.
+    const outstanding = new Set<Promise<void>>();
+    for (let i = 0; i < 2400; i++) {
+      const batch = i % 5 === 4 ? Array.from({ length: 100 }, row) : [row()];
+      const p: Promise<void> = store.log.append(batch).then(() => {
+        rows += batch.length;
+        outstanding.delete(p);
+      });
+      outstanding.add(p);
+      if (outstanding.size >= 64) await Promise.race(outstanding);
+      else await new Promise((resolve) => setImmediate(resolve));
+      largest = Math.max(largest, walSize(file));
+    }
+    await Promise.all(outstanding);
+    clearInterval(sampler);
+    store.close();
+    console.info(`${rows} rows, up to 64 requests waiting, ${writerThread ? 'on the writer thread' : 'on the event loop'}: largest WAL ${(largest / 2 ** 20).toFixed(2)} MiB, bound ${BOUND / 2 ** 20} MiB`);
+    expect(largest).toBeLessThanOrEqual(BOUND);
+    const check = new BetterSqlite3(file, { readonly: true });
+    expect(check.prepare('SELECT COUNT(*) AS n FROM scored_requests').get()).toEqual({ n: rows });
+    check.close();
+  });
 });
