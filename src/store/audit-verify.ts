@@ -147,3 +147,18 @@ export function checkAnchor(db: Database, anchor: ChainAnchor): AnchorCheck {
   if (last > anchor.seq) return { outcome: 'removed', detail: `row ${anchor.seq}, recorded as a head, is missing from the log` };
   return { outcome: 'removed', detail: `the log ends at row ${last}, but row ${anchor.seq} was recorded: rows from ${last + 1} on were removed` };
 }
+
+/**
+ * Whether the outcome chain still holds a head recorded earlier: the outcome of that seq with
+ * that hash. Retention keeps outcomes, so a missing one was removed.
+ */
+export function checkOutcomeAnchor(db: Database, anchor: { seq: number; hash: string }): { outcome: 'held' } | { outcome: 'removed' | 'different'; detail: string } {
+  const row = db.prepare('SELECT chain_hash FROM outcomes WHERE seq = ?').get(anchor.seq) as { chain_hash: Buffer } | undefined;
+  if (row) {
+    const hash = row.chain_hash.toString('hex');
+    return hash === anchor.hash ? { outcome: 'held' } : { outcome: 'different', detail: `outcome ${anchor.seq} has chain hash ${hash}, not the ${anchor.hash} recorded: the outcomes were rewritten up to there` };
+  }
+  const last = (db.prepare('SELECT MAX(seq) AS seq FROM outcomes').get() as { seq: number | null }).seq ?? 0;
+  if (last > anchor.seq) return { outcome: 'removed', detail: `outcome ${anchor.seq}, recorded as the outcome head, is missing` };
+  return { outcome: 'removed', detail: `the outcomes end at ${last}, but outcome ${anchor.seq} was recorded: outcomes from ${last + 1} on were removed` };
+}

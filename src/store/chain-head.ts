@@ -22,3 +22,14 @@ export function createChainHeadReader(db: Database): () => ChainHead {
     return cp ? { seq: cp.seq, hash: cp.chain_hash } : { seq: 0, hash: GENESIS };
   };
 }
+
+/** The newest outcome's seq and chain hash, or null when none is recorded (or the table is not there yet). */
+export function createOutcomeHeadReader(db: Database): () => { seq: number; hash: string } | null {
+  const table = db.prepare("SELECT 1 FROM sqlite_schema WHERE type = 'table' AND name = 'outcomes'").get();
+  if (table === undefined) return () => null;
+  const last = db.prepare('SELECT seq, chain_hash FROM outcomes ORDER BY seq DESC LIMIT 1');
+  return () => {
+    const r = last.get() as { seq: number; chain_hash: Buffer } | undefined;
+    return r ? { seq: r.seq, hash: r.chain_hash.toString('hex') } : null;
+  };
+}

@@ -4,7 +4,7 @@
 import { statSync } from 'node:fs';
 import { workerData, parentPort } from 'node:worker_threads';
 import BetterSqlite3 from 'better-sqlite3';
-import { createChainHeadReader } from './chain-head.js';
+import { createChainHeadReader, createOutcomeHeadReader } from './chain-head.js';
 import { writeHeadFile } from './head-file.js';
 
 export interface CheckpointerData {
@@ -32,6 +32,7 @@ const port = parentPort!;
 const db = new BetterSqlite3(data.file, { fileMustExist: true });
 db.pragma('busy_timeout = 1000');
 const readHead = createChainHeadReader(db);
+const readOutcomeHead = createOutcomeHeadReader(db);
 const wal = `${data.file}-wal`;
 const walBytes = (): number => statSync(wal, { throwIfNoEntry: false })?.size ?? 0;
 const checkpoint = (): CheckpointResult => (db.pragma('wal_checkpoint(PASSIVE)') as CheckpointResult[])[0] as CheckpointResult;
@@ -44,13 +45,14 @@ function pass(): void {
     // Read before the checkpoint: a checkpoint that copies anything syncs the WAL first (also
     // with synchronous=NORMAL), so once it has run, the head read here survives a power loss too.
     const head = data.headFile === null ? null : readHead();
+    const outcomes = data.headFile === null ? null : readOutcomeHead();
     const r = checkpoint();
     // seq 0 is the empty log (or one pruned whole): nothing to anchor yet.
     if (head && head.seq > 0 && data.headFile !== null && r.busy === 0) {
       const hash = head.hash.toString('hex');
-      const key = `${head.seq}:${hash}`;
+      const key = `${head.seq}:${hash}/${outcomes?.seq ?? 0}:${outcomes?.hash ?? ''}`;
       if (key !== written) {
-        writeHeadFile(data.headFile, { seq: head.seq, hash });
+        writeHeadFile(data.headFile, { seq: head.seq, hash, outcomes });
         written = key;
       }
     }

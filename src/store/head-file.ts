@@ -9,10 +9,14 @@ import { z } from 'zod';
 
 export const HEAD_FILE_FORMAT = 'plumbline-chain-head/1';
 
+const anchorSchema = z.strictObject({ seq: z.number().int().min(1), hash: z.string().regex(/^[0-9a-f]{64}$/) });
+
 const headFileSchema = z.strictObject({
   format: z.literal(HEAD_FILE_FORMAT),
   seq: z.number().int().min(0),
   hash: z.string().regex(/^[0-9a-f]{64}$/),
+  /** The outcome chain's head (its newest outcome), once one is recorded; files written before it have none. */
+  outcomes: anchorSchema.optional(),
   written_at: z.string(),
 });
 
@@ -28,8 +32,8 @@ export function headFilePath(file: string): string {
  * temporary file, synced, renamed over the old, and the directory synced (rename(2) is atomic;
  * the directory's fsync makes the rename itself durable).
  */
-export function writeHeadFile(path: string, head: { seq: number; hash: string }, now: Date = new Date()): void {
-  const record: HeadRecord = { format: HEAD_FILE_FORMAT, seq: head.seq, hash: head.hash, written_at: now.toISOString() };
+export function writeHeadFile(path: string, head: { seq: number; hash: string; outcomes?: { seq: number; hash: string } | null }, now: Date = new Date()): void {
+  const record: HeadRecord = { format: HEAD_FILE_FORMAT, seq: head.seq, hash: head.hash, ...(head.outcomes ? { outcomes: head.outcomes } : {}), written_at: now.toISOString() };
   const tmp = `${path}.tmp`;
   const fd = openSync(tmp, 'w', 0o644);
   try {

@@ -1,5 +1,5 @@
 import BetterSqlite3, { type Database } from 'better-sqlite3';
-import { type AnchorCheck, type ChainAnchor, type ChainVerdict, checkAnchor, verifyChain } from './audit-verify.js';
+import { type AnchorCheck, type ChainAnchor, type ChainVerdict, checkAnchor, checkOutcomeAnchor, verifyChain } from './audit-verify.js';
 import { type DriftStore, createDriftStore } from './drift-store.js';
 import { type OutcomeChainVerdict, verifyOutcomeChain } from './outcomes-store.js';
 
@@ -17,6 +17,8 @@ export interface AuditReader {
   checkAnchor(anchor: ChainAnchor): AnchorCheck;
   /** Recomputes the outcome chain; null for a log from before outcomes (migration 009). */
   verifyOutcomes(): OutcomeChainVerdict | null;
+  /** Whether the outcome chain still holds the outcome head the head file recorded. */
+  checkOutcomeAnchor(anchor: { seq: number; hash: string }): ReturnType<typeof checkOutcomeAnchor>;
   close(): void;
 }
 
@@ -28,6 +30,7 @@ export function openAuditReader(file: string): AuditReader {
     hasChain: () => db.prepare("SELECT 1 FROM pragma_table_info('scored_requests') WHERE name = 'chain_hash'").get() !== undefined,
     verifyChain: (anchor) => verifyChain(db, anchor),
     checkAnchor: (anchor) => checkAnchor(db, anchor),
+    checkOutcomeAnchor: (anchor) => checkOutcomeAnchor(db, anchor),
     verifyOutcomes: () => (db.prepare("SELECT 1 FROM sqlite_schema WHERE type = 'table' AND name = 'outcomes'").get() === undefined ? null : verifyOutcomeChain(db)),
     close: () => db.close(),
   };

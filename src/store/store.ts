@@ -2,7 +2,7 @@ import { mkdirSync } from 'node:fs';
 import { dirname } from 'node:path';
 import type { Database } from 'better-sqlite3';
 import { type AlertsStore, createAlertsStore } from './alerts-store.js';
-import { checkAnchor, verifyChain } from './audit-verify.js';
+import { checkAnchor, checkOutcomeAnchor, verifyChain } from './audit-verify.js';
 import { DatabaseUnwritableError, type OpenOptions, isUnwritable, openDatabase } from './database.js';
 import { changedIdentity, recordIdentity } from './file-identity.js';
 import { headFilePath, readHeadFile, writeHeadFile } from './head-file.js';
@@ -10,7 +10,7 @@ import { type ServeLock, acquireServeLock } from './serve-lock.js';
 import { type KeysStore, createKeysStore } from './keys-store.js';
 import { createOutcomesStore } from './outcomes-store.js';
 import { type Retention, createRetention } from './retention.js';
-import { createChainHeadReader } from './chain-head.js';
+import { createChainHeadReader, createOutcomeHeadReader } from './chain-head.js';
 import { sealPreChainRows } from './seal.js';
 import { startCheckpointer } from './checkpointer.js';
 import { createDriftStore } from './drift-store.js';
@@ -196,8 +196,10 @@ function checkHeadFile(db: Database, file: string, headFile: string): void {
   const head = readHeadFile(headFile);
   if (head === null) return;
   const check = head instanceof Error ? null : checkAnchor(db, head);
-  if (check && (check.outcome === 'held' || check.outcome === 'pruned')) return;
-  const problem = head instanceof Error ? head.message : (check as { detail: string }).detail;
+  // The outcome chain's head too: new outcomes chained over removed ones would hide the cut.
+  const outcomes = head instanceof Error || head.outcomes === undefined ? null : checkOutcomeAnchor(db, head.outcomes);
+  if (check && (check.outcome === 'held' || check.outcome === 'pruned') && (outcomes === null || outcomes.outcome === 'held')) return;
+  const problem = head instanceof Error ? head.message : 'detail' in (check as object) ? (check as { detail: string }).detail : (outcomes as { detail: string }).detail;
   throw new StoreIntegrityError(
     `${file}: the chain head kept in ${headFile} is not in the log: ${problem}. plumbline audit verify --db ${file} names what is missing; ` +
       `to serve on with the log as it is, move ${headFile} aside (and keep it: it records what was lost)`,
@@ -208,8 +210,9 @@ function checkHeadFile(db: Database, file: string, headFile: string): void {
 function keepHeadAtClose(db: Database, headFile: string): void {
   try {
     const head = createChainHeadReader(db)();
+    const outcomes = createOutcomeHeadReader(db)();
     const [r] = db.pragma('wal_checkpoint(PASSIVE)') as Array<{ busy: number }>;
-    if (r?.busy === 0 && head.seq > 0) writeHeadFile(headFile, { seq: head.seq, hash: head.hash.toString('hex') });
+    if (r?.busy === 0 && head.seq > 0) writeHeadFile(headFile, { seq: head.seq, hash: head.hash.toString('hex'), outcomes });
   } catch {
     // The head of the last checkpoint stays; it is older, not wrong.
   }

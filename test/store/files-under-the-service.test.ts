@@ -117,4 +117,30 @@ describe('the chain head kept beside the database', () => {
     expect(readHeadFile(head)).toMatchObject({ seq: 28 });
     expect(existsSync(`${head}.cut`)).toBe(true);
   });
+
+  it('keeps the outcome head too, and lets audit verify and the start name outcomes cut from the end', async () => {
+    const file = tmp.file('outcomes-cut.db');
+    const head = headFilePath(file);
+    const store = serving(file);
+    const rows = Array.from({ length: 10 }, row);
+    await store.log.append(rows);
+    store.outcomes.record(rows.map((r, i) => ({ requestId: r.requestId, label: i % 3 ? 'x' : 'y', observedAt: null, source: 'gauge', replace: false })), 'qa');
+    store.close();
+    const kept = readHeadFile(head) as { seq: number; outcomes?: { seq: number; hash: string } };
+    expect(kept).toMatchObject({ seq: 10, outcomes: { seq: 10, hash: expect.stringMatching(/^[0-9a-f]{64}$/) } });
+    // the file names the hash the outcome chain itself ends with
+    const io = () => ({ stdout: sink(), stderr: sink(), interactive: false });
+    expect(auditVerifyAction({ db: file, json: true }, io())).toMatchObject({ intact: true, outcomes: { intact: true, rows: 10, head: kept.outcomes } });
+
+    // the last two outcomes cut: the outcomes left still chain, so only the head shows the cut
+    const raw = new BetterSqlite3(file);
+    raw.prepare('DELETE FROM outcomes WHERE seq > 8').run();
+    raw.close();
+    const out = sink();
+    const v = auditVerifyAction({ db: file, json: false }, { stdout: out, stderr: sink(), interactive: false });
+    expect(v).toMatchObject({ intact: false, outcomes: { intact: false, rows: 8, problem: { kind: 'removed', seq: 10 } } });
+    expect(out.text()).toMatch(/outcomes NOT intact: removed at outcome 10\nthe outcomes end at 8, but outcome 10 was recorded: outcomes from 9 on were removed \(the outcome head kept in .*outcomes-cut\.db\.head, written /);
+    // the server does not start on it, so that new outcomes cannot chain over the cut
+    expect(() => serving(file)).toThrow(/the chain head kept in .*outcomes-cut\.db\.head is not in the log: the outcomes end at 8/);
+  });
 });

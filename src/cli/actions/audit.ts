@@ -56,6 +56,13 @@ export function auditVerifyAction(ctx: { db: string; head?: ChainAnchor; json: b
       if ('detail' in check && v.intact) {
         v = { ...v, intact: false, problem: { kind: check.outcome === 'removed' ? 'removed' : 'anchor', seq: recorded.seq, request_id: null, detail: `${check.detail} (the head kept in ${path}, written ${recorded.written_at})` } };
       }
+      // Outcomes cut from the end of their chain leave it intact too: the head file names their head.
+      if (recorded.outcomes !== undefined && v.outcomes !== null && v.outcomes.intact) {
+        const o = reader.checkOutcomeAnchor(recorded.outcomes);
+        if (o.outcome !== 'held') {
+          v = { ...v, outcomes: { ...v.outcomes, intact: false, problem: { kind: o.outcome === 'removed' ? 'removed' : 'changed', seq: recorded.outcomes.seq, request_id: null, detail: `${o.detail} (the outcome head kept in ${path}, written ${recorded.written_at})` } } };
+        }
+      }
     }
   } finally {
     reader.close();
