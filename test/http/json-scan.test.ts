@@ -43,7 +43,8 @@ describe('scanJson', () => {
         // Write the object's text with its first name repeated at the end.
         const marker = '\u0000MARK\u0000';
         target.obj[marker] = 0;
-        const text = JSON.stringify(v).replace(`${JSON.stringify(marker)}:0`, `${JSON.stringify(name)}:1`);
+        // A function as the replacement: a name such as "$&" would be read as a replacement pattern.
+        const text = JSON.stringify(v).replace(`${JSON.stringify(marker)}:0`, () => `${JSON.stringify(name)}:1`);
         delete target.obj[marker];
         expect(scanJson(text)).toEqual({ kind: 'duplicate', path: [...target.path, name] });
       }),
@@ -67,7 +68,9 @@ describe('mayNeedScan, the quick count before the full walk', () => {
     const name = Object.keys(target.obj)[0]!;
     const marker = '\u0000MARK\u0000';
     target.obj[marker] = 0;
-    const text = JSON.stringify(v, null, indent).replace(`${JSON.stringify(marker)}: 0`, `${JSON.stringify(name)} : 1`).replace(`${JSON.stringify(marker)}:0`, `${JSON.stringify(name)}:1`);
+    const text = JSON.stringify(v, null, indent)
+      .replace(`${JSON.stringify(marker)}: 0`, () => `${JSON.stringify(name)} : 1`)
+      .replace(`${JSON.stringify(marker)}:0`, () => `${JSON.stringify(name)}:1`);
     delete target.obj[marker];
     return text;
   };
