@@ -102,6 +102,36 @@ export type SqliteOutcomesStore = Sync<OutcomesStore> & {
   loggedVectors(model: string, from: number, to: number, labelledOnly: boolean): IterableIterator<LoggedVectorView>;
 };
 
+/**
+ * What an item does to its answer's outcomes, given the newest one recorded (an earlier item of
+ * the same batch included): nothing when the label is the same, a conflict unless `replace`, else
+ * the row that chains after `at`, with its hash. Both stores decide with this.
+ */
+export function nextOutcome(
+  item: OutcomeInput,
+  requestId: string,
+  before: { seq: number; label: string } | null | undefined,
+  at: { seq: number; hash: Buffer },
+  now: number,
+  keyLabel: string | null,
+): { verdict: OutcomeVerdict; row?: OutcomeRow & { chain_hash: Buffer } } {
+  if (before?.label === item.label) return { verdict: { requestId, status: 'unchanged' } };
+  if (before && !item.replace) {
+    return { verdict: { requestId, status: 'refused', reason: 'conflict', detail: conflictDetail(requestId, before.label, item.label), recorded: before.label } };
+  }
+  const row: OutcomeRow = {
+    seq: at.seq + 1,
+    request_id: requestId,
+    label: item.label,
+    observed_at: item.observedAt,
+    source: item.source,
+    recorded_at: now,
+    key_label: keyLabel,
+    replaces: before?.seq ?? null,
+  };
+  return { verdict: { requestId, status: 'recorded' }, row: { ...row, chain_hash: outcomeHash(at.hash, row) } };
+}
+
 /** The text of a refused conflict, the same on either store. */
 export const conflictDetail = (requestId: string, recorded: string, label: string): string =>
   `request ${requestId} already has the outcome ${JSON.stringify(recorded)}; send "replace": true to record ${JSON.stringify(label)} over it`;
@@ -192,31 +222,13 @@ export function createOutcomesStore(db: Database): SqliteOutcomesStore {
           classes,
         };
       }
-      const before = newest.get(target.request_id) as { seq: number; label: string } | undefined;
-      if (before?.label === item.label) return { requestId: target.request_id, status: 'unchanged' };
-      if (before && !item.replace) {
-        return {
-          requestId: target.request_id,
-          status: 'refused',
-          reason: 'conflict',
-          detail: conflictDetail(target.request_id, before.label, item.label),
-          recorded: before.label,
-        };
+      const next = nextOutcome(item, target.request_id, newest.get(target.request_id) as { seq: number; label: string } | undefined, at, now, keyLabel);
+      if (next.row) {
+        const r = next.row;
+        insert.run(r.seq, r.request_id, r.label, r.observed_at, r.source, r.recorded_at, r.key_label, r.replaces, r.chain_hash);
+        at = { seq: r.seq, hash: r.chain_hash };
       }
-      const row: OutcomeRow = {
-        seq: at.seq + 1,
-        request_id: target.request_id,
-        label: item.label,
-        observed_at: item.observedAt,
-        source: item.source,
-        recorded_at: now,
-        key_label: keyLabel,
-        replaces: before?.seq ?? null,
-      };
-      const hash = outcomeHash(at.hash, row);
-      insert.run(row.seq, row.request_id, row.label, row.observed_at, row.source, row.recorded_at, row.key_label, row.replaces, hash);
-      at = { seq: row.seq, hash };
-      return { requestId: target.request_id, status: 'recorded' };
+      return next.verdict;
     });
   });
 

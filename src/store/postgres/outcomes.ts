@@ -1,5 +1,5 @@
 import type { ModelRecord } from '../models-table.js';
-import { OUTCOME_GENESIS, type OutcomeRow, outcomeHash } from '../outcome-chain.js';
+import { OUTCOME_GENESIS, type OutcomeRow } from '../outcome-chain.js';
 import {
   type CurrentOutcome,
   type LabelledRowView,
@@ -9,7 +9,7 @@ import {
   type OutcomeRefusal,
   type OutcomeVerdict,
   type OutcomesStore,
-  conflictDetail,
+  nextOutcome,
   lookupRefusal,
   notAClassDetail,
   startOutcomeWalk,
@@ -19,6 +19,7 @@ import {
 import { cursorPages } from './drift.js';
 import { type Pool, type PoolClient, ServerError } from './pool.js';
 import { carries, pairText } from './tag-match.js';
+import { serverModelCache } from './requests.js';
 
 /** Outcome rows per INSERT statement: 9 parameters a row, under the protocol's 65,535. */
 const ROWS_PER_INSERT = 2000;
@@ -35,24 +36,7 @@ const hasNul = (s: string): boolean => s.includes('\u0000');
 const NEWEST = 'SELECT o.label FROM outcomes AS o WHERE o.request_id = s.request_id ORDER BY o.seq DESC LIMIT 1';
 
 type Target = { request_id: string; model_sha256: string; model_name: string };
-type Queryable = Pool | PoolClient;
 
-/**
- * Looks bundles up by hash, caching them (a sealed bundle never changes), on the connection given:
- * inside a batch's transaction its own, so that a batch holding the head never waits on the pool.
- */
-function modelCache(): (q: Queryable, sha256: string) => Promise<ModelRecord | null> {
-  const cache = new Map<string, ModelRecord>();
-  return async (q, sha256) => {
-    const hit = cache.get(sha256);
-    if (hit) return hit;
-    const row = (await q.query<{ sha256: string; name: string; version: string; features: string; classes: string }>('SELECT sha256, name, version, features, classes FROM models WHERE sha256 = $1', [sha256])).rows[0];
-    if (!row) return null;
-    const record: ModelRecord = { ...row, features: JSON.parse(row.features) as ModelRecord['features'], classes: JSON.parse(row.classes) as string[] };
-    cache.set(sha256, record);
-    return record;
-  };
-}
 
 /**
  * The answer an item names, read on the server: by request id, or by tag, where the JSON text
@@ -113,7 +97,7 @@ function insertStatement(rows: Array<OutcomeRow & { chain_hash: Buffer }>, head:
  * batches before it recorded; the head moves in the statement that inserts the rows.
  */
 export function createServerOutcomesStore(pool: Pool, url: string): OutcomesStore {
-  const models = modelCache();
+  const models = serverModelCache();
   const one = async <T>(sql: string, values: unknown[]): Promise<T | undefined> => (await pool.query(sql, values)).rows[0] as T | undefined;
 
   const record = async (items: OutcomeInput[], keyLabel: string | null, now: number): Promise<OutcomeVerdict[]> => {
@@ -147,30 +131,13 @@ export function createServerOutcomesStore(pool: Pool, url: string): OutcomesStor
           const r = (await client.query<{ seq: number; label: string }>('SELECT seq, label FROM outcomes WHERE request_id = $1 ORDER BY seq DESC LIMIT 1', [target.request_id])).rows[0];
           newest.set(target.request_id, r ?? null);
         }
-        const before = newest.get(target.request_id) ?? null;
-        if (before?.label === item.label) {
-          verdicts.push({ requestId: target.request_id, status: 'unchanged' });
-          continue;
+        const next = nextOutcome(item, target.request_id, newest.get(target.request_id), at, now, keyLabel);
+        if (next.row) {
+          rows.push(next.row);
+          at = { seq: next.row.seq, hash: next.row.chain_hash };
+          newest.set(next.row.request_id, { seq: next.row.seq, label: next.row.label });
         }
-        if (before && !item.replace) {
-          verdicts.push({ requestId: target.request_id, status: 'refused', reason: 'conflict', detail: conflictDetail(target.request_id, before.label, item.label), recorded: before.label });
-          continue;
-        }
-        const row: OutcomeRow = {
-          seq: at.seq + 1,
-          request_id: target.request_id,
-          label: item.label,
-          observed_at: item.observedAt,
-          source: item.source,
-          recorded_at: now,
-          key_label: keyLabel,
-          replaces: before?.seq ?? null,
-        };
-        const hash = outcomeHash(at.hash, row);
-        rows.push({ ...row, chain_hash: hash });
-        at = { seq: row.seq, hash };
-        newest.set(row.request_id, { seq: row.seq, label: row.label });
-        verdicts.push({ requestId: target.request_id, status: 'recorded' });
+        verdicts.push(next.verdict);
       }
       let head = start;
       for (let i = 0; i < rows.length; i += ROWS_PER_INSERT) {

@@ -2,7 +2,7 @@ import type { LoggedRequest, RequestPage } from '../../contracts/logged-request.
 import type { ChainedRow } from '../chain.js';
 import type { ModelRecord } from '../models-table.js';
 import { type RequestFilter, requestCursor, toItem } from '../request-query.js';
-import type { Pool } from './pool.js';
+import type { Pool, PoolClient } from './pool.js';
 import { carries, pairText } from './tag-match.js';
 
 /** Records a bundle when loaded, as models-table.ts does on SQLite. */
@@ -15,13 +15,19 @@ export async function recordServerModel(pool: Pool, m: ModelRecord, now = Date.n
   );
 }
 
-/** Looks models up by hash, caching them: a sealed bundle never changes. */
-function serverModelCache(pool: Pool): (sha256: string) => Promise<ModelRecord | null> {
+/** A connection or the pool: whatever a query can run on. */
+export type Queryable = Pool | PoolClient;
+
+/**
+ * Looks bundles up by hash, caching them (a sealed bundle never changes), on the connection given:
+ * inside a transaction its own, so that one holding a lock never waits on the pool.
+ */
+export function serverModelCache(): (q: Queryable, sha256: string) => Promise<ModelRecord | null> {
   const cache = new Map<string, ModelRecord>();
-  return async (sha256) => {
+  return async (q, sha256) => {
     const hit = cache.get(sha256);
     if (hit) return hit;
-    const row = (await pool.query<{ sha256: string; name: string; version: string; features: string; classes: string }>('SELECT sha256, name, version, features, classes FROM models WHERE sha256 = $1', [sha256])).rows[0];
+    const row = (await q.query<{ sha256: string; name: string; version: string; features: string; classes: string }>('SELECT sha256, name, version, features, classes FROM models WHERE sha256 = $1', [sha256])).rows[0];
     if (!row) return null;
     const record: ModelRecord = { ...row, features: JSON.parse(row.features) as ModelRecord['features'], classes: JSON.parse(row.classes) as string[] };
     cache.set(sha256, record);
@@ -34,7 +40,8 @@ export function createServerRequestQuery(pool: Pool): {
   query(filter: RequestFilter, limit: number, cursor?: string): Promise<RequestPage>;
   lookup(requestId: string): Promise<LoggedRequest | null>;
 } {
-  const model = serverModelCache(pool);
+  const cached = serverModelCache();
+  const model = (sha256: string) => cached(pool, sha256);
   return {
     async query(filter, limit, cursor) {
       // PostgreSQL text holds no NUL: a model or label with one names no row (and would be refused).
