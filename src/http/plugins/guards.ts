@@ -21,8 +21,9 @@ const HTML_POLICY = "default-src 'none'; style-src 'unsafe-inline'; img-src data
 
 /**
  * What keeps the service up and its answers where they belong: shedding load while the event
- * loop lags (@fastify/under-pressure), a rate limit per key (rate-window.ts), and security
- * headers on every answer. Liveness and readiness are never shed or limited.
+ * loop lags (@fastify/under-pressure), the request gate (Host header, key, rate limit per key:
+ * rate-window.ts), and security headers on every answer. Liveness and readiness are never shed
+ * or limited.
  */
 async function guards(app: FastifyInstance, options: GuardOptions): Promise<void> {
   if (options.eventLoopDelayMs > 0) {
@@ -61,11 +62,10 @@ async function guards(app: FastifyInstance, options: GuardOptions): Promise<void
       done(err as Error);
       return;
     }
-    if (limit === null) {
-      if (pending instanceof Promise) pending.then(() => done(), (err: Error) => done(err));
-      else done();
-    } else if (pending instanceof Promise) pending.then(() => done(limit(req, reply)), (err: Error) => done(err));
-    else done(limit(req, reply));
+    // The limit counts only requests whose key passed, so that it is keyed on that key.
+    const next = (): void => done(limit?.(req, reply));
+    if (pending instanceof Promise) pending.then(next, (err: Error) => done(err));
+    else next();
   });
   const closing = options.closing ?? (() => false);
   app.addHook('onSend', (_req, reply, payload, done) => {
