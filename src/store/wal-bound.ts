@@ -61,9 +61,9 @@ export function createWalWatch(db: Database, file: string, maxBytes: number, inl
 
 /**
  * On the request log's side: given the WAL size after a commit, says whether to hold the next
- * commit until `finish()` (the checkpoint thread's full pass, run once `settled` resolves) resolves. If a reader keeps the
- * WAL from restarting, it holds again only after another eighth of the bound, not after every
- * commit.
+ * commit until `finish()` (the checkpoint thread's full pass, run once `settled` resolves) has
+ * resolved. If a reader keeps the WAL from restarting, it holds again only after another eighth
+ * of the bound, not after every commit.
  */
 export function createWalGate(maxBytes: number, finish: () => Promise<void>): (walBytes: number, settled?: () => Promise<void>) => Promise<void> | null {
   const trigger = walTrigger(maxBytes);
