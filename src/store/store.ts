@@ -195,11 +195,16 @@ export function openStore(file: string, options: StoreOptions): SqliteStore {
 function checkHeadFile(db: Database, file: string, headFile: string): void {
   const head = readHeadFile(headFile);
   if (head === null) return;
-  const check = head instanceof Error ? null : checkAnchor(db, head);
-  // The outcome chain's head too: new outcomes chained over removed ones would hide the cut.
-  const outcomes = head instanceof Error || head.outcomes === undefined ? null : checkOutcomeAnchor(db, head.outcomes);
-  if (check && (check.outcome === 'held' || check.outcome === 'pruned') && (outcomes === null || outcomes.outcome === 'held')) return;
-  const problem = head instanceof Error ? head.message : 'detail' in (check as object) ? (check as { detail: string }).detail : (outcomes as { detail: string }).detail;
+  let problem: string;
+  if (head instanceof Error) problem = head.message;
+  else {
+    const rows = checkAnchor(db, head);
+    // The outcome chain's head too: new outcomes chained over removed ones would hide the cut.
+    const outcomes = head.outcomes === undefined ? null : checkOutcomeAnchor(db, head.outcomes);
+    if ('detail' in rows) problem = rows.detail;
+    else if (outcomes !== null && 'detail' in outcomes) problem = outcomes.detail;
+    else return;
+  }
   throw new StoreIntegrityError(
     `${file}: the chain head kept in ${headFile} is not in the log: ${problem}. plumbline audit verify --db ${file} names what is missing; ` +
       `to serve on with the log as it is, move ${headFile} aside (and keep it: it records what was lost)`,

@@ -57,6 +57,8 @@ export function createServerRequestQuery(pool: Pool): {
       if (filter.label !== undefined) where.push(`label = ${arg(filter.label)}`);
       // Tags: narrowed by the pair's JSON text, decided on the parsed tags (tag-match.ts).
       for (const [k, v] of pairs) where.push(`strpos(tags, ${arg(pairText(k, v))}) > 0`);
+      // The seq to read before: the cursor's, then the last row read when a page kept too few.
+      const beforeAt = args.length;
       const before = arg(cursor === undefined ? null : requestCursor.decode(cursor));
       where.push(`(${before}::bigint IS NULL OR seq < ${before}::bigint)`);
       // Without tags every row read is kept; with them a page of rows may keep fewer, so read on.
@@ -67,7 +69,7 @@ export function createServerRequestQuery(pool: Pool): {
         const rows = (await pool.query(sql, args)).rows as ChainedRow[];
         for (const r of rows) if (pairs.length === 0 || carries(r.tags, pairs)) kept.push(r);
         if (kept.length > limit || rows.length < size) break;
-        args[Number(before.slice(1)) - 1] = (rows[rows.length - 1] as ChainedRow).seq;
+        args[beforeAt] = (rows[rows.length - 1] as ChainedRow).seq;
       }
       const more = kept.length > limit;
       const page = more ? kept.slice(0, limit) : kept;
