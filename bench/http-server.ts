@@ -1,10 +1,16 @@
 // The service in a process of its own for the HTTP benchmarks, with one extra route in the same
 // fastify: POST /bench/bare, which answers with the bytes of a real score answer and does nothing
 // else. Prints {"url": ..., "bytes": n} once it listens. Loopback only.
+// The service is the compiled one under dist/, as `npm start` serves it: startChild builds it
+// first (bench/lib/build.ts).
 //   tsx bench/http-server.ts MODELS_DIR DB_FILE MODEL VECTOR_JSON [CONFIG_JSON]
+import { pathToFileURL } from 'node:url';
 import { pino } from 'pino';
-import { configSchema } from '../src/config/config.js';
-import { startServer } from '../src/http/server.js';
+import { distModule } from './lib/build.js';
+
+const load = async <T>(path: string): Promise<T> => (await import(pathToFileURL(distModule(path)).href)) as T;
+const { configSchema } = await load<typeof import('../src/config/config.js')>('config/config.js');
+const { startServer } = await load<typeof import('../src/http/server.js')>('http/server.js');
 
 const [modelsDir, db, model, vectorJson, configJson] = process.argv.slice(2);
 if (!modelsDir || !db || !model || !vectorJson) throw new Error('usage: http-server.ts MODELS_DIR DB_FILE MODEL VECTOR_JSON [CONFIG_JSON]');
