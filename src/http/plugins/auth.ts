@@ -24,11 +24,11 @@ declare module 'fastify' {
   }
   interface FastifyInstance {
     /**
-     * Checks the request's key against its route's access, setting `req.apiKey`; throws (or
-     * rejects, when the keys store answers with a promise) the 401 or 403 problem. Run on
-     * onRequest by the guards plugin's one hook, before the body is read.
+     * Checks the request's key against the access its route needs (routeAccess), setting
+     * `req.apiKey`; throws (or rejects, when the keys store answers with a promise) the 401 or
+     * 403 problem. Run on onRequest by the guards plugin's one hook, before the body is read.
      */
-    checkKey(req: FastifyRequest): void | Promise<void>;
+    checkKey(req: FastifyRequest, access: Access): void | Promise<void>;
   }
 }
 
@@ -46,6 +46,15 @@ const TOUCH_EVERY_MS = 60_000;
 const CHALLENGE = 'Bearer realm="plumbline"';
 
 const VERBS: Record<Role, string> = { scorer: 'score', reader: 'read models, the audit log, reports, alerts and metrics', admin: 'do this' };
+
+/**
+ * What a request needs, from what its route declares (`config.access`): a path no route has
+ * needs a reader key under /v1/ and nothing elsewhere. fastify builds `req.routeOptions` afresh
+ * at each read, so the gate reads the declaration once per request and passes it on.
+ */
+export function accessFor(declared: Access | undefined, url: string): Access {
+  return declared ?? (url.startsWith('/v1/') ? 'reader' : 'public');
+}
 
 function allowed(role: Role, access: Role): boolean {
   return role === 'admin' || role === access;
@@ -104,9 +113,7 @@ async function auth(app: FastifyInstance, options: AuthOptions): Promise<void> {
   });
 
   app.decorateRequest('apiKey', null);
-  const check = (req: FastifyRequest): void | Promise<void> => {
-    // A route says what it needs; a path no route has is treated as needing a reader key.
-    const access: Access = req.routeOptions.config.access ?? (req.url.startsWith('/v1/') ? 'reader' : 'public');
+  const check = (req: FastifyRequest, access: Access): void | Promise<void> => {
     if (access === 'public') return;
     const on = enforced();
     if (on instanceof Promise) return on.then((yes) => (yes ? checkKey(req, access) : undefined));

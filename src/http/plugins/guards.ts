@@ -3,6 +3,7 @@ import fp from 'fastify-plugin';
 import underPressure from '@fastify/under-pressure';
 import { ProblemError } from '../../errors.js';
 import { createRateWindow } from '../rate-window.js';
+import { accessFor } from './auth.js';
 
 export interface GuardOptions {
   /** Requests per minute per API key (per client address without keys); 0 for no limit. */
@@ -55,15 +56,17 @@ async function guards(app: FastifyInstance, options: GuardOptions): Promise<void
       done(new ProblemError('invalid-request', 'an HTTP/1.1 request must carry a Host header (RFC 9112, section 3.2)', [{ header: 'host', detail: 'is missing' }]));
       return;
     }
+    const declared = req.routeOptions.config.access;
     let pending: void | Promise<void>;
     try {
-      pending = app.checkKey(req);
+      pending = app.checkKey(req, accessFor(declared, req.url));
     } catch (err) {
       done(err as Error);
       return;
     }
-    // The limit counts only requests whose key passed, so that it is keyed on that key.
-    const next = (): void => done(limit?.(req, reply));
+    // The limit counts only requests whose key passed, so that it is keyed on that key; routes
+    // declared public (liveness, readiness, the API description) are never limited.
+    const next = (): void => done(declared === 'public' ? undefined : limit?.(req, reply));
     if (pending instanceof Promise) pending.then(next, (err: Error) => done(err));
     else next();
   });
@@ -85,7 +88,6 @@ async function guards(app: FastifyInstance, options: GuardOptions): Promise<void
 function rateLimit(requestsPerMinute: number): (req: FastifyRequest, reply: FastifyReply) => ProblemError | undefined {
   const window = createRateWindow(requestsPerMinute, 60_000);
   return (req, reply) => {
-    if (isPublic(req)) return undefined;
     const v = window.take(req.apiKey ? `key:${req.apiKey.id}` : `ip:${req.ip}`, Date.now());
     const reset = Math.max(1, Math.ceil(v.resetMs / 1000));
     reply.header('x-ratelimit-limit', v.limit).header('x-ratelimit-remaining', v.remaining).header('x-ratelimit-reset', reset);
