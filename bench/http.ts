@@ -32,6 +32,13 @@ export interface HttpFigures {
   rounds: number[];
   /** Each round's bare / fastify and score / fastify. */
   fastifyRounds: Array<{ bare: number; score: number }>;
+  /**
+   * Server CPU time (user and system, all threads) per request, µs, the median of the rounds for
+   * each app; null without /proc. With a load generator that keeps up, the ratios of requests a
+   * second come to the inverse ratios of these; on a machine where it does not (two cores, one of
+   * them wrk's), these still compare what each app spends on a request.
+   */
+  cpuUs: { fastify: number; bare: number; score: number } | null;
 }
 
 export async function measureHttp(shape: ShapeName, sync: 'normal' | 'full', o: { seconds: number; connections: number; rounds: number; writer?: 'event-loop' | 'thread' }): Promise<HttpFigures> {
@@ -43,15 +50,17 @@ export async function measureHttp(shape: ShapeName, sync: 'normal' | 'full', o: 
     const writer = o.writer ?? 'event-loop';
     const config = { log: { sync, writer }, limits: { requests_per_minute: 10_000_000 } };
     const server = await startChild<{ url: string; bytes: number }>('http-server.ts', [models.dir, join(dir, 'bench.db'), models.model, JSON.stringify(features), JSON.stringify(config)]);
+    const serverPid = server.child.pid;
     try {
       const answerFile = join(dir, 'answer.json');
       writeFileSync(answerFile, Buffer.from(await (await fetch(`${server.info.url}/bench/answer`)).arrayBuffer()));
       const yardstick = await startChild<{ url: string; bytes: number }>('bare-fastify.ts', [answerFile]);
       try {
         const body = JSON.stringify({ features, tags: { line: '3', station: 'moulding-3' } });
-        const score = { url: `${server.info.url}/v1/models/${models.model}/score`, body, connections: o.connections, seconds: o.seconds };
+        const score = { url: `${server.info.url}/v1/models/${models.model}/score`, body, connections: o.connections, seconds: o.seconds, ...(serverPid ? { serverPid } : {}) };
         const bare = { ...score, url: `${server.info.url}/bench/bare` };
-        const fastify = { ...score, url: `${yardstick.info.url}/bare` };
+        const fastifyPid = yardstick.child.pid;
+        const fastify = { url: `${yardstick.info.url}/bare`, body, connections: o.connections, seconds: o.seconds, ...(fastifyPid ? { serverPid: fastifyPid } : {}) };
         await load({ ...fastify, seconds: 2 });
         await load({ ...score, seconds: 2 });
         await load({ ...bare, seconds: 2 });
@@ -75,6 +84,11 @@ export async function measureHttp(shape: ShapeName, sync: 'normal' | 'full', o: 
         }
         const fixed = median(held, (r) => r.p99Ms);
         const fixedBare = median(heldBare, (r) => r.p99Ms);
+        const medianCpu = (key: 'fastify' | 'bare' | 'score'): number | null => {
+          const xs = rounds.map((r) => r[key].serverCpuUs);
+          return xs.every((x): x is number => x !== null) ? median(xs, (x) => x) : null;
+        };
+        const cpu = { fastify: medianCpu('fastify'), bare: medianCpu('bare'), score: medianCpu('score') };
         const s = mid.score;
         const b = mid.bare;
         return {
@@ -91,6 +105,7 @@ export async function measureHttp(shape: ShapeName, sync: 'normal' | 'full', o: 
           fixedBare,
           rounds: rounds.map((r) => r.score.requestsPerSecond / r.bare.requestsPerSecond),
           fastifyRounds: rounds.map((r) => ({ bare: r.bare.requestsPerSecond / r.fastify.requestsPerSecond, score: r.score.requestsPerSecond / r.fastify.requestsPerSecond })),
+          cpuUs: cpu.fastify !== null && cpu.bare !== null && cpu.score !== null ? { fastify: cpu.fastify, bare: cpu.bare, score: cpu.score } : null,
         };
       } finally {
         await yardstick.stop();
@@ -111,7 +126,7 @@ if (process.argv[1]?.endsWith('http.ts')) {
   for (const [shape, sync] of [['demo', 'normal'], ['mid', 'normal'], ['mid', 'full'], ['wide', 'normal']] as const) {
     const f = await measureHttp(shape, sync, { seconds: arg('seconds', 5), connections: arg('connections', 32), rounds: arg('rounds', 5) });
     console.log(
-      `${f.shape} sync ${f.sync}: score ${f.score.requestsPerSecond.toFixed(0)} req/s (p50 ${f.score.p50Ms} ms, p99 ${f.score.p99Ms} ms), bare ${f.bare.requestsPerSecond.toFixed(0)} req/s, bare fastify ${f.fastify.requestsPerSecond.toFixed(0)} req/s; score/bare ${f.ratio.toFixed(2)}, bare/fastify ${f.bareToFastify.toFixed(2)}, score/fastify ${f.scoreToFastify.toFixed(2)}; at 1,000 req/s p99 ${f.fixed.p99Ms} ms; failed ${f.score.failed + f.bare.failed + f.fixed.failed} (${f.score.tool})`,
+      `${f.shape} sync ${f.sync}: score ${f.score.requestsPerSecond.toFixed(0)} req/s (p50 ${f.score.p50Ms} ms, p99 ${f.score.p99Ms} ms), bare ${f.bare.requestsPerSecond.toFixed(0)} req/s, bare fastify ${f.fastify.requestsPerSecond.toFixed(0)} req/s; score/bare ${f.ratio.toFixed(2)}, bare/fastify ${f.bareToFastify.toFixed(2)}, score/fastify ${f.scoreToFastify.toFixed(2)}; server CPU per request ${f.cpuUs ? `fastify ${f.cpuUs.fastify.toFixed(1)} us, bare ${f.cpuUs.bare.toFixed(1)} us, score ${f.cpuUs.score.toFixed(1)} us` : 'not measured'}; at 1,000 req/s p99 ${f.fixed.p99Ms} ms; failed ${f.score.failed + f.bare.failed + f.fixed.failed} (${f.score.tool})`,
     );
   }
 }

@@ -67,6 +67,15 @@ sections.push(
     '| network | log.sync | log.writer | score req/s | p50 ms | p99 ms | bare req/s | bare p99 ms | score / bare | rounds | fastify req/s | bare / fastify | score / fastify | p99 at 1,000 req/s | bare p99 at 1,000 req/s | failed |',
     '|---|---|---|---:|---:|---:|---:|---:|---:|---|---:|---:|---:|---:|---:|---:|',
     ...http.map((f) => `| ${f.shape} | ${f.sync} | ${f.writer} | ${f0(f.score.requestsPerSecond)} | ${f.score.p50Ms} | ${f.score.p99Ms} | ${f0(f.bare.requestsPerSecond)} | ${f.bare.p99Ms} | ${f2(f.ratio)} | ${f.rounds.map(f2).join(' ')} | ${f0(f.fastify.requestsPerSecond)} | ${f2(f.bareToFastify)} | ${f2(f.scoreToFastify)} | ${f.fixed.p99Ms} ms | ${f.fixedBare.p99Ms} ms | ${f.score.failed + f.bare.failed + f.fixed.failed} |`),
+    '',
+    'Server CPU time per request answered (user and system, every thread of the server process, from',
+    '/proc/<pid>/stat over each run; the median of the rounds). The requests a second above depend also on',
+    'whether wrk kept up: on two cores it has one of its own, and the bare fastify app leaves its core idle',
+    'part of the time while wrk does not. The CPU ratios compare what each app spends on a request.',
+    '',
+    '| network | log.sync | log.writer | fastify us | bare us | score us | fastify / bare | fastify / score |',
+    '|---|---|---|---:|---:|---:|---:|---:|',
+    ...http.map((f) => (f.cpuUs ? `| ${f.shape} | ${f.sync} | ${f.writer} | ${f.cpuUs.fastify.toFixed(1)} | ${f.cpuUs.bare.toFixed(1)} | ${f.cpuUs.score.toFixed(1)} | ${f2(f.cpuUs.fastify / f.cpuUs.bare)} | ${f2(f.cpuUs.fastify / f.cpuUs.score)} |` : `| ${f.shape} | ${f.sync} | ${f.writer} | not measured (no /proc) | | | | |`)),
   ].join('\n'),
 );
 
