@@ -1,11 +1,13 @@
 import type { Database } from 'better-sqlite3';
-import { type EncodedRow, type RejectedRow, type ScoredRow, createCommitter, encodeRow } from './log-commit.js';
+import { type RejectedRow, type ScoredRow, createCommitter } from './log-commit.js';
+import { type LogCounts, createLogQueue } from './log-queue.js';
 import { type CommitLimits, type Sink, type SinkKind, type WriterThreadOptions, loopSink, threadSink } from './log-sinks.js';
 import { DEFAULT_WAL_MAX_BYTES } from './wal-bound.js';
 
 export type { WriterThreadOptions } from './log-sinks.js';
 
 export type { RejectedRow, ScoredRow } from './log-commit.js';
+export { LogBackpressureError, LogClosedError, LogWriteError } from './log-queue.js';
 
 /** How the log groups its commits; flushRows, rejectedRows and walMaxBytes as in CommitLimits. */
 export interface WriterOptions extends CommitLimits {
@@ -15,43 +17,8 @@ export interface WriterOptions extends CommitLimits {
   queueRows: number;
 }
 
-/** The queue is full: the caller should answer 503 and ask the client to retry. */
-export class LogBackpressureError extends Error {
-  constructor(readonly waiting: number) {
-    super(`the audit log has ${waiting} rows waiting to be written`);
-    this.name = 'LogBackpressureError';
-  }
-}
-
-/** The rows could not be committed; they are not in the log and must not be acknowledged. */
-export class LogWriteError extends Error {
-  constructor(cause: unknown) {
-    super(`the audit log could not be written: ${(cause as Error).message ?? String(cause)}`, { cause });
-    this.name = 'LogWriteError';
-  }
-}
-
-export class LogClosedError extends Error {
-  constructor() {
-    super('the audit log is closed');
-    this.name = 'LogClosedError';
-  }
-}
-
-interface Pending {
-  rows: ScoredRow[];
-  resolve: () => void;
-  reject: (err: Error) => void;
-}
-
-export interface LogStats {
-  committedRows: number;
-  failedRows: number;
-  transactions: number;
-  /** Transactions that rolled back. */
-  failedTransactions: number;
+export interface LogStats extends LogCounts {
   waitingRows: number;
-  lastError: string | null;
   /** Where the commits run: on a thread of their own, or on the event loop. */
   writer: SinkKind;
 }
@@ -103,18 +70,12 @@ export interface LogHooks {
  * that thread fails, on the event loop with `db` (the CLI, tests).
  */
 export function createRequestLog(db: Database, options: WriterOptions, thread?: WriterThreadOptions, hooks: LogHooks = {}): RequestLog {
-  let queue: Pending[] = [];
-  /** Set once the files were replaced under the log: nothing is acknowledged after. */
-  let fenced: string | null = null;
+  const queue = createLogQueue(options.queueRows, () => schedule());
+  const stats = queue.counts;
   /** A checkpoint the next commit waits for (wal-bound.ts); rows queue meanwhile. */
   let held: Promise<void> | null = null;
-  let rejected: RejectedRow[] = [];
-  /** Rows queued or in flight. */
-  let waiting = 0;
   let timer: NodeJS.Timeout | NodeJS.Immediate | null = null;
   let timerImmediate = false;
-  let closed = false;
-  const stats: Omit<LogStats, 'waitingRows' | 'writer'> = { committedRows: 0, failedRows: 0, transactions: 0, failedTransactions: 0, lastError: null };
   const onLoop = (): Sink =>
     loopSink(createCommitter(db, { ...options, wal: { file: db.name, maxBytes: options.walMaxBytes ?? DEFAULT_WAL_MAX_BYTES, inline: hooks.walGate === undefined || (thread?.autocheckpoint ?? false) } }));
   let sink: Sink;
@@ -123,13 +84,13 @@ export function createRequestLog(db: Database, options: WriterOptions, thread?: 
       thread,
       options,
       () => {
-        if (queue.length > 0 || rejected.length > 0) flushNow();
+        if (queue.hasWork()) flushNow();
       },
       (reason) => {
         stats.lastError = reason;
         sink = onLoop();
         // The rows that waited for the thread go now, on the event loop.
-        if (queue.length > 0 || rejected.length > 0) schedule();
+        if (queue.hasWork()) schedule();
       },
     );
   } else {
@@ -142,111 +103,59 @@ export function createRequestLog(db: Database, options: WriterOptions, thread?: 
     else clearTimeout(timer as NodeJS.Timeout);
     timer = null;
   };
-  const schedule = (): void => {
-    const urgent = options.flushMs === 0 || waiting >= options.flushRows;
+  function schedule(): void {
+    const urgent = options.flushMs === 0 || queue.waiting() >= options.flushRows;
     if (timer !== null && (timerImmediate || !urgent)) return;
     cancel();
     timer = urgent ? setImmediate(flushNow) : setTimeout(flushNow, options.flushMs);
     timerImmediate = urgent;
-  };
+  }
 
   function flushNow(): void {
     cancel();
-    if (held !== null || sink.busy() || (queue.length === 0 && rejected.length === 0)) return;
-    const pending: Pending[] = [];
-    const requests: EncodedRow[][] = [];
-    for (const p of queue) {
-      try {
-        // Rows posted to the writer thread get vectors of their own; on the event loop they are read in place.
-        requests.push(p.rows.map((r) => encodeRow(r, sink.kind === 'thread')));
-        pending.push(p);
-      } catch (err) {
-        waiting -= p.rows.length;
-        stats.failedRows += p.rows.length;
-        p.reject(new LogWriteError(err));
-      }
-    }
-    const refused = rejected;
-    queue = [];
-    rejected = [];
-    sink.send(requests, refused, (o) => {
+    if (held !== null || sink.busy() || !queue.hasWork()) return;
+    // Rows posted to the writer thread get vectors of their own; on the event loop they are read in place.
+    const taken = queue.take(sink.kind === 'thread');
+    sink.send(taken.requests, taken.refused, (o) => {
       stats.transactions += o.transactions;
       stats.failedTransactions += o.failedTransactions;
       if (o.lastError !== null) stats.lastError = o.lastError;
       if (o.storageError !== null) hooks.onStorage?.(o.storageError);
       else if (o.transactions > 0) hooks.onStorage?.(null);
-      if (o.walBytes > 0 && held === null && !closed) {
+      if (o.walBytes > 0 && held === null && !queue.isClosed()) {
         const hold = hooks.walGate?.(o.walBytes, () => sink.idle()) ?? null;
         if (hold !== null) {
           held = hold;
           void hold.finally(() => {
             // flush() may have let go of this hold, and a later commit taken another.
             if (held === hold) held = null;
-            if (queue.length > 0 || rejected.length > 0) schedule();
+            if (queue.hasWork()) schedule();
           });
         }
       }
-      const failed = new Map(o.failed.map((f) => [f.index, f.message]));
-      pending.forEach((p, i) => {
-        waiting -= p.rows.length;
-        const message = fenced ?? failed.get(i);
-        if (message === undefined) {
-          stats.committedRows += p.rows.length;
-          p.resolve();
-        } else {
-          stats.failedRows += p.rows.length;
-          p.reject(new LogWriteError(new Error(message)));
-        }
-      });
+      taken.settle(new Map(o.failed.map((f) => [f.index, f.message])));
     });
   }
 
   return {
-    append(rows) {
-      if (closed) return Promise.reject(new LogClosedError());
-      if (fenced !== null) return Promise.reject(new LogWriteError(new Error(fenced)));
-      if (waiting + rows.length > options.queueRows) return Promise.reject(new LogBackpressureError(waiting));
-      return new Promise<void>((resolve, reject) => {
-        queue.push({ rows, resolve, reject });
-        waiting += rows.length;
-        schedule();
-      });
-    },
-    appendRejected(row) {
-      if (closed) return;
-      // Bounded: under a flood of garbage, refusals beyond the queue bound go unrecorded; scored rows never do.
-      if (rejected.length < options.queueRows) rejected.push(row);
-      schedule();
-    },
+    append: (rows) => queue.append(rows),
+    appendRejected: (row) => queue.appendRejected(row),
     flush() {
       // Synchronous: a held commit goes now (at shutdown a checkpoint is not worth the wait).
       held = null;
       do {
         flushNow();
         sink.drain();
-      } while (queue.length > 0 || rejected.length > 0);
+      } while (queue.hasWork());
     },
-    stats: () => ({ ...stats, waitingRows: waiting, writer: sink.kind }),
+    stats: () => ({ ...stats, waitingRows: queue.waiting(), writer: sink.kind }),
     close() {
-      if (closed) return;
+      if (queue.isClosed()) return;
       this.flush();
-      closed = true;
+      queue.close();
       sink.close();
     },
     autocheckpoint: (on) => sink.autocheckpoint(on),
-    fence(reason) {
-      if (fenced !== null) return;
-      fenced = reason;
-      stats.lastError = reason;
-      // What waits in the queue is refused now; what is in flight is failed when it comes back.
-      const waitingNow = queue;
-      queue = [];
-      for (const p of waitingNow) {
-        waiting -= p.rows.length;
-        stats.failedRows += p.rows.length;
-        p.reject(new LogWriteError(new Error(reason)));
-      }
-    },
+    fence: (reason) => queue.fence(reason),
   };
 }
-

@@ -1,8 +1,9 @@
 import { type ChainHead } from '../chain-head.js';
 import { type ChainedRow, chainHash } from '../chain.js';
 import { toFloat64Blob } from '../float64-blob.js';
-import { type EncodedRow, type RejectedRow, type ScoredRow, encodeRow } from '../log-commit.js';
-import { LogBackpressureError, LogClosedError, LogWriteError, type LogStats, type RequestLog, type WriterOptions } from '../request-log.js';
+import { type EncodedRow, type RejectedRow } from '../log-commit.js';
+import { type LogCounts, createLogQueue } from '../log-queue.js';
+import { type RequestLog, type WriterOptions } from '../request-log.js';
 import { type Pool, type PoolClient, ServerError, isConstraint } from './pool.js';
 
 /** Rows per INSERT statement: 19 parameters a row, under the protocol's 65,535 per statement. */
@@ -12,12 +13,6 @@ const COLUMNS = [
   'seq', 'request_id', 'batch_id', 'received_at', 'model_sha256', 'model_name', 'model_version', 'features', 'tags', 'label',
   'probabilities', 'margin', 'in_domain', 'review', 'domain', 'latency_us', 'key_label', 'explained', 'chain_hash',
 ] as const;
-
-interface Pending {
-  rows: ScoredRow[];
-  resolve: () => void;
-  reject: (err: Error) => void;
-}
 
 export interface ServerLog extends RequestLog {
   /** Resolves once nothing is queued or in flight (after close(): once the last commit is done). */
@@ -87,21 +82,17 @@ async function commitRequests(client: PoolClient, requests: EncodedRow[][]): Pro
  * requests are answered 503.
  */
 export function createServerLog(pool: Pool, url: string, options: WriterOptions, hooks: { onStorage?(error: string | null): void } = {}): ServerLog {
-  let queue: Pending[] = [];
-  let rejected: RejectedRow[] = [];
-  let waiting = 0;
-  let closed = false;
-  let fenced: string | null = null;
+  const queue = createLogQueue(options.queueRows, () => schedule());
+  const stats: LogCounts = queue.counts;
   let inFlight: Promise<void> | null = null;
   let timer: NodeJS.Timeout | NodeJS.Immediate | null = null;
   let rejectedSincePrune = 0;
-  const stats: Omit<LogStats, 'waitingRows' | 'writer'> = { committedRows: 0, failedRows: 0, transactions: 0, failedTransactions: 0, lastError: null };
 
-  const schedule = (): void => {
+  function schedule(): void {
     if (timer !== null || inFlight !== null) return;
-    const urgent = options.flushMs === 0 || waiting >= options.flushRows;
+    const urgent = options.flushMs === 0 || queue.waiting() >= options.flushRows;
     timer = urgent ? setImmediate(flushNow) : setTimeout(flushNow, options.flushMs);
-  };
+  }
 
   /** One transaction; on a constraint failure each request alone. Returns the failed indexes. */
   const settle = async (requests: EncodedRow[][]): Promise<Map<number, string>> => {
@@ -167,62 +158,22 @@ export function createServerLog(pool: Pool, url: string, options: WriterOptions,
 
   function flushNow(): void {
     timer = null;
-    if (inFlight !== null || (queue.length === 0 && rejected.length === 0)) return;
+    if (inFlight !== null || !queue.hasWork()) return;
     // At most flushRows rows a transaction, whole requests only; the rest waits for the next.
-    const pending: Pending[] = [];
-    const requests: EncodedRow[][] = [];
-    let rows = 0;
-    while (queue.length > 0) {
-      const p = queue[0] as Pending;
-      if (rows > 0 && rows + p.rows.length > options.flushRows) break;
-      queue.shift();
-      try {
-        requests.push(p.rows.map((r) => encodeRow(r, false)));
-        pending.push(p);
-        rows += p.rows.length;
-      } catch (err) {
-        waiting -= p.rows.length;
-        stats.failedRows += p.rows.length;
-        p.reject(new LogWriteError(err));
-      }
-    }
-    const refused = rejected.splice(0, Math.max(rejected.length, 0));
+    const taken = queue.take(false, options.flushRows);
     inFlight = (async () => {
-      const failed = requests.length > 0 ? await settle(requests) : new Map<number, string>();
-      pending.forEach((p, i) => {
-        waiting -= p.rows.length;
-        const message = fenced ?? failed.get(i);
-        if (message === undefined) {
-          stats.committedRows += p.rows.length;
-          p.resolve();
-        } else {
-          stats.failedRows += p.rows.length;
-          p.reject(new LogWriteError(new Error(message)));
-        }
-      });
-      if (refused.length > 0) await writeRejected(refused).catch((err: unknown) => (stats.lastError = new ServerError(url, err).message));
+      const failed = taken.requests.length > 0 ? await settle(taken.requests) : new Map<number, string>();
+      taken.settle(failed);
+      if (taken.refused.length > 0) await writeRejected(taken.refused).catch((err: unknown) => (stats.lastError = new ServerError(url, err).message));
     })().finally(() => {
       inFlight = null;
-      if (queue.length > 0 || rejected.length > 0) schedule();
+      if (queue.hasWork()) schedule();
     });
   }
 
   return {
-    append(rows) {
-      if (closed) return Promise.reject(new LogClosedError());
-      if (fenced !== null) return Promise.reject(new LogWriteError(new Error(fenced)));
-      if (waiting + rows.length > options.queueRows) return Promise.reject(new LogBackpressureError(waiting));
-      return new Promise<void>((resolve, reject) => {
-        queue.push({ rows, resolve, reject });
-        waiting += rows.length;
-        schedule();
-      });
-    },
-    appendRejected(row) {
-      if (closed) return;
-      if (rejected.length < options.queueRows) rejected.push(row);
-      schedule();
-    },
+    append: (rows) => queue.append(rows),
+    appendRejected: (row) => queue.appendRejected(row),
     flush() {
       if (timer !== null) {
         clearTimeout(timer as NodeJS.Timeout);
@@ -231,30 +182,19 @@ export function createServerLog(pool: Pool, url: string, options: WriterOptions,
       }
       flushNow();
     },
-    stats: () => ({ ...stats, waitingRows: waiting, writer: 'event-loop' }),
+    stats: () => ({ ...stats, waitingRows: queue.waiting(), writer: 'event-loop' }),
     close() {
-      if (closed) return;
+      if (queue.isClosed()) return;
       this.flush();
-      closed = true;
+      queue.close();
     },
     async settle() {
-      while (inFlight !== null || queue.length > 0 || rejected.length > 0) {
+      while (inFlight !== null || queue.hasWork()) {
         if (inFlight === null) this.flush();
         await inFlight;
       }
     },
     autocheckpoint: () => undefined,
-    fence(reason) {
-      if (fenced !== null) return;
-      fenced = reason;
-      stats.lastError = reason;
-      const waitingNow = queue;
-      queue = [];
-      for (const p of waitingNow) {
-        waiting -= p.rows.length;
-        stats.failedRows += p.rows.length;
-        p.reject(new LogWriteError(new Error(reason)));
-      }
-    },
+    fence: (reason) => queue.fence(reason),
   };
 }
