@@ -107,31 +107,44 @@ export function createServerOutcomesStore(pool: Pool, url: string): OutcomesStor
     });
     let broken: Error | undefined;
     try {
+      // Which answer each item names, and its model's classes, are read before the lock: the
+      // lock guards the outcome chain, not the scored rows, so a batch of tag lookups does not
+      // hold up every other replica's outcomes.
+      const found: Array<{ item: OutcomeInput; target: Target } | { verdict: OutcomeVerdict }> = [];
+      for (const item of items) {
+        const target = await findTarget(client, item);
+        if ('reason' in target) {
+          found.push({ verdict: { requestId: item.requestId ?? null, status: 'refused', ...target } });
+          continue;
+        }
+        const classes = (await models(client, target.model_sha256))?.classes ?? [];
+        if (!classes.includes(item.label)) found.push({ verdict: { requestId: target.request_id, status: 'refused', reason: 'not-a-class', detail: notAClassDetail(item.label, target.model_name, classes), classes } });
+        else found.push({ item, target });
+      }
       const [, headResult] = (await client.query('BEGIN; SELECT seq, hash FROM outcome_chain_head WHERE id = 1 FOR UPDATE')) as unknown as [unknown, { rows: Array<{ seq: number; hash: Buffer }> }];
       const h = headResult.rows[0];
       if (!h) throw new Error("the outcome_chain_head row is missing: the schema is not plumbline's");
       let at = { seq: h.seq, hash: h.hash };
       const start = { ...at };
       const rows: Array<OutcomeRow & { chain_hash: Buffer }> = [];
-      // The newest outcome of each answer met, as this batch leaves it (a later item sees an earlier one).
-      const newest = new Map<string, { seq: number; label: string } | null>();
+      // The newest outcome of each answer met, read under the lock in one query, as this batch
+      // leaves it (a later item sees an earlier one).
+      const ids = [...new Set(found.flatMap((f) => ('target' in f ? [f.target.request_id] : [])))];
+      const newest = new Map<string, { seq: number; label: string } | null>(ids.map((id) => [id, null]));
+      if (ids.length > 0) {
+        const latest = await client.query<{ request_id: string; seq: number; label: string }>(
+          'SELECT DISTINCT ON (request_id) request_id, seq, label FROM outcomes WHERE request_id = ANY($1::text[]) ORDER BY request_id, seq DESC',
+          [ids],
+        );
+        for (const r of latest.rows) newest.set(r.request_id, { seq: r.seq, label: r.label });
+      }
       const verdicts: OutcomeVerdict[] = [];
-      for (const item of items) {
-        const target = await findTarget(client, item);
-        if ('reason' in target) {
-          verdicts.push({ requestId: item.requestId ?? null, status: 'refused', ...target });
+      for (const f of found) {
+        if ('verdict' in f) {
+          verdicts.push(f.verdict);
           continue;
         }
-        const classes = (await models(client, target.model_sha256))?.classes ?? [];
-        if (!classes.includes(item.label)) {
-          verdicts.push({ requestId: target.request_id, status: 'refused', reason: 'not-a-class', detail: notAClassDetail(item.label, target.model_name, classes), classes });
-          continue;
-        }
-        if (!newest.has(target.request_id)) {
-          const r = (await client.query<{ seq: number; label: string }>('SELECT seq, label FROM outcomes WHERE request_id = $1 ORDER BY seq DESC LIMIT 1', [target.request_id])).rows[0];
-          newest.set(target.request_id, r ?? null);
-        }
-        const next = nextOutcome(item, target.request_id, newest.get(target.request_id), at, now, keyLabel);
+        const next = nextOutcome(f.item, f.target.request_id, newest.get(f.target.request_id), at, now, keyLabel);
         if (next.row) {
           rows.push(next.row);
           at = { seq: next.row.seq, hash: next.row.chain_hash };
