@@ -54,15 +54,30 @@ describe('the database files removed or replaced under a running server', () => 
     // as in a server that has run a while: the checkpoint thread has its connection open
     expect(await until(() => (store.checkpoints()?.runs ?? 0) > 0)).toBe(true);
     rmSync(`${file}-wal`);
-    // rows answered after the removal and before it is seen land in the removed file
-    for (let i = 0; i < 10; i++) await store.log.append([row()]);
+    // rows answered after the removal and before it is seen land in the removed file; on a busy
+    // machine the removal may be seen before all ten are sent, and what follows is refused
+    let answered = 0;
+    for (let i = 0; i < 10; i++) {
+      const ok = await store.log.append([row()]).then(
+        () => true,
+        (err: unknown) => {
+          expect(err).toBeInstanceOf(LogWriteError);
+          return false;
+        },
+      );
+      if (!ok) break;
+      answered++;
+    }
     expect(await until(() => !store.writeState().writable)).toBe(true);
     expect(store.writeState().reason).toMatch(/wal-removed\.db-wal was removed while the service had it open; nothing more is acknowledged/);
     expect(fenced).toHaveLength(1);
     await expect(store.log.append([row()])).rejects.toBeInstanceOf(LogWriteError);
     store.close();
     // Every row answered is in the database file: what was left in the removed WAL was copied in.
-    expect(count(file)).toBe(110);
+    // (and a row refused in flight may be there too: never a 200 for a row that is not)
+    const kept = count(file);
+    expect(kept).toBeGreaterThanOrEqual(100 + answered);
+    expect(kept).toBeLessThanOrEqual(100 + answered + (answered < 10 ? 1 : 0));
   });
 
   it('a replaced database file: stops acknowledging and goes unready', async () => {
